@@ -1,0 +1,36 @@
+//! Command-line definition (clap derive) and dispatch to one command per file in `cmd/`.
+
+use crate::cmd;
+use crate::error::Result;
+use clap::{Parser, Subcommand};
+
+/// Parametric survival curves turned into tunnel-state transition probabilities.
+#[derive(Debug, Parser)]
+#[command(
+    name = "tunnelcast",
+    version,
+    about = "Fit parametric survival curves to time-to-event data and turn them into per-cycle \
+             tunnel-state probabilities for cohort state-transition models.",
+    after_help = crate::CAUTION
+)]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The commands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Fit parametric families to right-censored time-to-event data and compare them.
+    Fit(cmd::fit::FitArgs),
+    /// Run the bundled invented example and print its results.
+    Demo(cmd::demo::DemoArgs),
+}
+
+/// Runs the parsed command.
+pub fn run(cli: Cli) -> Result<()> {
+    match cli.command {
+        Command::Fit(args) => cmd::fit::run(args),
+        Command::Demo(args) => cmd::demo::run(args),
+    }
+}

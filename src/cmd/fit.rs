@@ -1,0 +1,206 @@
+//! `tunnelcast fit DATA.csv`: fit the families, print the comparison sorted by AIC, write the fit JSON.
+
+use crate::error::{Error, Result};
+use crate::families;
+use crate::fit::{fit_dataset, select_families, FitFile};
+use crate::format::sig;
+use crate::input::{self, InputOptions};
+use crate::km::MedianEstimate;
+use crate::output;
+use crate::units::TimeUnit;
+use clap::Args;
+use std::path::PathBuf;
+
+/// Options of `fit`.
+#[derive(Debug, Args)]
+#[command(after_help = concat!(
+    "Example:\n  tunnelcast fit data/demo_trial.csv --time-unit days --arm-col arm --json fit.json\n\n",
+    "Caution: extrapolated survival is an assumption, not an observation. Check every extrapolation \
+against clinical opinion and external data. tunnelcast does not replace local HTA guidance or qualified review."
+))]
+pub struct FitArgs {
+    /// Time-to-event CSV with a header row.
+    pub data: PathBuf,
+    /// Column with the time to event or censoring.
+    #[arg(long, default_value = "time")]
+    pub time_col: String,
+    /// Column with 1 for an event, 0 for censoring.
+    #[arg(long, default_value = "event")]
+    pub event_col: String,
+    /// Column naming the arm; each arm is fitted separately.
+    #[arg(long)]
+    pub arm_col: Option<String>,
+    /// Time unit of the data (days, weeks, months, years).
+    #[arg(long, default_value = "days")]
+    pub time_unit: TimeUnit,
+    /// Families to fit, comma-separated (default: all standard families).
+    #[arg(long, value_delimiter = ',')]
+    pub families: Vec<String>,
+    /// Write the fits to this JSON file.
+    #[arg(long)]
+    pub json: Option<PathBuf>,
+    /// Field delimiter (detected from the header when not given).
+    #[arg(long)]
+    pub delimiter: Option<char>,
+    /// Replace zero times by this small positive time (data's unit) instead of rejecting them.
+    #[arg(long)]
+    pub zero_time: Option<f64>,
+    /// Replace an existing output file.
+    #[arg(long)]
+    pub force: bool,
+}
+
+fn interval_text(median: &MedianEstimate) -> String {
+    let show = |x: Option<f64>| x.map(|v| sig(v, 4)).unwrap_or_else(|| "not reached".into());
+    format!(
+        "{} (95% CI {} to {})",
+        show(median.median),
+        show(median.lower),
+        show(median.upper)
+    )
+}
+
+/// Renders the comparison table of one fit file, arm by arm.
+pub fn render_comparison(file: &FitFile) -> String {
+    let unit = file.data.time_unit;
+    let mut out = format!(
+        "data: {} (n = {}, events = {}, time unit: {unit})\n",
+        file.data.file, file.data.n, file.data.events
+    );
+    for arm in &file.data.arms {
+        out.push('\n');
+        if let Some(name) = &arm.arm {
+            out.push_str(&format!(
+                "arm {name} (n = {}, events = {})\n",
+                arm.n, arm.events
+            ));
+        }
+        out.push_str(&format!(
+            "Kaplan–Meier median: {} {unit}; longest follow-up {} {unit}\n",
+            interval_text(&arm.km_median),
+            sig(arm.max_time, 4)
+        ));
+        let mut rows = Vec::new();
+        for fit in file.fits.iter().filter(|f| f.arm == arm.arm) {
+            let family = families::by_name(&fit.family).ok();
+            let params = family
+                .map(|f| {
+                    f.param_names()
+                        .iter()
+                        .map(|n| {
+                            let v = fit.params.get(*n).copied().unwrap_or(f64::NAN);
+                            match fit.intervals.get(*n) {
+                                Some([lo, hi]) => {
+                                    format!(
+                                        "{n} {} ({} to {})",
+                                        sig(v, 4),
+                                        sig(*lo, 3),
+                                        sig(*hi, 3)
+                                    )
+                                }
+                                None => format!("{n} {}", sig(v, 4)),
+                            }
+                        })
+                        .collect::<Vec<_>>()
+                        .join("; ")
+                })
+                .unwrap_or_default();
+            let opt = |x: Option<f64>, d: usize| {
+                x.map(|v| format!("{v:.d$}")).unwrap_or_else(|| "NA".into())
+            };
+            rows.push(vec![
+                if fit.converged {
+                    fit.family.clone()
+                } else {
+                    format!("{} (not converged)", fit.family)
+                },
+                params,
+                opt(fit.loglik, 2),
+                opt(fit.aic, 2),
+                opt(fit.bic, 2),
+                opt(fit.delta_aic, 2),
+                fit.median
+                    .map(|m| sig(m, 4))
+                    .unwrap_or_else(|| "not reached".into()),
+            ]);
+        }
+        out.push_str(&crate::format::table_aligned(
+            &[
+                "family",
+                "parameters (95% CI)",
+                "loglik",
+                "AIC",
+                "BIC",
+                "ΔAIC",
+                &format!("median ({unit})"),
+            ],
+            &rows,
+            2,
+        ));
+        for fit in file
+            .fits
+            .iter()
+            .filter(|f| f.arm == arm.arm && !f.converged)
+        {
+            out.push_str(&format!(
+                "note: {} did not converge: {}\n",
+                fit.family,
+                fit.message.as_deref().unwrap_or("no reason recorded")
+            ));
+        }
+    }
+    out
+}
+
+/// Runs `fit`.
+pub fn run(args: FitArgs) -> Result<()> {
+    let families = select_families(&args.families)?;
+    if let Some(path) = &args.json {
+        output::check_writable(path, args.force)?;
+    }
+    if let Some(z) = args.zero_time {
+        if !(z.is_finite() && z > 0.0) {
+            return Err(Error::Usage(format!(
+                "--zero-time must be a positive time, got {z}"
+            )));
+        }
+    }
+    let delimiter = match args.delimiter {
+        Some(c) if c.is_ascii() => Some(c as u8),
+        Some(c) => {
+            return Err(Error::Usage(format!(
+                "--delimiter must be a single ASCII character, got {c:?}"
+            )))
+        }
+        None => None,
+    };
+    let options = InputOptions {
+        time_col: args.time_col,
+        event_col: args.event_col,
+        arm_col: args.arm_col,
+        delimiter,
+        zero_time: args.zero_time,
+    };
+    let data = input::load(&args.data, &options)?;
+    let file = fit_dataset(&data, &families, args.time_unit, args.zero_time);
+    let mut text = render_comparison(&file);
+    if data.zero_times_replaced > 0 {
+        text.push_str(&format!(
+            "note: {} zero time(s) replaced by {} {}\n",
+            data.zero_times_replaced,
+            args.zero_time.unwrap_or(0.0),
+            args.time_unit
+        ));
+    }
+    if let Some(path) = &args.json {
+        let json = serde_json::to_vec_pretty(&file)
+            .map_err(|e| Error::output(path, format!("cannot serialise: {e}")))?;
+        output::write_atomic(path, &json)?;
+        text.push_str(&format!("wrote {}\n", path.display()));
+    }
+    output::print(&text);
+    if file.fits.iter().all(|f| !f.converged) {
+        return Err(Error::Computation("no family converged".into()));
+    }
+    Ok(())
+}

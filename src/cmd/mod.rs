@@ -1,0 +1,4 @@
+//! One file per command: its argument struct and its `run`.
+
+pub mod demo;
+pub mod fit;

@@ -1,0 +1,101 @@
+//! Gompertz family: hazard rate·e^(shape·t), S(t) = exp(-(rate/shape)(e^(shape·t) - 1));
+//! estimated as `shape`, `ln_rate`. Negative shape: survival levels off at exp(rate/shape).
+
+use super::{check_finite, check_positive, Family};
+use crate::fit::{sum_terms, FitData};
+use crate::numeric::{expm1_over_x, expm1_over_x_derivative, ln1p_over_x};
+
+/// Exponentially changing hazard; proportional-hazards. Shape → 0 is the exponential.
+pub struct Gompertz;
+
+/// Cumulative hazard (rate/shape)(e^x - 1) with x = shape·t, written as rate·t·(e^x - 1)/x
+/// near x = 0 so that shape → 0 tends to the exponential without cancellation.
+fn cumulative(shape: f64, rate: f64, t: f64) -> f64 {
+    let x = shape * t;
+    if x.abs() < 1e-3 {
+        rate * t * expm1_over_x(x)
+    } else {
+        rate * x.exp_m1() / shape
+    }
+}
+
+impl Family for Gompertz {
+    fn name(&self) -> &'static str {
+        "gompertz"
+    }
+    fn param_names(&self) -> &'static [&'static str] {
+        &["shape", "rate"]
+    }
+    fn estimation_names(&self) -> &'static [&'static str] {
+        &["shape", "ln_rate"]
+    }
+    fn to_natural(&self, theta: &[f64]) -> Vec<f64> {
+        vec![theta[0], theta[1].exp()]
+    }
+    fn to_estimation(&self, params: &[f64]) -> Vec<f64> {
+        vec![params[0], params[1].ln()]
+    }
+    fn check_params(&self, params: &[f64]) -> Result<(), String> {
+        check_finite("shape", params[0])?;
+        check_positive("rate", params[1])
+    }
+    fn log_survival(&self, p: &[f64], t: f64) -> f64 {
+        if t <= 0.0 {
+            return 0.0;
+        }
+        -cumulative(p[0], p[1], t)
+    }
+    fn log_hazard(&self, p: &[f64], t: f64) -> f64 {
+        p[1].ln() + p[0] * t
+    }
+    fn quantile(&self, p: &[f64], prob: f64) -> f64 {
+        // Solve H(t) = y: t = ln(1 + shape·y/rate)/shape, never reached if shape < 0 and the plateau is above 1 - prob.
+        let (shape, rate) = (p[0], p[1]);
+        let y = -(-prob).ln_1p();
+        let x = shape * y / rate;
+        if x <= -1.0 {
+            return f64::INFINITY;
+        }
+        y / rate * ln1p_over_x(x)
+    }
+    fn rescale_time(&self, p: &[f64], factor: f64) -> Vec<f64> {
+        vec![p[0] / factor, p[1] / factor]
+    }
+    fn proportional_hazards(&self) -> bool {
+        true
+    }
+    fn accelerated_failure_time(&self) -> bool {
+        false
+    }
+    fn start_values(&self, data: &FitData) -> Vec<Vec<f64>> {
+        let rate = data.n_events / data.total_time;
+        let max_t = data.time.last().copied().unwrap_or(1.0);
+        let mut starts = vec![vec![0.0, rate.ln()]];
+        for k in [-1.0, 1.0] {
+            let shape = k / max_t;
+            // Rate making the expected number of events match, given the shape.
+            let sum: f64 = data
+                .time
+                .iter()
+                .zip(&data.total)
+                .map(|(&t, &n)| n * cumulative(shape, 1.0, t))
+                .sum();
+            starts.push(vec![shape, (data.n_events / sum).ln()]);
+        }
+        starts
+    }
+    fn loglik_grad(&self, theta: &[f64], data: &FitData) -> (f64, Vec<f64>) {
+        let shape = theta[0];
+        let ln_rate = theta[1];
+        let rate = ln_rate.exp();
+        let (ll, g) = sum_terms::<2>(data, |t, _ln_t, d, n| {
+            let x = shape * t;
+            let cum = rate * t * expm1_over_x(x);
+            let ll = d * (ln_rate + x) - n * cum;
+            let g_shape = d * t - n * rate * t * t * expm1_over_x_derivative(x);
+            let g_rate = d - n * cum;
+            (ll, [g_shape, g_rate])
+        });
+        (ll, g.to_vec())
+    }
+}

@@ -1,0 +1,95 @@
+//! Log-normal family: S(t) = 1 - Φ((ln t - mu)/sigma); estimated as `mu`, `ln_sigma`.
+//! Log-survival uses the log upper-tail form of the normal, never ln(1 - Φ).
+
+use super::{check_finite, check_positive, Family};
+use crate::fit::{sum_terms, FitData};
+use crate::numeric::{inverse_mills, log_normal_sf, normal_quantile, LN_SQRT_2PI};
+
+/// Hazard rising then falling; accelerated-failure-time.
+pub struct LogNormal;
+
+impl Family for LogNormal {
+    fn name(&self) -> &'static str {
+        "lognormal"
+    }
+    fn param_names(&self) -> &'static [&'static str] {
+        &["mu", "sigma"]
+    }
+    fn estimation_names(&self) -> &'static [&'static str] {
+        &["mu", "ln_sigma"]
+    }
+    fn to_natural(&self, theta: &[f64]) -> Vec<f64> {
+        vec![theta[0], theta[1].exp()]
+    }
+    fn to_estimation(&self, params: &[f64]) -> Vec<f64> {
+        vec![params[0], params[1].ln()]
+    }
+    fn check_params(&self, params: &[f64]) -> Result<(), String> {
+        check_finite("mu", params[0])?;
+        check_positive("sigma", params[1])
+    }
+    fn log_survival(&self, p: &[f64], t: f64) -> f64 {
+        if t <= 0.0 {
+            return 0.0;
+        }
+        log_normal_sf((t.ln() - p[0]) / p[1])
+    }
+    fn log_hazard(&self, p: &[f64], t: f64) -> f64 {
+        // h = φ(z)/(σ t Q(z)) = inverse Mills ratio / (σ t).
+        let z = (t.ln() - p[0]) / p[1];
+        inverse_mills(z).ln() - p[1].ln() - t.ln()
+    }
+    fn log_density(&self, p: &[f64], t: f64) -> f64 {
+        let z = (t.ln() - p[0]) / p[1];
+        -0.5 * z * z - LN_SQRT_2PI - p[1].ln() - t.ln()
+    }
+    fn quantile(&self, p: &[f64], prob: f64) -> f64 {
+        (p[0] + p[1] * normal_quantile(prob)).exp()
+    }
+    fn rescale_time(&self, p: &[f64], factor: f64) -> Vec<f64> {
+        vec![p[0] + factor.ln(), p[1]]
+    }
+    fn proportional_hazards(&self) -> bool {
+        false
+    }
+    fn accelerated_failure_time(&self) -> bool {
+        true
+    }
+    fn start_values(&self, data: &FitData) -> Vec<Vec<f64>> {
+        let mut starts = Vec::new();
+        // Probit line: Φ⁻¹(1 - S) = (ln t - mu)/sigma through the Kaplan–Meier points.
+        if let Some((slope, intercept)) = data.km_line(|s| normal_quantile(1.0 - s)) {
+            if slope > 0.0 {
+                starts.push(vec![-intercept / slope, (1.0 / slope).ln()]);
+            }
+        }
+        let (mean, sd) = data.event_log_time_moments();
+        starts.push(vec![mean + sd, sd.max(0.1).ln()]);
+        starts
+    }
+    fn loglik_grad(&self, theta: &[f64], data: &FitData) -> (f64, Vec<f64>) {
+        let mu = theta[0];
+        let ln_sigma = theta[1];
+        let sigma = ln_sigma.exp();
+        let (ll, g) = sum_terms::<2>(data, |_t, ln_t, d, n| {
+            let z = (ln_t - mu) / sigma;
+            let c = n - d;
+            let mut ll = 0.0;
+            let mut g_mu = 0.0;
+            let mut g_sigma = 0.0;
+            if d > 0.0 {
+                ll += d * (-0.5 * z * z - LN_SQRT_2PI - ln_sigma - ln_t);
+                g_mu += d * z / sigma;
+                g_sigma += d * (z * z - 1.0);
+            }
+            if c > 0.0 {
+                let lambda = inverse_mills(z);
+                ll += c * log_normal_sf(z);
+                g_mu += c * lambda / sigma;
+                g_sigma += c * lambda * z;
+            }
+            (ll, [g_mu, g_sigma])
+        });
+        (ll, g.to_vec())
+    }
+}
