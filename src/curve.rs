@@ -19,6 +19,16 @@ pub trait Curve: Send + Sync {
     fn survival(&self, t: f64) -> f64 {
         self.log_survival(t).exp()
     }
+
+    /// For a curve with several causes of exit (e.g. disease plus background mortality): the
+    /// probability of leaving by each named cause within [t0, t1) given survival to t0; the
+    /// values sum to 1 - S(t1)/S(t0). `None` for a single-cause curve.
+    fn exit_by_cause(&self, _t0: f64, _t1: f64) -> Option<Vec<(&'static str, f64)>> {
+        None
+    }
+
+    /// One-line description for headers and reports (family, parameters, adjustments).
+    fn describe(&self) -> String;
 }
 
 /// A fitted or published parametric curve: a family, its natural parameters, and their time unit.
@@ -89,6 +99,21 @@ impl Curve for ParametricCurve {
     }
     fn time_unit(&self) -> TimeUnit {
         self.unit
+    }
+    fn describe(&self) -> String {
+        let params: Vec<String> = self
+            .family
+            .param_names()
+            .iter()
+            .zip(&self.params)
+            .map(|(n, v)| format!("{n}={v}"))
+            .collect();
+        format!(
+            "{} ({}; time in {})",
+            self.family.name(),
+            params.join(", "),
+            self.unit
+        )
     }
 }
 
