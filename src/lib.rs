@@ -11,7 +11,9 @@
 pub mod cli;
 pub mod cmd;
 pub mod curve;
+pub mod discretise;
 pub mod error;
+pub mod export;
 pub mod families;
 pub mod fit;
 pub mod format;
