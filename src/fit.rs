@@ -351,8 +351,11 @@ fn newton_polish(family: &dyn Family, data: &FitData, mut theta: Vec<f64>) -> Ve
                 .zip(&step)
                 .map(|(t, s)| t + scale * s)
                 .collect();
-            let (trial_ll, _) = family.loglik_grad(&trial, data);
-            if trial_ll.is_finite() && trial_ll >= ll {
+            let (trial_ll, trial_grad) = family.loglik_grad(&trial, data);
+            // At the optimum the log-likelihood is flat to rounding, so a step that shrinks the
+            // gradient without lowering the log-likelihood beyond rounding also counts.
+            let flat = trial_ll >= ll - 1e-13 * ll.abs() && max_abs(&trial_grad) < max_abs(&grad);
+            if trial_ll.is_finite() && (trial_ll >= ll || flat) {
                 theta = trial;
                 ll = trial_ll;
                 improved = true;
