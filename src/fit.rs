@@ -471,7 +471,48 @@ pub fn fit_family(family: &dyn Family, data: &FitData, arm: Option<&str>) -> Fam
         ));
     }
     fit.converged = covariance.is_some() && gradient_ok && params_ok;
+    keep_finite(&mut fit);
     fit
+}
+
+/// Drops non-finite numbers from a fit (JSON has no NaN or infinity, and a `null` where a
+/// number is expected would make the fit file unreadable); a fit that loses any is not converged.
+fn keep_finite(fit: &mut FamilyFit) {
+    let finite = |x: &f64| x.is_finite();
+    let mut lost = false;
+    let before = fit.params.len();
+    fit.params.retain(|_, v| v.is_finite());
+    lost |= fit.params.len() != before;
+    if !fit.estimates.iter().all(finite) {
+        fit.estimates.clear();
+        lost = true;
+    }
+    fit.intervals
+        .retain(|_, [a, b]| a.is_finite() && b.is_finite());
+    if fit
+        .covariance
+        .as_ref()
+        .is_some_and(|c| !c.matrix.iter().flatten().all(finite))
+    {
+        fit.covariance = None;
+        lost = true;
+    }
+    for value in [
+        &mut fit.loglik,
+        &mut fit.aic,
+        &mut fit.bic,
+        &mut fit.median,
+        &mut fit.gradient_max,
+    ] {
+        *value = value.filter(finite);
+    }
+    if lost && fit.converged {
+        fit.converged = false;
+    }
+    if lost && fit.message.is_none() {
+        fit.message =
+            Some("an estimate is not a finite number (over- or underflow at extreme times)".into());
+    }
 }
 
 fn describe(family: &dyn Family, theta: &[f64]) -> String {
