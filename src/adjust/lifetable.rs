@@ -303,6 +303,20 @@ mod tests {
     }
 
     #[test]
+    fn bundled_synthetic_table_loads() {
+        // data/demo_lifetable.csv, written by scripts/make_lifetable.py: ages 0–110 closing with
+        // qx = 1, and by construction of its invented parameters men die more at every age.
+        let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("data/demo_lifetable.csv");
+        let female = load(&path, Some(Sex::Female)).unwrap();
+        let male = load(&path, Some(Sex::Male)).unwrap();
+        assert_eq!((female.first_age, female.qx.len()), (0, 111));
+        assert!(female.closes_with_certain_death());
+        for (f, m) in female.qx.iter().zip(&male.qx).take(110) {
+            assert!(0.0 < *f && f < m && *m < 1.0);
+        }
+    }
+
+    #[test]
     fn sex_must_match_the_table() {
         let two = "age,qx_female,qx_male\n60,0.01,0.02\n";
         assert!(parse_str(two, None)
