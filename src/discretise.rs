@@ -74,13 +74,21 @@ pub fn tunnel_table(curve: &dyn Curve, cycle: Duration, count: usize) -> TunnelT
             p_exit,
             p_next: 1.0 - p_exit,
         });
-        if let Some(causes) = curve.exit_by_cause(t_start * to_curve, t_end * to_curve) {
-            for (name, p) in causes {
-                let column = format!("p_exit_{name}");
-                match by_cause.iter_mut().find(|(n, _)| *n == column) {
-                    Some((_, values)) => values.push(p),
-                    None => by_cause.push((column, vec![p])),
-                }
+        let (c0, c1) = (t_start * to_curve, t_end * to_curve);
+        let causes = curve.exit_by_cause(c0, c1).unwrap_or_default();
+        let named = causes
+            .into_iter()
+            .map(|(name, p)| (format!("p_exit_{name}"), p))
+            .chain(
+                curve
+                    .cycle_columns(c0, c1)
+                    .into_iter()
+                    .map(|(name, v)| (name.to_string(), v)),
+            );
+        for (column, value) in named {
+            match by_cause.iter_mut().find(|(n, _)| *n == column) {
+                Some((_, values)) => values.push(value),
+                None => by_cause.push((column, vec![value])),
             }
         }
         log_s0 = log_s1;
