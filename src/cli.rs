@@ -25,6 +25,8 @@ pub enum Command {
     Fit(cmd::fit::FitArgs),
     /// Run the bundled invented example and print its results.
     Demo(cmd::demo::DemoArgs),
+    /// Rebuild patient-level data from a digitised Kaplan–Meier figure (Guyot et al., 2012).
+    Rebuild(cmd::rebuild::RebuildArgs),
 }
 
 /// Runs the parsed command.
@@ -32,5 +34,6 @@ pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Fit(args) => cmd::fit::run(args),
         Command::Demo(args) => cmd::demo::run(args),
+        Command::Rebuild(args) => cmd::rebuild::run(args),
     }
 }
