@@ -23,6 +23,7 @@ pub mod input;
 pub mod km;
 pub mod numeric;
 pub mod output;
+pub mod rebuild;
 pub mod units;
 
 pub use error::{Error, Result};
