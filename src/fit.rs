@@ -801,6 +801,43 @@ mod tests {
     }
 
     #[test]
+    fn families_running_to_a_boundary_are_reported_while_others_fit() {
+        // Every subject has its event at the same time: the likelihood of every two-parameter
+        // family grows without bound as the curve sharpens into a step (shape → ∞ or
+        // sigma → 0), while the exponential has its closed-form estimate 8 events / 40 days.
+        let recs = records(&[(5.0, true); 8]);
+        let fits = fit_arm(&families::all(), &recs, None);
+        assert_eq!(fits.len(), 5);
+        assert_eq!(fits[0].family, "exponential");
+        assert!(fits[0].converged);
+        assert!((fits[0].params["rate"] - 0.2).abs() < 1e-12);
+        assert_eq!(fits[0].delta_aic, Some(0.0));
+        for fit in &fits[1..] {
+            assert!(!fit.converged, "{} converged", fit.family);
+            let message = fit.message.as_deref().unwrap_or_default();
+            assert!(!message.is_empty(), "{}: no reason given", fit.family);
+        }
+    }
+
+    #[test]
+    fn gompertz_running_away_is_reported() {
+        // All events come after every censoring, at the last time: the Gompertz hazard can
+        // concentrate there without limit (shape → ∞); the fit must say so.
+        let recs = records(&[
+            (1.0, false),
+            (2.0, false),
+            (3.0, false),
+            (4.0, false),
+            (10.0, true),
+            (10.0, true),
+        ]);
+        let data = FitData::from_records(&recs);
+        let fit = fit_family(families::by_name("gompertz").unwrap(), &data, None);
+        assert!(!fit.converged);
+        assert!(fit.message.is_some());
+    }
+
+    #[test]
     fn loglik_matches_density_and_survival_sums() {
         let recs = records(&[
             (0.5, true),
