@@ -637,10 +637,10 @@ pub struct FitFile {
     pub fits: Vec<FamilyFit>,
 }
 
-/// Resolves `--families` (empty = all standard families).
+/// Resolves `--families` (empty = the default families: the standard five plus `gengamma`).
 pub fn select_families(names: &[String]) -> Result<Vec<&'static dyn Family>> {
     if names.is_empty() {
-        return Ok(families::STANDARD.to_vec());
+        return Ok(families::defaults());
     }
     let mut out: Vec<&'static dyn Family> = Vec::new();
     for name in names {

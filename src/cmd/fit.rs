@@ -33,7 +33,7 @@ pub struct FitArgs {
     /// Time unit of the data (days, weeks, months, years).
     #[arg(long, default_value = "days")]
     pub time_unit: TimeUnit,
-    /// Families to fit, comma-separated (default: all standard families).
+    /// Families to fit, comma-separated (default: the five standard families plus gengamma).
     #[arg(long, value_delimiter = ',')]
     pub families: Vec<String>,
     /// Write the fits to this JSON file.

@@ -7,12 +7,15 @@
 use crate::fit::FitData;
 
 mod exponential;
+mod gengamma;
 mod gompertz;
+mod incomplete_gamma;
 mod loglogistic;
 mod lognormal;
 mod weibull;
 
 pub use exponential::Exponential;
+pub use gengamma::GenGamma;
 pub use gompertz::Gompertz;
 pub use loglogistic::LogLogistic;
 pub use lognormal::LogNormal;
@@ -104,7 +107,51 @@ pub static STANDARD: [&dyn Family; 5] =
 
 /// Every family the tool knows.
 pub fn all() -> Vec<&'static dyn Family> {
-    STANDARD.to_vec()
+    let mut families = STANDARD.to_vec();
+    families.push(&GenGamma);
+    families
+}
+
+/// The families `fit` uses when none are named: the five standard ones plus the generalized gamma.
+pub fn defaults() -> Vec<&'static dyn Family> {
+    let mut families = STANDARD.to_vec();
+    families.push(&GenGamma);
+    families
+}
+
+/// Time t with ln S(t) = ln(1 - `p`) for a survival curve given as ln S over t, by bisection
+/// on ln t (∞ when the curve never falls that far); for families without a closed-form inverse.
+pub(crate) fn quantile_by_bisection(log_survival: impl Fn(f64) -> f64, p: f64) -> f64 {
+    if p <= 0.0 {
+        return 0.0;
+    }
+    let target = (-p).ln_1p();
+    let below = |x: f64| log_survival(x.exp()) <= target;
+    let (mut lo, mut hi) = (-1.0f64, 1.0f64);
+    while !below(hi) {
+        hi = 2.0 * hi + 1.0;
+        if hi > 710.0 {
+            return f64::INFINITY;
+        }
+    }
+    while below(lo) {
+        lo = 2.0 * lo - 1.0;
+        if lo < -710.0 {
+            return 0.0;
+        }
+    }
+    for _ in 0..200 {
+        let mid = 0.5 * (lo + hi);
+        if mid <= lo || mid >= hi {
+            break;
+        }
+        if below(mid) {
+            hi = mid;
+        } else {
+            lo = mid;
+        }
+    }
+    (0.5 * (lo + hi)).exp()
 }
 
 /// Looks a family up by name; the error lists the known names and suggests the nearest.
@@ -159,6 +206,12 @@ pub(crate) mod tests {
             "lognormal" => vec![vec![3.0, 0.5], vec![-1.0, 2.0]],
             "loglogistic" => vec![vec![0.8, 20.0], vec![3.5, 1.5]],
             "gompertz" => vec![vec![0.05, 0.01], vec![-0.3, 0.2], vec![1e-12, 0.4]],
+            "gengamma" => vec![
+                vec![1.0, 0.5, 1.0],
+                vec![3.0, 1.2, -0.7],
+                vec![2.0, 0.8, 0.004],
+                vec![0.5, 0.3, 2.5],
+            ],
             _ => vec![],
         }
     }
