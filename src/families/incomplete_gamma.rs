@@ -7,6 +7,10 @@
 
 use crate::numeric::{log1m_exp, LN_SQRT_2PI};
 
+/// Cap on series terms and continued-fraction steps; both converge within a few multiples of √a
+/// terms (a ≤ 10⁴ here) plus a few dozen.
+const MAX_TERMS: f64 = 100_000.0;
+
 /// (e^x - 1 - x)/x², equal to 1/2 at 0, without cancellation near 0.
 pub fn expm1_minus_x_over_x2(x: f64) -> f64 {
     if x.abs() < 0.05 {
@@ -44,6 +48,10 @@ fn log_prefactor(a: f64, y: f64) -> f64 {
 /// (ln P(a, x), ln Q(a, x)) for a > 0 and x = a·e^y, the regularised lower and upper
 /// incomplete gamma functions; accurate in relative terms in both tails.
 pub fn log_gamma_pq(a: f64, y: f64) -> (f64, f64) {
+    // A NaN would never meet the convergence tests below.
+    if y.is_nan() || !(a > 0.0 && a.is_finite()) {
+        return (f64::NAN, f64::NAN);
+    }
     if y == f64::NEG_INFINITY {
         return (f64::NEG_INFINITY, 0.0);
     }
@@ -57,7 +65,7 @@ pub fn log_gamma_pq(a: f64, y: f64) -> (f64, f64) {
         let mut term = 1.0;
         let mut sum = 1.0;
         let mut n = 1.0;
-        while n < 1e6 {
+        while n < MAX_TERMS {
             term *= x / (a + n);
             sum += term;
             if term < sum * 1e-17 {
@@ -75,7 +83,7 @@ pub fn log_gamma_pq(a: f64, y: f64) -> (f64, f64) {
         let mut d = 1.0 / b;
         let mut h = d;
         let mut i = 1.0;
-        while i < 1e6 {
+        while i < MAX_TERMS {
             let an = -i * (i - a);
             b += 2.0;
             d = an * d + b;
@@ -130,6 +138,14 @@ mod tests {
             let p = -(-x).exp_m1();
             assert!((lp - p.ln()).abs() <= 1e-12, "x = {x}: {lp}");
         }
+    }
+
+    #[test]
+    fn nan_arguments_return_nan_at_once() {
+        // Regression: a NaN trial point from a line search used to run the continued fraction
+        // to its iteration cap for every record, making one fit take seconds.
+        assert!(log_gamma_pq(2.0, f64::NAN).0.is_nan());
+        assert!(log_gamma_pq(f64::NAN, 0.5).1.is_nan());
     }
 
     #[test]
