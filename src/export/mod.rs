@@ -45,3 +45,5 @@ pub trait Exporter {
     /// The file's bytes.
     fn render(&self, document: &Document) -> Result<Vec<u8>>;
 }
+
+pub mod xlsx;
