@@ -12,6 +12,7 @@ pub mod cli;
 pub mod cmd;
 pub mod curve;
 pub mod discretise;
+pub mod draws;
 pub mod error;
 pub mod export;
 pub mod families;
