@@ -22,6 +22,7 @@ pub mod input;
 pub mod km;
 pub mod numeric;
 pub mod output;
+pub mod progress;
 pub mod units;
 
 pub use error::{Error, Result};
