@@ -18,7 +18,7 @@ const MAX_WIDTH: usize = 60;
 
 /// Writes a [`Document`] as an Excel workbook.
 #[derive(Debug, Clone, Copy, Default)]
-pub struct XlsxExporter;
+pub struct Xlsx;
 
 /// Checks that a table of `rows` data rows and `columns` columns fits on one sheet; the error
 /// names the table, its size and what to do instead. Commands call this before computing.
@@ -131,7 +131,7 @@ fn notes_table(document: &Document) -> Table {
     }
 }
 
-impl Exporter for XlsxExporter {
+impl Exporter for Xlsx {
     fn extension(&self) -> &'static str {
         "xlsx"
     }
@@ -202,7 +202,7 @@ mod tests {
                     .collect(),
             }],
         };
-        let mut book = read_back(XlsxExporter.render(&document).unwrap());
+        let mut book = read_back(Xlsx.render(&document).unwrap());
         assert_eq!(book.sheet_names(), vec!["tunnels", "notes"]);
         let range = book.worksheet_range("tunnels").unwrap();
         assert_eq!(range.get_size(), (numbers.len() + 1, 3));
@@ -238,7 +238,7 @@ mod tests {
                 ]],
             }],
         };
-        let mut book = read_back(XlsxExporter.render(&document).unwrap());
+        let mut book = read_back(Xlsx.render(&document).unwrap());
         let range = book.worksheet_range("t").unwrap();
         assert!(matches!(range.get((1, 0)), None | Some(Data::Empty)));
         assert_eq!(range.get((1, 1)), Some(&Data::String("inf".into())));
