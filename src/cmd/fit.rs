@@ -14,7 +14,7 @@ use std::path::PathBuf;
 /// Options of `fit`.
 #[derive(Debug, Args)]
 #[command(after_help = concat!(
-    "Example:\n  tunnelcast fit data/demo_trial.csv --time-unit days --arm-col arm --json fit.json\n\n",
+    "Example:\n  tunnelcast fit data/demo_trial.csv --time-unit months --arm-col arm --json fit.json\n\n",
     "Caution: extrapolated survival is an assumption, not an observation. Check every extrapolation \
 against clinical opinion and external data. tunnelcast does not replace local HTA guidance or qualified review."
 ))]
