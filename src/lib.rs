@@ -21,6 +21,7 @@ pub mod input;
 pub mod km;
 pub mod numeric;
 pub mod output;
+pub mod plot;
 pub mod units;
 
 pub use error::{Error, Result};
