@@ -29,6 +29,12 @@ pub trait Curve: Send + Sync {
 
     /// One-line description for headers and reports (family, parameters, adjustments).
     fn describe(&self) -> String;
+
+    /// Restricted mean ∫₀^horizon S(t) dt in [`Curve::time_unit`]: adaptive quadrature unless
+    /// the curve knows a closed form (a parametric curve asks its family).
+    fn restricted_mean(&self, horizon: f64) -> f64 {
+        crate::numeric::integrate(|t| self.survival(t), 0.0, horizon, 1e-10)
+    }
 }
 
 /// A fitted or published parametric curve: a family, its natural parameters, and their time unit.
@@ -114,6 +120,9 @@ impl Curve for ParametricCurve {
             params.join(", "),
             self.unit
         )
+    }
+    fn restricted_mean(&self, horizon: f64) -> f64 {
+        self.family.restricted_mean(&self.params, horizon)
     }
 }
 

@@ -94,6 +94,49 @@ pub fn tunnel_table(curve: &dyn Curve, cycle: Duration, count: usize) -> TunnelT
     }
 }
 
+/// Largest number of tunnel states a table may have (a guard against a mistyped `--count`
+/// or a cycle far shorter than intended: a million rows is already beyond any cohort engine).
+pub const MAX_COUNT: usize = 1_000_000;
+
+/// Number of tunnel states that reach `until`: ⌈until / cycle⌉, where a ratio within 1e-9 of a
+/// whole number counts as that number (so "1 year" of "1 month" cycles is 12, not 13).
+/// `Err` when `until` is shorter than one cycle or the count exceeds [`MAX_COUNT`].
+pub fn count_until(cycle: Duration, until: Duration) -> Result<usize, String> {
+    let ratio = until.in_unit(cycle.unit) / cycle.value;
+    let nearest = ratio.round();
+    let count = if (ratio - nearest).abs() <= 1e-9 * nearest.max(1.0) {
+        nearest
+    } else {
+        ratio.ceil()
+    };
+    if ratio < 1.0 - 1e-9 {
+        return Err(format!(
+            "--until {until} is shorter than one cycle ({cycle})"
+        ));
+    }
+    if !count.is_finite() || count > MAX_COUNT as f64 {
+        return Err(format!(
+            "--until {until} needs {count} cycles of {cycle}; at most {MAX_COUNT} tunnel states are allowed"
+        ));
+    }
+    Ok(count as usize)
+}
+
+/// The transition matrix over the tunnel states plus `exit` (last row and column): row k
+/// moves to tunnel k+1 with `p_next` and to exit with `p_exit`; the last tunnel moves to itself
+/// with `p_next`; exit is absorbing. Every row sums to 1.
+pub fn transition_matrix(table: &TunnelTable) -> Vec<Vec<f64>> {
+    let n = table.rows.len();
+    let mut m = vec![vec![0.0; n + 1]; n + 1];
+    for (k, row) in table.rows.iter().enumerate() {
+        let next = if k + 1 < n { k + 1 } else { k };
+        m[k][next] = row.p_next;
+        m[k][n] = row.p_exit;
+    }
+    m[n][n] = 1.0;
+    m
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

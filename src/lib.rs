@@ -17,6 +17,7 @@ pub mod export;
 pub mod families;
 pub mod fit;
 pub mod format;
+pub mod horizon;
 pub mod input;
 pub mod km;
 pub mod numeric;

@@ -1,4 +1,7 @@
 //! One file per command: its argument struct and its `run`.
 
+pub mod curve_args;
 pub mod demo;
 pub mod fit;
+pub mod horizon;
+pub mod tunnels;
