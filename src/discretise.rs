@@ -76,13 +76,21 @@ pub fn tunnel_table(curve: &dyn Curve, cycle: Duration, count: usize) -> TunnelT
             p_exit,
             p_next: 1.0 - p_exit,
         });
-        if let Some(causes) = curve.exit_by_cause(t_start * to_curve, t_end * to_curve) {
-            for (name, p) in causes {
-                let column = format!("p_exit_{name}");
-                match by_cause.iter_mut().find(|(n, _)| *n == column) {
-                    Some((_, values)) => values.push(p),
-                    None => by_cause.push((column, vec![p])),
-                }
+        let (c0, c1) = (t_start * to_curve, t_end * to_curve);
+        let causes = curve.exit_by_cause(c0, c1).unwrap_or_default();
+        let named = causes
+            .into_iter()
+            .map(|(name, p)| (format!("p_exit_{name}"), p))
+            .chain(
+                curve
+                    .cycle_columns(c0, c1)
+                    .into_iter()
+                    .map(|(name, v)| (name.to_string(), v)),
+            );
+        for (column, value) in named {
+            match by_cause.iter_mut().find(|(n, _)| *n == column) {
+                Some((_, values)) => values.push(value),
+                None => by_cause.push((column, vec![value])),
             }
         }
         log_s0 = log_s1;
@@ -314,7 +322,7 @@ mod tests {
 
     #[test]
     fn tails_stay_finite_plateau_to_zero_and_certain_exit_after_zero() {
-        use crate::families::{all, Gompertz};
+        use crate::families::Gompertz;
         // Far tails of every family: no NaN and probabilities in [0, 1], even where survival
         // is far below 1e-300 (p_exit then still comes from log-survival differences).
         let extreme: [(&str, Vec<f64>); 5] = [
@@ -324,8 +332,8 @@ mod tests {
             ("loglogistic", vec![120.0, 1.0]),
             ("gompertz", vec![1.5, 0.5]),
         ];
-        for family in all() {
-            let params = &extreme.iter().find(|(n, _)| *n == family.name()).unwrap().1;
+        for (name, params) in &extreme {
+            let family = crate::families::by_name(name).unwrap();
             let curve = ParametricCurve::new(family, params.clone(), TimeUnit::Months).unwrap();
             let table = tunnel_table(
                 &curve,
