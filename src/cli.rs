@@ -25,6 +25,12 @@ pub enum Command {
     Fit(cmd::fit::FitArgs),
     /// Run the bundled invented example and print its results.
     Demo(cmd::demo::DemoArgs),
+    /// Per-cycle exit probabilities for a chain of tunnel states (long or matrix layout).
+    Tunnels(cmd::tunnels::TunnelsArgs),
+    /// How many tunnel states are enough, and what the cycle length costs in life-years.
+    Horizon(cmd::horizon::HorizonArgs),
+    /// Rebuild patient-level data from a digitised Kaplan–Meier figure (Guyot et al., 2012).
+    Rebuild(cmd::rebuild::RebuildArgs),
 }
 
 /// Runs the parsed command.
@@ -32,5 +38,8 @@ pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Fit(args) => cmd::fit::run(args),
         Command::Demo(args) => cmd::demo::run(args),
+        Command::Tunnels(args) => cmd::tunnels::run(args),
+        Command::Horizon(args) => cmd::horizon::run(args),
+        Command::Rebuild(args) => cmd::rebuild::run(args),
     }
 }

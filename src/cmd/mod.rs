@@ -1,4 +1,8 @@
 //! One file per command: its argument struct and its `run`.
 
+pub mod curve_args;
 pub mod demo;
 pub mod fit;
+pub mod horizon;
+pub mod rebuild;
+pub mod tunnels;

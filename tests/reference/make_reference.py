@@ -13,7 +13,8 @@ What it does
      al., 1994, J Clin Oncol 12:2086-2093), as carried inside the PyPI package `lifelines`
      (version 0.30.3, files `lifelines/datasets/lung.csv` and `gbsg2.csv`). Only the data is
      used: `pip download --no-deps lifelines` and pass the wheel with --lifelines-wheel to
-     re-extract `lung_ncctg.csv` and `gbsg2.csv` here (columns `time`, `event`; days). Without
+     re-extract `lung_ncctg.csv` here (columns `time`, `event`; days; `gbsg2.csv` comes from
+     `scripts/extract_gbsg2.py`). Without
      the option the committed CSV files are read.
   2. Seeded simulated data sets (numpy's PCG64, seeds below), written here as CSV.
   3. Every family fitted by censored maximum likelihood with SciPy: `scipy.stats.CensoredData`
@@ -63,8 +64,8 @@ def extract_lifelines(wheel):
     with zipfile.ZipFile(wheel) as z:
         rows = list(csv.DictReader(z.read("lifelines/datasets/lung.csv").decode().splitlines()))
         write_csv("lung_ncctg.csv", [float(r["time"]) for r in rows], [int(r["status"]) for r in rows])
-        rows = list(csv.DictReader(z.read("lifelines/datasets/gbsg2.csv").decode().splitlines()))
-        write_csv("gbsg2.csv", [float(r["time"]) for r in rows], [int(r["cens"]) for r in rows])
+        # gbsg2.csv (time, event, arm) is shared with the rebuild round trip and extracted by
+        # scripts/extract_gbsg2.py from the same wheel; the arm column is ignored here.
 
 
 def simulate():

@@ -1,0 +1,262 @@
+//! `tunnelcast horizon`: the truncation table (how many tunnel states are enough) and the
+//! within-cycle table (what the cycle length costs in life-years), printed and optionally
+//! written as JSON.
+
+use crate::cmd::curve_args::CurveArgs;
+use crate::cmd::tunnels::parse_duration;
+use crate::discretise::count_until;
+use crate::error::{Error, Result};
+use crate::export::json::MetadataMap;
+use crate::export::number_text;
+use crate::format::sig;
+use crate::horizon::{
+    boundary_log_survival, default_horizon, stable_count, suggested_count, truncation_table,
+    within_cycle_table, TruncationRow, WithinCycleRow, DEFAULT_HORIZON_SURVIVAL,
+    DEFAULT_HORIZON_YEARS, MAX_HORIZON_CYCLES,
+};
+use crate::output;
+use clap::Args;
+use serde::Serialize;
+use std::path::PathBuf;
+
+/// Options of `horizon`.
+#[derive(Debug, Args)]
+#[command(after_help = concat!(
+    "Example:\n",
+    "  tunnelcast horizon --family weibull --param shape=1.2 --param scale=30 --time-unit months --cycle \"1 month\"\n\n",
+    "Caution: extrapolated survival is an assumption, not an observation. Check every extrapolation \
+against clinical opinion and external data. tunnelcast does not replace local HTA guidance or qualified review."
+))]
+pub struct HorizonArgs {
+    #[command(flatten)]
+    pub curve: CurveArgs,
+    /// Cycle length, e.g. "1 month", "28 days"; the tables are in its unit.
+    #[arg(long, value_name = "DURATION", allow_hyphen_values = true)]
+    pub cycle: String,
+    /// Time horizon (default: where survival first falls below 0.001, at most 100 years); rounded up to whole cycles.
+    #[arg(long, value_name = "DURATION", allow_hyphen_values = true)]
+    pub horizon: Option<String>,
+    /// Tolerance for both truncation errors and for the stable-probability criterion.
+    #[arg(long, default_value = "0.001", value_name = "X")]
+    pub tolerance: String,
+    /// Annual discount rate for the discounted life-years, applied as (1 + r)^(-t).
+    #[arg(long, default_value = "0.035", value_name = "RATE")]
+    pub discount: String,
+    /// Write every truncation row and the within-cycle table to this JSON file.
+    #[arg(long, value_name = "FILE")]
+    pub json: Option<PathBuf>,
+    /// Replace an existing output file.
+    #[arg(long)]
+    pub force: bool,
+}
+
+/// The JSON written by `horizon --json`.
+#[derive(Serialize)]
+pub struct HorizonReport<'a> {
+    /// Tool version, curve source and settings, caution.
+    pub metadata: MetadataMap<'a>,
+    /// Time unit of every time and life-year figure.
+    pub time_unit: &'static str,
+    /// Cycle length in `time_unit`.
+    pub cycle: f64,
+    /// Number of whole cycles to the horizon.
+    pub horizon_cycles: usize,
+    /// Horizon in `time_unit` (whole cycles).
+    pub horizon: f64,
+    /// Tolerance used.
+    pub tolerance: f64,
+    /// Annual discount rate used in the within-cycle table.
+    pub discount: f64,
+    /// Smallest count with both truncation errors within the tolerance.
+    pub suggested_count: usize,
+    /// First tunnel after which p_exit changes by at most the tolerance (relative) from one tunnel to the next.
+    pub stable_count: usize,
+    /// One row per candidate count 1..horizon_cycles.
+    pub truncation: &'a [TruncationRow],
+    /// One row per within-cycle method.
+    pub within_cycle: &'a [WithinCycleRow],
+}
+
+fn parse_number(option: &str, text: &str, check: impl Fn(f64) -> bool, what: &str) -> Result<f64> {
+    match text.trim().parse::<f64>() {
+        Ok(x) if x.is_finite() && check(x) => Ok(x),
+        _ => Err(Error::Usage(format!(
+            "{option} {}: must be {what}",
+            text.trim()
+        ))),
+    }
+}
+
+/// Counts shown in the printed truncation table: 1–12, then about 25 spread out, plus the two answers.
+fn shown_counts(n: usize, keep: &[usize]) -> Vec<usize> {
+    let step = (n / 25).max(1);
+    let mut counts: Vec<usize> = (1..=n.min(12)).collect();
+    counts.extend((step..=n).step_by(step).filter(|k| *k > 12));
+    counts.extend(keep.iter().copied().filter(|k| *k <= n));
+    counts.push(n);
+    counts.sort_unstable();
+    counts.dedup();
+    counts
+}
+
+/// Runs `horizon`.
+pub fn run(args: HorizonArgs) -> Result<()> {
+    let cycle = parse_duration("--cycle", &args.cycle)?;
+    let tolerance = parse_number(
+        "--tolerance",
+        &args.tolerance,
+        |x| x > 0.0 && x < 1.0,
+        "a number between 0 and 1",
+    )?;
+    let discount = parse_number(
+        "--discount",
+        &args.discount,
+        |x| (0.0..1.0).contains(&x),
+        "an annual rate from 0 to below 1 (e.g. 0.035)",
+    )?;
+    let given_horizon = match &args.horizon {
+        Some(h) => Some(parse_duration("--horizon", h)?),
+        None => None,
+    };
+    if let Some(path) = &args.json {
+        output::check_writable(path, args.force)?;
+    }
+    let built = args.curve.build()?;
+    for w in &built.warnings {
+        eprintln!("warning: {w}");
+    }
+    let curve = built.curve.as_ref();
+    let unit = cycle.unit;
+    let (n, horizon_note) = match given_horizon {
+        Some(h) => {
+            let n = count_until(cycle, h)
+                .map_err(|e| Error::Usage(e.replace("--until", "--horizon")))?;
+            if n > MAX_HORIZON_CYCLES {
+                return Err(Error::Usage(format!(
+                    "--horizon {h} spans {n} cycles of {cycle}; at most {MAX_HORIZON_CYCLES} are allowed (use a longer cycle)"
+                )));
+            }
+            (n, format!("--horizon {h}"))
+        }
+        None => {
+            let (n, by_threshold) = default_horizon(curve, cycle);
+            let why = if by_threshold {
+                format!("default: survival first falls below {DEFAULT_HORIZON_SURVIVAL}")
+            } else {
+                format!("default: survival stays above {DEFAULT_HORIZON_SURVIVAL} for {DEFAULT_HORIZON_YEARS} years")
+            };
+            (n, why)
+        }
+    };
+    let horizon = n as f64 * cycle.value;
+    let log_s = boundary_log_survival(curve, cycle, n);
+    let truncation = truncation_table(&log_s, cycle.value);
+    let suggested = suggested_count(&truncation, tolerance);
+    let p_exit: Vec<f64> = truncation.iter().map(|r| r.p_exit_last).collect();
+    let stable = stable_count(&p_exit, tolerance);
+    let within = within_cycle_table(curve, cycle, n, discount);
+
+    let mut text = format!(
+        "curve: {}\ncycle: {} {unit}; horizon: {} {unit} = {n} cycles ({horizon_note}); times and life-years in {unit}\n\n",
+        curve.describe(),
+        number_text(cycle.value),
+        number_text(horizon),
+    );
+    text.push_str(&format!(
+        "Truncation (chain cut at K tunnels, the last repeating its probability; tolerance {tolerance}):\n"
+    ));
+    let rows: Vec<Vec<String>> = shown_counts(n, &[suggested, stable])
+        .into_iter()
+        .map(|k| {
+            let r = &truncation[k - 1];
+            let mark = match (k == suggested, k == stable) {
+                (true, true) => "suggested, stable",
+                (true, false) => "suggested",
+                (false, true) => "stable",
+                _ => "",
+            };
+            vec![
+                r.count.to_string(),
+                sig(r.max_surv_gap, 3),
+                sig(r.ly_rel_error, 3),
+                sig(r.p_exit_last, 4),
+                mark.to_string(),
+            ]
+        })
+        .collect();
+    text.push_str(&crate::format::table_aligned(
+        &["count", "max_surv_gap", "ly_rel_error", "p_exit_last", ""],
+        &rows,
+        0,
+    ));
+    text.push_str(&format!(
+        "suggested_count: {suggested} (smallest K with max_surv_gap and ly_rel_error both ≤ {tolerance})\n\
+         stable_count: {stable} (first tunnel after which p_exit changes by ≤ {tolerance} relative from one tunnel to the next)\n\n"
+    ));
+    text.push_str(&format!(
+        "Within-cycle life-years to {} {unit} from survival at cycle boundaries; discounted at {} a year as (1 + r)^(-t) at each boundary:\n",
+        number_text(horizon),
+        discount
+    ));
+    let rows: Vec<Vec<String>> = within
+        .iter()
+        .map(|r| {
+            vec![
+                r.method.name().to_string(),
+                sig(r.life_years, 6),
+                sig(r.exact, 6),
+                sig(r.error, 3),
+                sig(r.rel_error, 3),
+                sig(r.discounted_life_years, 6),
+                sig(r.discounted_exact, 6),
+                sig(r.discounted_error, 3),
+                sig(r.discounted_rel_error, 3),
+            ]
+        })
+        .collect();
+    text.push_str(&crate::format::table(
+        &[
+            "method",
+            "life_years",
+            "exact",
+            "error",
+            "rel_error",
+            "disc_life_years",
+            "disc_exact",
+            "disc_error",
+            "disc_rel_error",
+        ],
+        &rows,
+    ));
+
+    if let Some(path) = &args.json {
+        let mut metadata = vec![("tool_version".to_string(), crate::VERSION.to_string())];
+        metadata.extend(built.metadata.iter().cloned());
+        metadata.push(("horizon_rule".into(), horizon_note.clone()));
+        metadata.push((
+            "cycle".into(),
+            format!("{} {unit}", number_text(cycle.value)),
+        ));
+        metadata.push(("caution".into(), crate::CAUTION.into()));
+        let report = HorizonReport {
+            metadata: MetadataMap(&metadata),
+            time_unit: unit.name(),
+            cycle: cycle.value,
+            horizon_cycles: n,
+            horizon,
+            tolerance,
+            discount,
+            suggested_count: suggested,
+            stable_count: stable,
+            truncation: &truncation,
+            within_cycle: &within,
+        };
+        let mut bytes = serde_json::to_vec_pretty(&report)
+            .map_err(|e| Error::Computation(format!("cannot render JSON: {e}")))?;
+        bytes.push(b'\n');
+        output::write_atomic(path, &bytes)?;
+        text.push_str(&format!("wrote {}\n", path.display()));
+    }
+    output::print(&text);
+    Ok(())
+}

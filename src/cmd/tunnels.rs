@@ -1,0 +1,234 @@
+//! `tunnelcast tunnels`: per-cycle exit probabilities for a chain of tunnel states, printed
+//! as an aligned table or written as CSV/JSON in the long or matrix layout.
+
+use crate::cmd::curve_args::{parse_unit, CurveArgs};
+use crate::discretise::{count_until, tunnel_table, TunnelTable, MAX_COUNT};
+use crate::error::{Error, Result};
+use crate::export::tunnel::{tunnel_document, Layout};
+use crate::export::{exporter_for, number_text};
+use crate::format::sig;
+use crate::output;
+use crate::units::{Duration, TimeUnit};
+use clap::Args;
+use std::path::PathBuf;
+
+/// Options of `tunnels`.
+#[derive(Debug, Args)]
+#[command(after_help = concat!(
+    "Examples:\n",
+    "  tunnelcast tunnels --family weibull --param shape=1.2 --param scale=30 --time-unit months --cycle \"1 month\" --count 24\n",
+    "  tunnelcast tunnels --fit fit.json --family lognormal --arm active --cycle \"4 weeks\" --until \"10 years\" --out tunnels.csv\n\n",
+    "Caution: extrapolated survival is an assumption, not an observation. Check every extrapolation \
+against clinical opinion and external data. tunnelcast does not replace local HTA guidance or qualified review."
+))]
+pub struct TunnelsArgs {
+    #[command(flatten)]
+    pub curve: CurveArgs,
+    /// Cycle length, e.g. "1 month", "28 days", "0.25 years".
+    #[arg(long, value_name = "DURATION", allow_hyphen_values = true)]
+    pub cycle: String,
+    /// Number of tunnel states (the last repeats its own probability for every later cycle).
+    #[arg(
+        long,
+        value_name = "N",
+        allow_hyphen_values = true,
+        conflicts_with = "until",
+        required_unless_present = "until"
+    )]
+    pub count: Option<String>,
+    /// Enough tunnel states to reach this time since entry (rounded up to whole cycles).
+    #[arg(long, value_name = "DURATION", allow_hyphen_values = true)]
+    pub until: Option<String>,
+    /// Time unit of t_start and t_end (default: the cycle's unit).
+    #[arg(long, value_name = "UNIT")]
+    pub table_unit: Option<String>,
+    /// Table layout.
+    #[arg(long, value_enum, default_value = "long")]
+    pub layout: Layout,
+    /// Write the table to this file (format from the extension: .csv, .json).
+    #[arg(long, value_name = "FILE")]
+    pub out: Option<PathBuf>,
+    /// Output format, overriding the extension (csv, json).
+    #[arg(long, value_name = "FORMAT", requires = "out")]
+    pub format: Option<String>,
+    /// Replace an existing output file.
+    #[arg(long)]
+    pub force: bool,
+}
+
+/// Parses a duration option with a one-line error naming the option.
+pub fn parse_duration(option: &str, text: &str) -> Result<Duration> {
+    text.parse()
+        .map_err(|e: String| Error::Usage(format!("{option}: {e}")))
+}
+
+/// Parses `--count`: a whole number from 1 to [`MAX_COUNT`].
+fn parse_count(text: &str) -> Result<usize> {
+    match text.trim().parse::<usize>() {
+        Ok(n) if (1..=MAX_COUNT).contains(&n) => Ok(n),
+        Ok(0) => Err(Error::Usage(
+            "--count 0: at least one tunnel state is needed".into(),
+        )),
+        Ok(n) => Err(Error::Usage(format!(
+            "--count {n}: at most {MAX_COUNT} tunnel states are allowed"
+        ))),
+        Err(_) => Err(Error::Usage(format!(
+            "--count {}: not a whole number of tunnel states (1 or more)",
+            text.trim()
+        ))),
+    }
+}
+
+/// The metadata every tunnel-table output starts with, before the curve's own lines.
+pub fn header(
+    table: &TunnelTable,
+    curve_metadata: &[(String, String)],
+    layout: Layout,
+) -> Vec<(String, String)> {
+    let mut metadata = vec![("tool_version".to_string(), crate::VERSION.to_string())];
+    metadata.extend(curve_metadata.iter().cloned());
+    metadata.extend([
+        ("cycle".to_string(), format!("{} {}", number_text(table.cycle), table.time_unit)),
+        ("time_unit".to_string(), table.time_unit.name().to_string()),
+        ("count".to_string(), table.rows.len().to_string()),
+        ("layout".to_string(), layout.name().to_string()),
+        (
+            "convention".to_string(),
+            "tunnel k covers [(k-1)*cycle, k*cycle) since entry; p_exit = 1 - S(t_end)/S(t_start); the last tunnel repeats its own probability".to_string(),
+        ),
+        ("caution".to_string(), crate::CAUTION.to_string()),
+    ]);
+    metadata
+}
+
+/// The aligned text shown on standard output.
+pub fn render_text(table: &TunnelTable, layout: Layout) -> String {
+    let unit = table.time_unit;
+    let mut out = format!(
+        "curve: {}\ncycle: {} {unit}; {} tunnel states; times in {unit}\n",
+        table.curve,
+        number_text(table.cycle),
+        table.rows.len()
+    );
+    match layout {
+        Layout::Long => {
+            let mut header: Vec<String> = [
+                "tunnel",
+                &format!("t_start ({unit})"),
+                &format!("t_end ({unit})"),
+                "surv_start",
+                "surv_end",
+                "p_exit",
+                "p_next",
+            ]
+            .iter()
+            .map(|s| s.to_string())
+            .collect();
+            header.extend(table.extra.iter().map(|(n, _)| n.clone()));
+            let rows: Vec<Vec<String>> = table
+                .rows
+                .iter()
+                .enumerate()
+                .map(|(i, r)| {
+                    let mut row = vec![
+                        r.tunnel.to_string(),
+                        sig(r.t_start, 6),
+                        sig(r.t_end, 6),
+                        sig(r.surv_start, 6),
+                        sig(r.surv_end, 6),
+                        sig(r.p_exit, 6),
+                        sig(r.p_next, 6),
+                    ];
+                    row.extend(
+                        table
+                            .extra
+                            .iter()
+                            .map(|(_, v)| v.get(i).map_or(String::new(), |x| sig(*x, 6))),
+                    );
+                    row
+                })
+                .collect();
+            let header: Vec<&str> = header.iter().map(String::as_str).collect();
+            out.push_str(&crate::format::table_aligned(&header, &rows, 0));
+        }
+        Layout::Matrix => {
+            let names = crate::export::tunnel::state_names(table.rows.len());
+            let matrix = crate::discretise::transition_matrix(table);
+            let mut header = vec!["from"];
+            header.extend(names.iter().map(String::as_str));
+            let rows: Vec<Vec<String>> = names
+                .iter()
+                .zip(&matrix)
+                .map(|(n, row)| {
+                    let mut cells = vec![n.clone()];
+                    cells.extend(row.iter().map(|p| sig(*p, 6)));
+                    cells
+                })
+                .collect();
+            out.push_str(&crate::format::table_aligned(&header, &rows, 1));
+        }
+    }
+    if let Some(first) = table.rows.iter().find(|r| r.surv_end == 0.0) {
+        out.push_str(&format!(
+            "note: survival falls below the smallest representable number by the end of tunnel {} (shown as 0); p_exit is still computed from log-survival differences, and is 1 only where survival is exactly 0\n",
+            first.tunnel
+        ));
+    }
+    out
+}
+
+/// Runs `tunnels`.
+pub fn run(args: TunnelsArgs) -> Result<()> {
+    let cycle = parse_duration("--cycle", &args.cycle)?;
+    let table_unit: TimeUnit = match &args.table_unit {
+        Some(u) => parse_unit("--table-unit", u)?,
+        None => cycle.unit,
+    };
+    let count = match (&args.count, &args.until) {
+        (Some(c), _) => parse_count(c)?,
+        (None, Some(u)) => {
+            let until = parse_duration("--until", u)?;
+            count_until(cycle, until).map_err(Error::Usage)?
+        }
+        (None, None) => return Err(Error::Usage("give --count N or --until DURATION".into())),
+    };
+    let exporter = match &args.out {
+        Some(path) => {
+            let e = exporter_for(path, args.format.as_deref())?;
+            output::check_writable(path, args.force)?;
+            Some((path, e))
+        }
+        None => None,
+    };
+    let built = args.curve.build()?;
+    for w in &built.warnings {
+        eprintln!("warning: {w}");
+    }
+    let cycle_in_table = Duration {
+        value: cycle.in_unit(table_unit),
+        unit: table_unit,
+    };
+    let table = tunnel_table(built.curve.as_ref(), cycle_in_table, count);
+    match exporter {
+        Some((path, exporter)) => {
+            let document = tunnel_document(
+                &table,
+                args.layout,
+                header(&table, &built.metadata, args.layout),
+            );
+            let bytes = exporter.render(&document)?;
+            output::write_atomic(path, &bytes)?;
+            output::print(&format!(
+                "wrote {} ({} tunnel states of {} {}, {} layout, {})\n",
+                path.display(),
+                table.rows.len(),
+                number_text(table.cycle),
+                table.time_unit,
+                args.layout.name(),
+                exporter.extension()
+            ));
+        }
+        None => output::print(&render_text(&table, args.layout)),
+    }
+    Ok(())
+}

@@ -1,0 +1,116 @@
+//! The generic piece every format shares: a [`TunnelTable`] turned into a [`Document`] table
+//! in the long or the matrix layout (interface column names), so a format adds only what is
+//! its own.
+
+use super::{Cell, Document, Table};
+use crate::discretise::{transition_matrix, TunnelTable};
+
+/// Layout of an exported tunnel table.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum Layout {
+    /// One row per tunnel state: `tunnel`, `t_start`, `t_end`, `surv_start`, `surv_end`,
+    /// `p_exit`, `p_next`, then any extra columns.
+    Long,
+    /// Square transition matrix over the tunnel states plus `exit`; rows sum to 1.
+    Matrix,
+}
+
+impl Layout {
+    /// Name as written on the command line and in headers.
+    pub fn name(self) -> &'static str {
+        match self {
+            Layout::Long => "long",
+            Layout::Matrix => "matrix",
+        }
+    }
+}
+
+/// The long layout: interface columns in order, then the extra columns.
+pub fn long_table(table: &TunnelTable) -> Table {
+    let mut columns: Vec<String> = [
+        "tunnel",
+        "t_start",
+        "t_end",
+        "surv_start",
+        "surv_end",
+        "p_exit",
+        "p_next",
+    ]
+    .iter()
+    .map(|s| s.to_string())
+    .collect();
+    columns.extend(table.extra.iter().map(|(name, _)| name.clone()));
+    let rows = table
+        .rows
+        .iter()
+        .enumerate()
+        .map(|(i, r)| {
+            let mut row = vec![
+                Cell::Int(r.tunnel as i64),
+                Cell::Number(r.t_start),
+                Cell::Number(r.t_end),
+                Cell::Number(r.surv_start),
+                Cell::Number(r.surv_end),
+                Cell::Number(r.p_exit),
+                Cell::Number(r.p_next),
+            ];
+            row.extend(
+                table
+                    .extra
+                    .iter()
+                    .map(|(_, values)| values.get(i).map_or(Cell::Missing, |v| Cell::Number(*v))),
+            );
+            row
+        })
+        .collect();
+    Table {
+        name: "tunnels".into(),
+        columns,
+        rows,
+    }
+}
+
+/// Names of the matrix states: `tunnel_1` … `tunnel_N`, then `exit`.
+pub fn state_names(count: usize) -> Vec<String> {
+    let mut names: Vec<String> = (1..=count).map(|k| format!("tunnel_{k}")).collect();
+    names.push("exit".into());
+    names
+}
+
+/// The matrix layout: a `from` column naming the state, then one column per destination state.
+pub fn matrix_table(table: &TunnelTable) -> Table {
+    let names = state_names(table.rows.len());
+    let matrix = transition_matrix(table);
+    let mut columns = vec!["from".to_string()];
+    columns.extend(names.iter().cloned());
+    let rows = names
+        .iter()
+        .zip(&matrix)
+        .map(|(name, row)| {
+            let mut cells = vec![Cell::Text(name.clone())];
+            cells.extend(row.iter().map(|p| Cell::Number(*p)));
+            cells
+        })
+        .collect();
+    Table {
+        name: "matrix".into(),
+        columns,
+        rows,
+    }
+}
+
+/// A document holding `table` in `layout`, with `metadata` as its header block.
+pub fn tunnel_document(
+    table: &TunnelTable,
+    layout: Layout,
+    metadata: Vec<(String, String)>,
+) -> Document {
+    let main = match layout {
+        Layout::Long => long_table(table),
+        Layout::Matrix => matrix_table(table),
+    };
+    Document {
+        metadata,
+        tables: vec![main],
+    }
+}
