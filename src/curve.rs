@@ -27,6 +27,12 @@ pub trait Curve: Send + Sync {
         None
     }
 
+    /// Extra per-cycle values the curve reports beside its probabilities over [t0, t1), by column
+    /// name (e.g. the share of the cycle in which a background-mortality floor binds). Empty by default.
+    fn cycle_columns(&self, _t0: f64, _t1: f64) -> Vec<(&'static str, f64)> {
+        Vec::new()
+    }
+
     /// One-line description for headers and reports (family, parameters, adjustments).
     fn describe(&self) -> String;
 

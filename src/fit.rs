@@ -360,8 +360,11 @@ fn newton_polish(family: &dyn Family, data: &FitData, mut theta: Vec<f64>) -> Ve
                 .zip(&step)
                 .map(|(t, s)| t + scale * s)
                 .collect();
-            let (trial_ll, _) = family.loglik_grad(&trial, data);
-            if trial_ll.is_finite() && trial_ll >= ll {
+            let (trial_ll, trial_grad) = family.loglik_grad(&trial, data);
+            // At the optimum the log-likelihood is flat to rounding, so a step that shrinks the
+            // gradient without lowering the log-likelihood beyond rounding also counts.
+            let flat = trial_ll >= ll - 1e-13 * ll.abs() && max_abs(&trial_grad) < max_abs(&grad);
+            if trial_ll.is_finite() && (trial_ll >= ll || flat) {
                 theta = trial;
                 ll = trial_ll;
                 improved = true;
@@ -478,7 +481,48 @@ pub fn fit_family(family: &dyn Family, data: &FitData, arm: Option<&str>) -> Fam
         ));
     }
     fit.converged = covariance.is_some() && gradient_ok && params_ok;
+    keep_finite(&mut fit);
     fit
+}
+
+/// Drops non-finite numbers from a fit (JSON has no NaN or infinity, and a `null` where a
+/// number is expected would make the fit file unreadable); a fit that loses any is not converged.
+fn keep_finite(fit: &mut FamilyFit) {
+    let finite = |x: &f64| x.is_finite();
+    let mut lost = false;
+    let before = fit.params.len();
+    fit.params.retain(|_, v| v.is_finite());
+    lost |= fit.params.len() != before;
+    if !fit.estimates.iter().all(finite) {
+        fit.estimates.clear();
+        lost = true;
+    }
+    fit.intervals
+        .retain(|_, [a, b]| a.is_finite() && b.is_finite());
+    if fit
+        .covariance
+        .as_ref()
+        .is_some_and(|c| !c.matrix.iter().flatten().all(finite))
+    {
+        fit.covariance = None;
+        lost = true;
+    }
+    for value in [
+        &mut fit.loglik,
+        &mut fit.aic,
+        &mut fit.bic,
+        &mut fit.median,
+        &mut fit.gradient_max,
+    ] {
+        *value = value.filter(finite);
+    }
+    if lost && fit.converged {
+        fit.converged = false;
+    }
+    if lost && fit.message.is_none() {
+        fit.message =
+            Some("an estimate is not a finite number (over- or underflow at extreme times)".into());
+    }
 }
 
 fn describe(family: &dyn Family, theta: &[f64]) -> String {
@@ -814,6 +858,43 @@ mod tests {
                 );
             }
         }
+    }
+
+    #[test]
+    fn families_running_to_a_boundary_are_reported_while_others_fit() {
+        // Every subject has its event at the same time: the likelihood of every two-parameter
+        // family grows without bound as the curve sharpens into a step (shape → ∞ or
+        // sigma → 0), while the exponential has its closed-form estimate 8 events / 40 days.
+        let recs = records(&[(5.0, true); 8]);
+        let fits = fit_arm(&families::STANDARD, &recs, None);
+        assert_eq!(fits.len(), 5);
+        assert_eq!(fits[0].family, "exponential");
+        assert!(fits[0].converged);
+        assert!((fits[0].params["rate"] - 0.2).abs() < 1e-12);
+        assert_eq!(fits[0].delta_aic, Some(0.0));
+        for fit in &fits[1..] {
+            assert!(!fit.converged, "{} converged", fit.family);
+            let message = fit.message.as_deref().unwrap_or_default();
+            assert!(!message.is_empty(), "{}: no reason given", fit.family);
+        }
+    }
+
+    #[test]
+    fn gompertz_running_away_is_reported() {
+        // All events come after every censoring, at the last time: the Gompertz hazard can
+        // concentrate there without limit (shape → ∞); the fit must say so.
+        let recs = records(&[
+            (1.0, false),
+            (2.0, false),
+            (3.0, false),
+            (4.0, false),
+            (10.0, true),
+            (10.0, true),
+        ]);
+        let data = FitData::from_records(&recs);
+        let fit = fit_family(families::by_name("gompertz").unwrap(), &data, None);
+        assert!(!fit.converged);
+        assert!(fit.message.is_some());
     }
 
     #[test]
