@@ -283,6 +283,9 @@ impl Curve for AdjustedCurve {
     fn describe(&self) -> String {
         self.inner().describe()
     }
+    fn restricted_mean(&self, horizon: f64) -> f64 {
+        self.inner().restricted_mean(horizon)
+    }
 }
 
 /// Checks `adjustments`, reads the life table if any, and builds the adjusted curve.
