@@ -322,13 +322,13 @@ pub fn build(
         curve = match adjustments.waning {
             Some(w) => {
                 metadata.push(("waning".into(), w.to_string()));
-                Box::new(WaningCurve {
-                    base: curve,
+                Box::new(WaningCurve::new(
+                    curve,
                     ratio,
-                    start: w.start.in_unit(unit),
-                    end: w.end.in_unit(unit),
-                    label: w.to_string(),
-                })
+                    w.start.in_unit(unit),
+                    w.end.in_unit(unit),
+                    w.to_string(),
+                ))
             }
             None => Box::new(HazardRatioCurve { base: curve, ratio }),
         };
