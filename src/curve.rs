@@ -120,11 +120,11 @@ impl ParametricCurve {
 
     /// The same curve with time measured in `unit` (parameters rescaled exactly, not the time grid).
     pub fn in_unit(&self, unit: TimeUnit) -> ParametricCurve {
+        let factor = self.unit.factor_to(unit);
         ParametricCurve {
-            family: self.family,
-            params: self
-                .family
-                .rescale_time(&self.params, self.unit.factor_to(unit)),
+            // Families with time-valued settings (cut points, knots) move them too.
+            family: self.family.rescaled_family(factor).unwrap_or(self.family),
+            params: self.family.rescale_time(&self.params, factor),
             unit,
         }
     }
