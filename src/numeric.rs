@@ -241,6 +241,19 @@ fn gauss_kronrod(f: &impl Fn(f64) -> f64, a: f64, b: f64) -> (f64, f64) {
 
 /// Adaptive Gauss–Kronrod integral of `f` over [a, b] to absolute-or-relative tolerance `tol`.
 pub fn integrate(f: impl Fn(f64) -> f64, a: f64, b: f64, tol: f64) -> f64 {
+    integrate_with_floor(f, a, b, tol, 0.0)
+}
+
+/// As [`integrate`], but a piece is also accepted once its error estimate is within its share
+/// of `absolute` (for integrands that vanish at an end, where a purely relative test chases
+/// rounding noise).
+pub fn integrate_with_floor(
+    f: impl Fn(f64) -> f64,
+    a: f64,
+    b: f64,
+    tol: f64,
+    absolute: f64,
+) -> f64 {
     if b <= a {
         return 0.0;
     }
@@ -251,6 +264,7 @@ pub fn integrate(f: impl Fn(f64) -> f64, a: f64, b: f64, tol: f64) -> f64 {
         let width_share = (hi - lo) / (b - a);
         let scale = value.abs().max(1e-300);
         if error <= tol * width_share.max(1e-3) * scale.max(tol)
+            || error <= absolute * width_share
             || error <= 1e-15 * scale
             || pieces > 20_000
             || hi - lo < 1e-12 * (b - a)

@@ -218,14 +218,16 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
         value: cycle.in_unit(table_unit),
         unit: table_unit,
     };
+    let cycle_in_curve = cycle.in_unit(built.curve.time_unit());
+    built.check_horizon(count as f64 * cycle_in_curve)?;
     let table = tunnel_table(built.curve.as_ref(), cycle_in_table, count);
+    let mut metadata = built.metadata.clone();
+    let floor = built.floor_report(cycle_in_curve, count);
+    metadata.extend(floor.iter().cloned());
     match exporter {
         Some((path, exporter)) => {
-            let document = tunnel_document(
-                &table,
-                args.layout,
-                header(&table, &built.metadata, args.layout),
-            );
+            let document =
+                tunnel_document(&table, args.layout, header(&table, &metadata, args.layout));
             let bytes = exporter.render(&document)?;
             output::write_atomic(path, &bytes)?;
             output::print(&format!(
@@ -238,7 +240,13 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
                 exporter.extension()
             ));
         }
-        None => output::print(&render_text(&table, args.layout)),
+        None => {
+            let mut text = render_text(&table, args.layout);
+            for (key, value) in &floor {
+                text.push_str(&format!("{}: {value}\n", key.replace('_', " ")));
+            }
+            output::print(&text)
+        }
     }
     Ok(())
 }
