@@ -407,6 +407,10 @@ pub fn run(args: RebuildArgs) -> Result<()> {
         "\nwrote {} (time in the figure's unit; pass it to `tunnelcast fit` with --time-unit)\n",
         args.out.display()
     ));
+    text.push_str(
+        "caution: rebuilt data approximate the trial's; when patients were censored within each \
+         interval is assumed, not known. See docs/rebuild.md.\n",
+    );
     output::print(&text);
     Ok(())
 }

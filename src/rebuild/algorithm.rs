@@ -152,6 +152,11 @@ fn pass(
 /// at time 0 when only the number of patients is known). `total_events` is used in the last
 /// interval. Errors only when `total_events` cannot be met.
 pub fn rebuild(points: &[Point], risk: &[RiskRow], total_events: Option<u64>) -> Result<Rebuilt> {
+    if points.len() < 2 || risk.is_empty() || risk[0].time != 0.0 {
+        return Err(Error::Computation(
+            "rebuild needs at least two cleaned points and a risk table starting at time 0".into(),
+        ));
+    }
     let last_time = points.last().map(|p| p.time).unwrap_or(0.0);
     let mut records = Vec::new();
     let mut intervals = Vec::new();
