@@ -551,4 +551,18 @@ mod tests {
             .to_string();
         assert!(err.starts_with("r.csv line 4 column 2"), "{err}");
     }
+
+    proptest::proptest! {
+        #[test]
+        fn arbitrary_files_never_panic(
+            rows in proptest::collection::vec(("[-0-9.e]{0,6}", "[-0-9.%]{0,6}", "[ab]?"), 0..30)
+        ) {
+            let mut text = String::from("time,survival,at_risk,arm\n");
+            for (a, b, c) in &rows {
+                text.push_str(&format!("{a},{b},{b},{c}\n"));
+            }
+            let _ = read_curves("c.csv", text.as_bytes(), Some("arm"));
+            let _ = read_risk_tables("r.csv", text.as_bytes(), None);
+        }
+    }
 }
