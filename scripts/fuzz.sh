@@ -25,18 +25,20 @@ if ! cargo +nightly fuzz --version >/dev/null 2>&1; then
 fi
 
 status=0
-printf '| target | seconds | executions | crashes |\n|---|---|---|---|\n'
+printf '| target | seconds run | executions | crashes |\n|---|---|---|---|\n'
 for target in $TARGETS; do
     mkdir -p "corpus/$target" "seeds/$target" "artifacts/$target"
     log=$(mktemp)
     before=$(find "artifacts/$target" -type f | wc -l)
+    started=$(date +%s)
     # New interesting inputs go to the first folder (the corpus); seeds are only read.
     cargo +nightly fuzz run "$target" "corpus/$target" "seeds/$target" -- \
         -max_total_time="$SECONDS_EACH" -rss_limit_mb=2048 -timeout=20 -print_final_stats=1 \
         >"$log" 2>&1 || status=1
+    elapsed=$(($(date +%s) - started))
     runs=$(awk '/stat::number_of_executed_units/ {print $2}' "$log" | tail -1)
     after=$(find "artifacts/$target" -type f | wc -l)
-    printf '| %s | %s | %s | %s |\n' "$target" "$SECONDS_EACH" "${runs:-?}" "$((after - before))"
+    printf '| %s | %s | %s | %s |\n' "$target" "$elapsed" "${runs:-?}" "$((after - before))"
     if grep -q "ERROR: libFuzzer\|panicked at" "$log"; then
         grep -m3 "panicked at\|ERROR" "$log" >&2
     fi

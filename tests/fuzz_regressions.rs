@@ -1,7 +1,7 @@
-//! Replays the committed fuzz seeds and corpus (`fuzz/seeds/`, `fuzz/corpus/<target>/`) and every input a fuzzer ever
-//! crashed on (`fuzz/regressions/<target>/`) through the same invariant checks the fuzz targets
-//! use (`tests/invariants/mod.rs`), so the normal `cargo test --release` guards against their
-//! return without a nightly toolchain.
+//! Replays the committed fuzz seeds and corpus (`fuzz/seeds/<target>/`, `fuzz/corpus/<target>/`)
+//! and every input a fuzzer ever crashed on (`fuzz/regressions/<target>/`) through the same
+//! invariant checks the fuzz targets use (`tests/invariants/mod.rs`), so the normal
+//! `cargo test --release` guards against their return without a nightly toolchain.
 
 mod invariants;
 

@@ -95,7 +95,8 @@ pub fn duration(bytes: &[u8]) {
         }
         Err(message) => {
             assert!(!message.is_empty());
-            assert!(!message.contains('\n'), "{message:?}");
+            assert!(!message.chars().any(char::is_control), "{message:?}");
+            assert!(message.len() <= LONGEST_MESSAGE, "{} bytes", message.len());
         }
     }
 }
