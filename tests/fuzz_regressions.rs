@@ -48,23 +48,28 @@ fn duration_corpus_and_regressions_keep_the_invariants() {
 }
 
 #[test]
-fn fit_small_regressions_keep_the_invariants() {
-    // Only the crash cases: the fit corpus is large and each input runs five fits.
-    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fuzz/regressions/fit_small");
-    let Ok(entries) = std::fs::read_dir(root) else {
-        return;
-    };
-    for path in entries.map(|e| e.unwrap().path()) {
-        let bytes = std::fs::read(&path).unwrap();
-        if let Some(data) = invariants::time_to_event_csv(&bytes) {
-            for arm in &data.arms {
-                let fits = tunnelcast::fit::fit_arm(
-                    &tunnelcast::families::STANDARD,
-                    &arm.records,
-                    arm.arm.as_deref(),
-                );
-                fits.iter().for_each(invariants::check_fit);
+fn fit_small_seeds_and_regressions_keep_the_invariants() {
+    // Seeds and crash cases only: the minimised fit corpus is large and each input runs five fits.
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fuzz");
+    let mut n = 0;
+    for folder in ["seeds", "regressions"] {
+        let Ok(entries) = std::fs::read_dir(root.join(folder).join("fit_small")) else {
+            continue;
+        };
+        for path in entries.map(|e| e.unwrap().path()) {
+            let bytes = std::fs::read(&path).unwrap();
+            n += 1;
+            if let Some(data) = invariants::time_to_event_csv(&bytes) {
+                for arm in &data.arms {
+                    let fits = tunnelcast::fit::fit_arm(
+                        &tunnelcast::families::STANDARD,
+                        &arm.records,
+                        arm.arm.as_deref(),
+                    );
+                    fits.iter().for_each(invariants::check_fit);
+                }
             }
         }
     }
+    assert!(n >= 5, "only {n} inputs: are the seeds committed?");
 }
