@@ -62,7 +62,7 @@ pub fn parse_duration(option: &str, text: &str) -> Result<Duration> {
 }
 
 /// Parses `--count`: a whole number from 1 to [`MAX_COUNT`].
-fn parse_count(text: &str) -> Result<usize> {
+pub fn parse_count(text: &str) -> Result<usize> {
     match text.trim().parse::<usize>() {
         Ok(n) if (1..=MAX_COUNT).contains(&n) => Ok(n),
         Ok(0) => Err(Error::Usage(
