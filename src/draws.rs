@@ -406,6 +406,7 @@ mod tests {
             median: None,
             gradient_max: None,
             message: None,
+            settings: None,
         }
     }
 

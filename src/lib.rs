@@ -8,6 +8,7 @@
 // Matrix and grid code reads more plainly with index loops.
 #![allow(clippy::needless_range_loop)]
 
+pub mod adjust;
 pub mod cli;
 pub mod cmd;
 pub mod curve;
@@ -24,6 +25,7 @@ pub mod km;
 pub mod numeric;
 pub mod output;
 pub mod progress;
+pub mod rebuild;
 pub mod units;
 
 pub use error::{Error, Result};

@@ -5,4 +5,5 @@ pub mod demo;
 pub mod draws;
 pub mod fit;
 pub mod horizon;
+pub mod rebuild;
 pub mod tunnels;
