@@ -307,6 +307,10 @@ fn tunnels_xlsx_matrix_pushes_the_cohort_to_the_long_layout_survival() {
     let long = long.worksheet_range("tunnels").unwrap();
     let surv_end: Vec<f64> = long.rows().skip(1).map(|r| number(&r[4])).collect();
     let mut matrix: Xlsx<_> = calamine::open_workbook(d.join("matrix.xlsx")).unwrap();
+    assert_eq!(
+        matrix.sheet_names(),
+        ["matrix", "tunnels", "parameters", "notes"]
+    );
     let matrix = matrix.worksheet_range("matrix").unwrap();
     let m: Vec<Vec<f64>> = matrix
         .rows()
@@ -330,6 +334,46 @@ fn tunnels_xlsx_matrix_pushes_the_cohort_to_the_long_layout_survival() {
         let alive: f64 = cohort[..30].iter().sum();
         assert!((alive - expected).abs() < 1e-12, "cycle {}", k + 1);
     }
+}
+
+#[test]
+fn tunnels_xlsx_from_a_fit_file_holds_the_fit_comparison() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    write_fit(d);
+    tunnelcast(d)
+        .args([
+            "tunnels",
+            "--fit",
+            "fit.json",
+            "--family",
+            "lognormal",
+            "--arm",
+            "south",
+        ])
+        .args(["--cycle", "1 month", "--count", "12", "--out", "t.xlsx"])
+        .assert()
+        .success();
+    let mut book: Xlsx<_> = calamine::open_workbook(d.join("t.xlsx")).unwrap();
+    assert_eq!(
+        book.sheet_names(),
+        ["tunnels", "matrix", "parameters", "fit_comparison", "notes"]
+    );
+    let file = FitFile::load(&d.join("fit.json")).unwrap();
+    let sheet = book.worksheet_range("fit_comparison").unwrap();
+    let south: Vec<_> = file
+        .fits
+        .iter()
+        .filter(|f| f.arm.as_deref() == Some("south"))
+        .collect();
+    assert_eq!(sheet.height(), south.len() + 1);
+    for (row, fit) in sheet.rows().skip(1).zip(south) {
+        assert_eq!(row[0], Data::String(fit.family.clone()));
+        assert_eq!(row[4], Data::Float(fit.aic.unwrap()));
+    }
+    let params = book.worksheet_range("parameters").unwrap();
+    let fit = file.find("lognormal", Some("south")).unwrap();
+    assert_eq!(params.get((2, 1)), Some(&Data::Float(fit.params["mu"])));
 }
 
 #[test]
