@@ -90,10 +90,22 @@ pub struct CurveArgs {
     pub beyond_table: Option<String>,
 }
 
+/// Turns a parametric curve into the curve downstream code works on, applying the command's
+/// adjustments; built once (e.g. with a life table loaded) and applied to the point estimate and
+/// to every uncertainty draw alike.
+pub type Wrap = std::sync::Arc<dyn Fn(ParametricCurve) -> Box<dyn Curve> + Send + Sync>;
+
+/// The wrap of a command without adjustments: the parametric curve itself.
+pub fn no_adjustment() -> Wrap {
+    std::sync::Arc::new(|base: ParametricCurve| Box::new(base) as Box<dyn Curve>)
+}
+
 /// A curve ready for use, with what every output header says about it.
 pub struct BuiltCurve {
-    /// The curve downstream code works on (adjustments wrap it).
+    /// The curve downstream code works on: `wrap(base)`.
     pub curve: Box<dyn Curve>,
+    /// The adjustments, as a function of the parametric curve (used again for each draw).
+    pub wrap: Wrap,
     /// The parametric curve before any adjustment (for draws and parameter listings).
     pub base: ParametricCurve,
     /// The fit it came from, when it came from a fit file (covariance for draws).
@@ -346,8 +358,10 @@ impl CurveArgs {
         if let Some(arm) = &fit.arm {
             metadata.push(("arm".into(), arm.clone()));
         }
+        let wrap = no_adjustment();
         Ok(BuiltCurve {
-            curve: Box::new(base.clone()),
+            curve: wrap(base.clone()),
+            wrap,
             base,
             fit: Some(fit),
             metadata,
@@ -425,8 +439,10 @@ impl CurveArgs {
         let params: Vec<f64> = values.into_iter().flatten().collect();
         let base = ParametricCurve::new(family, params, unit)
             .map_err(|e| Error::Usage(format!("--param: {e}")))?;
+        let wrap = no_adjustment();
         Ok(BuiltCurve {
-            curve: Box::new(base.clone()),
+            curve: wrap(base.clone()),
+            wrap,
             base,
             fit: None,
             metadata: vec![("source".into(), "published parameters".into())],

@@ -4,8 +4,8 @@
 use crate::cmd::curve_args::{parse_unit, CurveArgs};
 use crate::discretise::{count_until, tunnel_table, TunnelTable, MAX_COUNT};
 use crate::error::{Error, Result};
-use crate::export::tunnel::{tunnel_document, Layout};
-use crate::export::{exporter_for, number_text};
+use crate::export::tunnel::{long_table, matrix_table, tunnel_document, Layout};
+use crate::export::{exporter_for, number_text, Cell, Table};
 use crate::format::sig;
 use crate::output;
 use crate::units::{Duration, TimeUnit};
@@ -63,7 +63,7 @@ pub fn parse_duration(option: &str, text: &str) -> Result<Duration> {
 }
 
 /// Parses `--count`: a whole number from 1 to [`MAX_COUNT`].
-fn parse_count(text: &str) -> Result<usize> {
+pub fn parse_count(text: &str) -> Result<usize> {
     match text.trim().parse::<usize>() {
         Ok(n) if (1..=MAX_COUNT).contains(&n) => Ok(n),
         Ok(0) => Err(Error::Usage(
@@ -187,6 +187,99 @@ pub fn render_text(table: &TunnelTable, layout: Layout) -> String {
     out
 }
 
+/// The extra tables of a several-table format (XLSX): the other layout, the parameters and
+/// settings, and the comparison of the fits of the same arm when the curve came from a fit file.
+fn workbook_tables(
+    table: &TunnelTable,
+    layout: Layout,
+    built: &crate::cmd::curve_args::BuiltCurve,
+    curve: &CurveArgs,
+) -> Result<Vec<Table>> {
+    let other = match layout {
+        Layout::Long => matrix_table(table),
+        Layout::Matrix => long_table(table),
+    };
+    let text = |s: &str| Cell::Text(s.to_string());
+    let family = built.base.family;
+    let mut rows = vec![vec![text("family"), text(family.name()), Cell::Missing]];
+    for (name, value) in family.param_names().iter().zip(&built.base.params) {
+        rows.push(vec![
+            text(name),
+            Cell::Number(*value),
+            text(built.base.unit.name()),
+        ]);
+    }
+    rows.push(vec![
+        text("cycle"),
+        Cell::Number(table.cycle),
+        text(table.time_unit.name()),
+    ]);
+    rows.push(vec![
+        text("count"),
+        Cell::Int(table.rows.len() as i64),
+        text("tunnel states"),
+    ]);
+    rows.push(vec![
+        text("curve"),
+        Cell::Text(table.curve.clone()),
+        Cell::Missing,
+    ]);
+    let mut tables = vec![
+        other,
+        Table {
+            name: "parameters".into(),
+            columns: vec!["item".into(), "value".into(), "unit".into()],
+            rows,
+        },
+    ];
+    if let (Some(path), Some(fit)) = (&curve.fit, &built.fit) {
+        let file = crate::fit::FitFile::load(path)?;
+        let number = |x: Option<f64>| x.map_or(Cell::Missing, Cell::Number);
+        let rows = file
+            .fits
+            .iter()
+            .filter(|f| f.arm == fit.arm)
+            .map(|f| {
+                let params: Vec<String> = f
+                    .params
+                    .iter()
+                    .map(|(n, v)| format!("{n}={}", number_text(*v)))
+                    .collect();
+                vec![
+                    Cell::Text(f.family.clone()),
+                    f.arm.clone().map_or(Cell::Missing, Cell::Text),
+                    Cell::Text(if f.converged { "yes" } else { "no" }.into()),
+                    number(f.loglik),
+                    number(f.aic),
+                    number(f.bic),
+                    number(f.delta_aic),
+                    number(f.median),
+                    Cell::Text(params.join(", ")),
+                ]
+            })
+            .collect();
+        tables.push(Table {
+            name: "fit_comparison".into(),
+            columns: [
+                "family",
+                "arm",
+                "converged",
+                "loglik",
+                "aic",
+                "bic",
+                "delta_aic",
+                &format!("median ({})", file.data.time_unit),
+                "parameters",
+            ]
+            .iter()
+            .map(|s| s.to_string())
+            .collect(),
+            rows,
+        });
+    }
+    Ok(tables)
+}
+
 /// Runs `tunnels`.
 pub fn run(args: TunnelsArgs) -> Result<()> {
     let cycle = parse_duration("--cycle", &args.cycle)?;
@@ -226,8 +319,13 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
     metadata.extend(floor.iter().cloned());
     match exporter {
         Some((path, exporter)) => {
-            let document =
+            let mut document =
                 tunnel_document(&table, args.layout, header(&table, &metadata, args.layout));
+            if exporter.holds_several_tables() {
+                document
+                    .tables
+                    .extend(workbook_tables(&table, args.layout, &built, &args.curve)?);
+            }
             let bytes = exporter.render(&document)?;
             output::write_atomic(path, &bytes)?;
             output::print(&format!(
