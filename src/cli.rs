@@ -29,6 +29,8 @@ pub enum Command {
     Tunnels(cmd::tunnels::TunnelsArgs),
     /// How many tunnel states are enough, and what the cycle length costs in life-years.
     Horizon(cmd::horizon::HorizonArgs),
+    /// Run a whole analysis described in a TOML file: fits, tables, plots and report.html.
+    Run(cmd::run::RunArgs),
 }
 
 /// Runs the parsed command.
@@ -38,5 +40,6 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Demo(args) => cmd::demo::run(args),
         Command::Tunnels(args) => cmd::tunnels::run(args),
         Command::Horizon(args) => cmd::horizon::run(args),
+        Command::Run(args) => cmd::run::run(args),
     }
 }

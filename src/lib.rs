@@ -8,6 +8,7 @@
 // Matrix and grid code reads more plainly with index loops.
 #![allow(clippy::needless_range_loop)]
 
+pub mod analysis;
 pub mod cli;
 pub mod cmd;
 pub mod curve;
@@ -23,6 +24,7 @@ pub mod km;
 pub mod numeric;
 pub mod output;
 pub mod plot;
+pub mod report;
 pub mod units;
 
 pub use error::{Error, Result};

@@ -4,4 +4,5 @@ pub mod curve_args;
 pub mod demo;
 pub mod fit;
 pub mod horizon;
+pub mod run;
 pub mod tunnels;
