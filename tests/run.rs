@@ -228,7 +228,7 @@ fn run_writes_every_output_and_the_report_matches_the_json() {
 fn rerun_writes_byte_identical_tables_and_needs_force() {
     let dir = tempfile::tempdir().unwrap();
     setup(dir.path(), |a| {
-        a.replace("horizon = \"40 years\"", "horizon = \"10 years\"")
+        a.replace("horizon = \"20 years\"", "horizon = \"10 years\"")
     });
     tunnelcast(dir.path())
         .args(["run", "analysis.toml", "--out", "a"])
