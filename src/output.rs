@@ -37,23 +37,39 @@ fn parent_dir(path: &Path) -> PathBuf {
 
 /// Writes `bytes` to `path` through a temporary file in the same folder and a rename.
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
+    write_atomic_with(path, |out| {
+        out.write_all(bytes)
+            .map_err(|e| Error::output(path, format!("cannot write: {e}")))
+    })
+}
+
+/// Streams a file into place: `fill` writes to a buffered temporary file beside `path`, which
+/// is renamed to `path` only when `fill` succeeds; on any error (including an interruption
+/// reported by `fill`) the temporary file is removed and `fill`'s error returned. For outputs
+/// too large to hold in memory.
+pub fn write_atomic_with(
+    path: &Path,
+    fill: impl FnOnce(&mut dyn Write) -> Result<()>,
+) -> Result<()> {
     let parent = parent_dir(path);
     let name = path
         .file_name()
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_else(|| "output".into());
     let tmp = parent.join(format!(".{name}.tmp-{}", std::process::id()));
-    let result = (|| -> std::io::Result<()> {
-        let mut file = std::fs::File::create(&tmp)?;
-        file.write_all(bytes)?;
-        file.sync_all()?;
-        std::fs::rename(&tmp, path)
+    let io_error = |e: std::io::Error| Error::output(path, format!("cannot write: {e}"));
+    let result = (|| -> Result<()> {
+        let file = std::fs::File::create(&tmp).map_err(io_error)?;
+        let mut out = std::io::BufWriter::with_capacity(1 << 20, file);
+        fill(&mut out)?;
+        let file = out.into_inner().map_err(|e| io_error(e.into_error()))?;
+        file.sync_all().map_err(io_error)?;
+        std::fs::rename(&tmp, path).map_err(io_error)
     })();
-    if let Err(e) = result {
+    if result.is_err() {
         let _ = std::fs::remove_file(&tmp);
-        return Err(Error::output(path, format!("cannot write: {e}")));
     }
-    Ok(())
+    result
 }
 
 /// Checks that an output folder may be filled: it does not exist, or is empty, or `force` is
@@ -196,6 +212,18 @@ mod tests {
             .map(|e| e.unwrap().file_name())
             .collect();
         assert_eq!(names, vec![std::ffi::OsString::from("b.json")]);
+    }
+
+    #[test]
+    fn failed_stream_leaves_nothing_behind() {
+        let dir = tempfile::tempdir().unwrap();
+        let file = dir.path().join("c.csv");
+        let result = write_atomic_with(&file, |out| {
+            out.write_all(b"half a file").unwrap();
+            Err(Error::Computation("stopped".into()))
+        });
+        assert!(result.is_err());
+        assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 0);
     }
 
     #[test]

@@ -4,5 +4,6 @@ pub mod curve_args;
 pub mod demo;
 pub mod fit;
 pub mod horizon;
+pub mod rebuild;
 pub mod run;
 pub mod tunnels;
