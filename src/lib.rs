@@ -9,6 +9,7 @@
 #![allow(clippy::needless_range_loop)]
 
 pub mod adjust;
+pub mod analysis;
 pub mod cli;
 pub mod cmd;
 pub mod curve;
@@ -27,6 +28,7 @@ pub mod output;
 pub mod plot;
 pub mod progress;
 pub mod rebuild;
+pub mod report;
 pub mod units;
 
 pub use error::{Error, Result};

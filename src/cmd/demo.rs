@@ -1,13 +1,24 @@
-//! `tunnelcast demo`: runs the bundled invented example (a fictional trial, see `data/README.md`).
+//! `tunnelcast demo`: runs the bundled invented analysis (`data/demo_analysis.toml` on the
+//! fictional trial in `data/demo_trial.csv`, see `data/README.md`) exactly as `run` would,
+//! into `./tunnelcast-demo/` or `--out`. Both files are compiled into the binary, so the demo
+//! works from any folder.
 
-use crate::error::Result;
+use crate::analysis::Analysis;
+use crate::error::{Error, Result};
+use crate::output;
 use clap::Args;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 /// Options of `demo`.
 #[derive(Debug, Args)]
+#[command(after_help = concat!(
+    "Example:\n  tunnelcast demo --out demo-results\n\n",
+    "The data are invented (a fictional trial, see data/README.md).\n\n",
+    "Caution: extrapolated survival is an assumption, not an observation. Check every extrapolation \
+against clinical opinion and external data. tunnelcast does not replace local HTA guidance or qualified review."
+))]
 pub struct DemoArgs {
-    /// Output folder for the demo's files.
+    /// Output folder; an earlier demo output there is replaced.
     #[arg(long, default_value = "tunnelcast-demo")]
     pub out: PathBuf,
 }
@@ -15,19 +26,32 @@ pub struct DemoArgs {
 /// The bundled invented trial data, compiled into the binary so the demo runs anywhere.
 pub const DEMO_TRIAL: &str = include_str!("../../data/demo_trial.csv");
 
-/// Runs the demo: fits the bundled data and prints the comparison.
-pub fn run(_args: DemoArgs) -> Result<()> {
-    let options = crate::input::InputOptions {
-        arm_col: Some("arm".into()),
-        ..Default::default()
-    };
-    let data = crate::input::parse("data/demo_trial.csv", DEMO_TRIAL.as_bytes(), &options)?;
-    let file = crate::fit::fit_dataset(
-        &data,
-        crate::families::STANDARD.as_ref(),
-        crate::units::TimeUnit::Months,
-        None,
-    );
-    crate::output::print(&crate::cmd::fit::render_comparison(&file));
+/// The bundled analysis file.
+pub const DEMO_ANALYSIS: &str = include_str!("../../data/demo_analysis.toml");
+
+/// Whether `folder` holds an earlier demo output (its own `analysis.toml` and `report.html`),
+/// which the demo may replace; any other non-empty folder is left alone.
+fn is_earlier_demo(folder: &Path) -> bool {
+    std::fs::read_to_string(folder.join("analysis.toml")).is_ok_and(|t| t == DEMO_ANALYSIS)
+        && folder.join("report.html").is_file()
+}
+
+/// Runs the demo.
+pub fn run(args: DemoArgs) -> Result<()> {
+    let replace = args.out.exists() && is_earlier_demo(&args.out);
+    output::check_folder(&args.out, replace).map_err(|e| match e {
+        Error::Output { path, .. } => Error::Output {
+            path,
+            message:
+                "is not empty and is not an earlier demo output; choose another folder with --out"
+                    .into(),
+        },
+        other => other,
+    })?;
+    let analysis = Analysis::parse("data/demo_analysis.toml", DEMO_ANALYSIS, Path::new("data"))?;
+    let text = crate::cmd::run::execute(analysis, DEMO_TRIAL.as_bytes(), &args.out)?;
+    output::print(&format!(
+        "tunnelcast demo: an invented trial (Veltranib against standard care; see data/README.md)\n\n{text}"
+    ));
     Ok(())
 }

@@ -6,4 +6,5 @@ pub mod draws;
 pub mod fit;
 pub mod horizon;
 pub mod rebuild;
+pub mod run;
 pub mod tunnels;

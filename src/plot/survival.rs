@@ -59,7 +59,7 @@ fn step_path(
 
 impl Plot for SurvivalPlot<'_> {
     fn size(&self) -> (u32, u32) {
-        (960, 590)
+        (960, 600)
     }
 
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), String> {
@@ -133,20 +133,30 @@ impl Plot for SurvivalPlot<'_> {
         });
         chart.draw_series(marks).map_err(err)?;
 
-        // Numbers at risk, aligned under the time axis ticks inside the observed range.
-        let label_y = risk.get_base_pixel().1 + 26;
+        // Numbers at risk at round times inside the observed range, spaced so the labels do
+        // not collide (at least 36 pixels apart), with their times on the row above.
+        let (x_start, _) = chart.backend_coord(&(0.0, 0.0));
+        let (x_end, _) = chart.backend_coord(&(end, 0.0));
+        let room = ((x_end - x_start).max(0) / 36).max(1) as usize;
+        let risk_ticks = nice_ticks(end, room.min(12));
+        let top_y = risk.get_base_pixel().1 + 4;
+        let left = text_style(12);
         root.draw(&Text::new(
-            "Number at risk".to_string(),
-            (12, risk.get_base_pixel().1 + 4),
-            text_style(13),
+            unit.name().to_string(),
+            (6, top_y),
+            left.clone(),
         ))
         .map_err(err)?;
-        let centred = text_style(13).pos(Pos::new(HPos::Center, VPos::Top));
-        for &t in ticks.iter().filter(|&&t| t <= end) {
+        root.draw(&Text::new("at risk".to_string(), (6, top_y + 20), left))
+            .map_err(err)?;
+        let centred = text_style(12).pos(Pos::new(HPos::Center, VPos::Top));
+        for &t in &risk_ticks {
             let (x, _) = chart.backend_coord(&(t, 0.0));
+            root.draw(&Text::new(tick_label(t), (x, top_y), centred.clone()))
+                .map_err(err)?;
             root.draw(&Text::new(
                 self.km.at_risk_at(t).to_string(),
-                (x, label_y),
+                (x, top_y + 20),
                 centred.clone(),
             ))
             .map_err(err)?;

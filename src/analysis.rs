@@ -1,0 +1,502 @@
+//! The analysis file read by `tunnelcast run`: one TOML file naming the data, the families,
+//! the chosen curve, the cycle and the outputs, so a whole analysis reruns from one command.
+//!
+//! This is the one place where the file is checked: TOML syntax errors and unknown keys
+//! (with the nearest valid key suggested) are reported with line and column; values are
+//! parsed into [`Analysis`], which later code trusts. Relative paths resolve against the
+//! folder of the analysis file. See `docs/report.md` for every key.
+
+use crate::error::{Error, Result};
+use crate::families::{self, Family};
+use crate::units::{Duration, TimeUnit};
+use serde::Deserialize;
+use std::path::{Path, PathBuf};
+use toml::Spanned;
+
+/// `[data]`: where the time-to-event records are and how to read them.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawData {
+    file: Spanned<String>,
+    time_column: Option<String>,
+    event_column: Option<String>,
+    arm_column: Option<String>,
+    time_unit: Option<Spanned<String>>,
+}
+
+/// `[fit]`: families to fit and which curve to carry forward.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawFit {
+    families: Option<Spanned<Vec<String>>>,
+    choose: Option<Spanned<String>>,
+    arm: Option<Spanned<String>>,
+}
+
+/// `[tunnels]`: the cycle, the number of tunnel states and the horizon checks.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawTunnels {
+    cycle: Spanned<String>,
+    count: Option<Spanned<toml::Value>>,
+    horizon: Option<Spanned<String>>,
+    tolerance: Option<Spanned<f64>>,
+    discount: Option<Spanned<f64>>,
+}
+
+/// `[output]`: the folder and the table formats.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawOutput {
+    folder: Option<String>,
+    formats: Option<Spanned<Vec<String>>>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawAnalysis {
+    title: Option<String>,
+    data: RawData,
+    fit: Option<RawFit>,
+    tunnels: RawTunnels,
+    output: Option<RawOutput>,
+}
+
+/// Which fitted family is carried forward to the tunnel table.
+#[derive(Clone, Copy)]
+pub enum Choice {
+    /// The converged family with the smallest AIC in the chosen arm.
+    BestAic,
+    /// A named family.
+    Family(&'static dyn Family),
+}
+
+impl Choice {
+    /// As written in the analysis file: `best-aic` or the family name.
+    pub fn name(&self) -> &'static str {
+        match self {
+            Choice::BestAic => "best-aic",
+            Choice::Family(f) => f.name(),
+        }
+    }
+}
+
+impl std::fmt::Debug for Choice {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.name())
+    }
+}
+
+impl PartialEq for Choice {
+    fn eq(&self, other: &Self) -> bool {
+        self.name() == other.name()
+    }
+}
+
+/// How many tunnel states the table gets.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Count {
+    /// The suggested count of the truncation check.
+    Auto,
+    /// A fixed number.
+    Fixed(usize),
+}
+
+/// A place in the analysis file, for errors found after parsing (e.g. a missing data file).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Place {
+    /// 1-based line.
+    pub line: u64,
+    /// 1-based column (characters).
+    pub column: usize,
+}
+
+/// A checked analysis: every value parsed, every path resolved.
+#[derive(Clone)]
+pub struct Analysis {
+    /// The analysis file as given on the command line.
+    pub file: String,
+    /// The file's text, verbatim (it goes into the report).
+    pub text: String,
+    /// Optional title for the report.
+    pub title: Option<String>,
+    /// Data file as written in the analysis file (names it in every output, whatever the working folder).
+    pub data_name: String,
+    /// Data file resolved against the analysis file's folder.
+    pub data_path: PathBuf,
+    /// Where `[data] file` is written, for errors about the file itself.
+    pub data_place: Place,
+    /// Time column (default `time`).
+    pub time_column: String,
+    /// Event column (default `event`).
+    pub event_column: String,
+    /// Arm column, if any.
+    pub arm_column: Option<String>,
+    /// Time unit of the data (default days).
+    pub time_unit: TimeUnit,
+    /// Families to fit (default: the standard families).
+    pub families: Vec<&'static dyn Family>,
+    /// Curve carried forward.
+    pub choose: Choice,
+    /// Where `[fit] choose` is written (or `[fit]`), for errors about the chosen fit.
+    pub choose_place: Place,
+    /// Arm the chosen curve comes from (required when the data have several arms).
+    pub arm: Option<String>,
+    /// Where `[fit] arm` is written, for errors about the arm.
+    pub arm_place: Place,
+    /// Cycle length.
+    pub cycle: Duration,
+    /// Number of tunnel states.
+    pub count: Count,
+    /// Horizon of the truncation and within-cycle checks (`None`: the default rule).
+    pub horizon: Option<Duration>,
+    /// Tolerance of the truncation errors (default 0.001).
+    pub tolerance: f64,
+    /// Annual discount rate of the within-cycle table (default 0.035).
+    pub discount: f64,
+    /// Output folder from `[output] folder`, resolved against the analysis file's folder.
+    pub folder: Option<PathBuf>,
+    /// Table formats (extensions), default `csv` and `json`.
+    pub formats: Vec<String>,
+}
+
+impl std::fmt::Debug for Analysis {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "Analysis({}: data {})", self.file, self.data_name)
+    }
+}
+
+/// Line and column (1-based, in characters) of a byte offset.
+fn place_of(text: &str, offset: usize) -> Place {
+    let offset = offset.min(text.len());
+    let before = &text[..offset];
+    let line = before.matches('\n').count() as u64 + 1;
+    let line_start = before.rfind('\n').map_or(0, |i| i + 1);
+    Place {
+        line,
+        column: text[line_start..offset].chars().count() + 1,
+    }
+}
+
+/// An error at a place in the analysis file.
+fn error_at(file: &str, place: Place, message: impl Into<String>) -> Error {
+    Error::InputAt {
+        file: file.to_string(),
+        line: place.line,
+        column: place.column.to_string(),
+        message: message.into(),
+    }
+}
+
+/// Rewrites serde's "unknown field `x`, expected one of `a`, `b`" as a suggestion.
+fn explain(message: &str) -> String {
+    let message = message.trim();
+    let Some(rest) = message.strip_prefix("unknown field `") else {
+        return message.replace('\n', " ");
+    };
+    let Some((key, expected)) = rest.split_once('`') else {
+        return message.to_string();
+    };
+    let valid: Vec<&str> = expected.split('`').skip(1).step_by(2).collect();
+    let hint = crate::units::nearest(key, &valid)
+        .map(|n| format!(" (did you mean \"{n}\"?)"))
+        .unwrap_or_default();
+    format!(
+        "unknown key \"{key}\"{hint}; valid keys here: {}",
+        valid.join(", ")
+    )
+}
+
+impl Analysis {
+    /// Reads and checks an analysis file.
+    pub fn load(path: &Path) -> Result<Analysis> {
+        let name = path.display().to_string();
+        let text = std::fs::read_to_string(path)
+            .map_err(|e| Error::input(&name, format!("cannot read: {e}")))?;
+        let base = match path.parent() {
+            Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+            _ => PathBuf::from("."),
+        };
+        Analysis::parse(&name, &text, &base)
+    }
+
+    /// Checks the text of an analysis file named `file`; relative paths resolve against `base`.
+    pub fn parse(file: &str, text: &str, base: &Path) -> Result<Analysis> {
+        let raw: RawAnalysis = toml::from_str(text).map_err(|e| {
+            let place = place_of(text, e.span().map_or(0, |s| s.start));
+            error_at(file, place, explain(e.message()))
+        })?;
+        let at = |span: std::ops::Range<usize>| place_of(text, span.start);
+        let bad = |span: std::ops::Range<usize>, message: String| error_at(file, at(span), message);
+
+        let data_name = raw.data.file.get_ref().clone();
+        if data_name.trim().is_empty() {
+            return Err(bad(raw.data.file.span(), "[data] file is empty".into()));
+        }
+        let data_path = base.join(&data_name);
+        let time_unit = match &raw.data.time_unit {
+            Some(u) => u
+                .get_ref()
+                .parse()
+                .map_err(|e: String| bad(u.span(), format!("[data] time_unit: {e}")))?,
+            None => TimeUnit::Days,
+        };
+
+        let fit = raw.fit.unwrap_or(RawFit {
+            families: None,
+            choose: None,
+            arm: None,
+        });
+        let families = match &fit.families {
+            None => families::STANDARD.to_vec(),
+            Some(list) => {
+                if list.get_ref().is_empty() {
+                    return Err(bad(list.span(), "[fit] families is empty".into()));
+                }
+                let mut out: Vec<&'static dyn Family> = Vec::new();
+                for name in list.get_ref() {
+                    let family = families::by_name(name)
+                        .map_err(|e| bad(list.span(), format!("[fit] families: {e}")))?;
+                    if !out.iter().any(|f| f.name() == family.name()) {
+                        out.push(family);
+                    }
+                }
+                out
+            }
+        };
+        let (choose, choose_place) = match &fit.choose {
+            None => (Choice::BestAic, Place { line: 1, column: 1 }),
+            Some(c) if c.get_ref().trim() == "best-aic" => (Choice::BestAic, at(c.span())),
+            Some(c) => {
+                let family = families::by_name(c.get_ref())
+                    .map_err(|e| bad(c.span(), format!("[fit] choose: {e} (or \"best-aic\")")))?;
+                if !families.iter().any(|f| f.name() == family.name()) {
+                    return Err(bad(
+                        c.span(),
+                        format!(
+                            "[fit] choose: {} is not among the fitted families ({})",
+                            family.name(),
+                            families
+                                .iter()
+                                .map(|f| f.name())
+                                .collect::<Vec<_>>()
+                                .join(", ")
+                        ),
+                    ));
+                }
+                (Choice::Family(family), at(c.span()))
+            }
+        };
+        let (arm, arm_place) = match &fit.arm {
+            Some(a) => (Some(a.get_ref().clone()), at(a.span())),
+            None => (None, choose_place),
+        };
+        if arm.is_some() && raw.data.arm_column.is_none() {
+            return Err(error_at(
+                file,
+                arm_place,
+                "[fit] arm needs [data] arm_column to say where arms are",
+            ));
+        }
+
+        let t = &raw.tunnels;
+        let cycle: Duration = t
+            .cycle
+            .get_ref()
+            .parse()
+            .map_err(|e: String| bad(t.cycle.span(), format!("[tunnels] cycle: {e}")))?;
+        let count = match &t.count {
+            None => Count::Auto,
+            Some(c) => match c.get_ref() {
+                toml::Value::String(s) if s == "auto" => Count::Auto,
+                toml::Value::Integer(n) if (1..=crate::discretise::MAX_COUNT as i64).contains(n) => {
+                    Count::Fixed(*n as usize)
+                }
+                other => {
+                    return Err(bad(
+                        c.span(),
+                        format!(
+                            "[tunnels] count: {other} is neither \"auto\" nor a whole number from 1 to {}",
+                            crate::discretise::MAX_COUNT
+                        ),
+                    ))
+                }
+            },
+        };
+        let horizon = match &t.horizon {
+            None => None,
+            Some(h) => Some(
+                h.get_ref()
+                    .parse::<Duration>()
+                    .map_err(|e| bad(h.span(), format!("[tunnels] horizon: {e}")))?,
+            ),
+        };
+        let tolerance = match &t.tolerance {
+            None => 0.001,
+            Some(x) if *x.get_ref() > 0.0 && *x.get_ref() < 1.0 => *x.get_ref(),
+            Some(x) => {
+                return Err(bad(
+                    x.span(),
+                    format!(
+                        "[tunnels] tolerance: {} is not between 0 and 1",
+                        x.get_ref()
+                    ),
+                ))
+            }
+        };
+        let discount = match &t.discount {
+            None => 0.035,
+            Some(x) if (0.0..1.0).contains(x.get_ref()) => *x.get_ref(),
+            Some(x) => {
+                return Err(bad(
+                    x.span(),
+                    format!(
+                    "[tunnels] discount: {} is not an annual rate from 0 to below 1 (e.g. 0.035)",
+                    x.get_ref()
+                ),
+                ))
+            }
+        };
+
+        let output = raw.output.unwrap_or(RawOutput {
+            folder: None,
+            formats: None,
+        });
+        let formats = match &output.formats {
+            None => vec!["csv".to_string(), "json".to_string()],
+            Some(list) => {
+                let known = crate::export::known_formats();
+                let mut out: Vec<String> = Vec::new();
+                for f in list.get_ref() {
+                    let f = f.trim().trim_start_matches('.').to_ascii_lowercase();
+                    if !known.contains(&f.as_str()) {
+                        let hint = crate::units::nearest(&f, &known)
+                            .map(|n| format!(" (did you mean \"{n}\"?)"))
+                            .unwrap_or_default();
+                        return Err(bad(
+                            list.span(),
+                            format!(
+                                "[output] formats: unknown format \"{f}\"{hint}; formats: {}",
+                                known.join(", ")
+                            ),
+                        ));
+                    }
+                    if !out.contains(&f) {
+                        out.push(f);
+                    }
+                }
+                out
+            }
+        };
+
+        Ok(Analysis {
+            file: file.to_string(),
+            text: text.to_string(),
+            title: raw.title,
+            data_place: at(raw.data.file.span()),
+            data_name,
+            data_path,
+            time_column: raw.data.time_column.unwrap_or_else(|| "time".into()),
+            event_column: raw.data.event_column.unwrap_or_else(|| "event".into()),
+            arm_column: raw.data.arm_column,
+            time_unit,
+            families,
+            choose,
+            choose_place,
+            arm,
+            arm_place,
+            cycle,
+            count,
+            horizon,
+            tolerance,
+            discount,
+            folder: output.folder.map(|f| base.join(f)),
+            formats,
+        })
+    }
+
+    /// An error about a value at `place` of this analysis file (exit 2).
+    pub fn error_at(&self, place: Place, message: impl Into<String>) -> Error {
+        error_at(&self.file, place, message)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const GOOD: &str = r#"
+title = "test"
+[data]
+file = "trial.csv"
+arm_column = "arm"
+time_unit = "months"
+[fit]
+families = ["weibull", "lognormal"]
+choose = "best-aic"
+arm = "b"
+[tunnels]
+cycle = "1 month"
+count = 24
+"#;
+
+    #[test]
+    fn reads_a_complete_file_and_resolves_paths() {
+        let a = Analysis::parse("a.toml", GOOD, Path::new("/x/y")).unwrap();
+        assert_eq!(a.data_path, PathBuf::from("/x/y/trial.csv"));
+        assert_eq!(a.data_name, "trial.csv");
+        assert_eq!(a.time_unit, TimeUnit::Months);
+        assert_eq!(a.families.len(), 2);
+        assert_eq!(a.count, Count::Fixed(24));
+        assert_eq!(a.choose, Choice::BestAic);
+        assert_eq!(a.arm.as_deref(), Some("b"));
+        assert_eq!(a.tolerance, 0.001);
+        assert_eq!(a.formats, vec!["csv", "json"]);
+        assert_eq!(a.data_place, Place { line: 4, column: 8 });
+    }
+
+    #[test]
+    fn unknown_key_names_line_column_and_nearest_key() {
+        let text = GOOD.replace("families =", "famlies =");
+        let err = Analysis::parse("a.toml", &text, Path::new(".")).unwrap_err();
+        let msg = err.to_string();
+        assert!(
+            msg.starts_with("a.toml line 8 column 1: unknown key \"famlies\""),
+            "{msg}"
+        );
+        assert!(msg.contains("did you mean \"families\""), "{msg}");
+        assert_eq!(err.exit_code(), 2);
+    }
+
+    #[test]
+    fn syntax_error_names_line_and_column() {
+        let text = GOOD.replace("count = 24", "count = = 24");
+        let msg = Analysis::parse("a.toml", &text, Path::new("."))
+            .unwrap_err()
+            .to_string();
+        assert!(msg.starts_with("a.toml line 13 column "), "{msg}");
+        assert_eq!(msg.lines().count(), 1, "{msg}");
+    }
+
+    #[test]
+    fn bad_values_point_at_the_value() {
+        let text = GOOD.replace("\"1 month\"", "\"1 monht\"");
+        let msg = Analysis::parse("a.toml", &text, Path::new("."))
+            .unwrap_err()
+            .to_string();
+        assert!(
+            msg.starts_with("a.toml line 12 column 9: [tunnels] cycle"),
+            "{msg}"
+        );
+        let text = GOOD.replace("count = 24", "count = \"all\"");
+        let msg = Analysis::parse("a.toml", &text, Path::new("."))
+            .unwrap_err()
+            .to_string();
+        assert!(msg.contains("[tunnels] count"), "{msg}");
+        let text = GOOD.replace("choose = \"best-aic\"", "choose = \"gompertz\"");
+        let msg = Analysis::parse("a.toml", &text, Path::new("."))
+            .unwrap_err()
+            .to_string();
+        assert!(msg.contains("not among the fitted families"), "{msg}");
+    }
+}

@@ -1,0 +1,499 @@
+//! `tunnelcast run ANALYSIS.toml`: a whole analysis from one file. Fits the families, takes
+//! the chosen curve to a tunnel table, runs the truncation and within-cycle checks, and
+//! writes the fit JSON, the tables in every requested format, the plots and `report.html`
+//! into a temporary folder that is renamed into place only when everything succeeded.
+
+use crate::analysis::{Analysis, Choice, Count};
+use crate::curve::{Curve, ParametricCurve};
+use crate::discretise::{count_until, tunnel_table, TunnelTable};
+use crate::error::{Error, Result};
+use crate::export::tunnel::{long_table, Layout};
+use crate::export::{exporter_for, number_text, Cell, Document, Table};
+use crate::fit::{fit_dataset, FamilyFit, FitFile};
+use crate::horizon::{
+    boundary_log_survival, default_horizon, stable_count, suggested_count, truncation_table,
+    within_cycle_table, TruncationRow, WithinCycleRow, DEFAULT_HORIZON_SURVIVAL,
+    MAX_HORIZON_CYCLES,
+};
+use crate::input::{self, Dataset, InputOptions};
+use crate::output::{self, StagedFolder};
+use crate::plot::{self, HorizonPlot, TunnelMarker, TunnelPlot};
+use clap::Args;
+use std::path::{Path, PathBuf};
+
+/// Options of `run`.
+#[derive(Debug, Args)]
+#[command(after_help = concat!(
+    "Example:\n  tunnelcast run analysis.toml --out results\n\n",
+    "The analysis file is described in docs/report.md; data/demo_analysis.toml is a complete example.\n\n",
+    "Caution: extrapolated survival is an assumption, not an observation. Check every extrapolation \
+against clinical opinion and external data. tunnelcast does not replace local HTA guidance or qualified review."
+))]
+pub struct RunArgs {
+    /// The analysis file (TOML).
+    pub analysis: PathBuf,
+    /// Output folder (default: `[output] folder` of the analysis file, else ANALYSIS-results beside it).
+    #[arg(long, value_name = "DIR")]
+    pub out: Option<PathBuf>,
+    /// Replace a non-empty output folder.
+    #[arg(long)]
+    pub force: bool,
+}
+
+/// Everything an analysis computed, before it is written.
+pub struct RunResult {
+    /// The checked analysis.
+    pub analysis: Analysis,
+    /// The validated data.
+    pub data: Dataset,
+    /// Every fit, as written to `fit.json`.
+    pub fits: FitFile,
+    /// The fit carried forward.
+    pub chosen: FamilyFit,
+    /// Why that fit (e.g. "smallest AIC among converged fits").
+    pub chosen_by: String,
+    /// The chosen curve in the data's time unit.
+    pub curve: ParametricCurve,
+    /// The tunnel table.
+    pub tunnels: TunnelTable,
+    /// How the count was set.
+    pub count_rule: String,
+    /// Number of whole cycles to the horizon of the checks.
+    pub horizon_cycles: usize,
+    /// How the horizon was set.
+    pub horizon_rule: String,
+    /// The truncation table, one row per candidate count.
+    pub truncation: Vec<TruncationRow>,
+    /// Smallest count with both truncation errors within the tolerance.
+    pub suggested_count: usize,
+    /// First tunnel after which p_exit is stable within the tolerance.
+    pub stable_count: usize,
+    /// The within-cycle table.
+    pub within_cycle: Vec<WithinCycleRow>,
+}
+
+impl RunResult {
+    /// Metadata heading every table file: tool, data, curve, settings, caution.
+    pub fn metadata(&self) -> Vec<(String, String)> {
+        let a = &self.analysis;
+        let family = self.curve.family;
+        let mut m = vec![
+            ("tool_version".to_string(), crate::VERSION.to_string()),
+            ("analysis_file".into(), file_name(&a.file)),
+            ("data_file".into(), a.data_name.clone()),
+            ("data_sha256".into(), self.data.sha256.clone()),
+        ];
+        if let Some(arm) = &self.chosen.arm {
+            m.push(("arm".into(), arm.clone()));
+        }
+        m.extend([
+            ("family".into(), family.name().to_string()),
+            ("chosen_by".into(), self.chosen_by.clone()),
+            (
+                "parameters".into(),
+                crate::cmd::curve_args::parameter_text(family, &self.curve.params),
+            ),
+            ("parameter_time_unit".into(), self.curve.unit.name().into()),
+            (
+                "cycle".into(),
+                format!(
+                    "{} {}",
+                    number_text(self.tunnels.cycle),
+                    self.tunnels.time_unit
+                ),
+            ),
+            ("time_unit".into(), self.tunnels.time_unit.name().into()),
+            ("caution".into(), crate::CAUTION.into()),
+        ]);
+        m
+    }
+
+    /// The tunnel table as exported (long layout).
+    pub fn tunnel_document(&self) -> Document {
+        let mut metadata = self.metadata();
+        metadata.push(("count".into(), self.tunnels.rows.len().to_string()));
+        metadata.push(("count_rule".into(), self.count_rule.clone()));
+        metadata.push(("layout".into(), Layout::Long.name().into()));
+        metadata.push((
+            "convention".into(),
+            "tunnel k covers [(k-1)*cycle, k*cycle) since entry; p_exit = 1 - S(t_end)/S(t_start); the last tunnel repeats its own probability".into(),
+        ));
+        Document {
+            metadata,
+            tables: vec![long_table(&self.tunnels)],
+        }
+    }
+
+    /// The truncation table as exported, every candidate count.
+    pub fn truncation_document(&self) -> Document {
+        let mut metadata = self.metadata();
+        metadata.extend([
+            ("horizon_cycles".into(), self.horizon_cycles.to_string()),
+            ("horizon_rule".into(), self.horizon_rule.clone()),
+            ("tolerance".into(), number_text(self.analysis.tolerance)),
+            ("suggested_count".into(), self.suggested_count.to_string()),
+            ("stable_count".into(), self.stable_count.to_string()),
+        ]);
+        let rows = self
+            .truncation
+            .iter()
+            .map(|r| {
+                vec![
+                    Cell::Int(r.count as i64),
+                    Cell::Number(r.max_surv_gap),
+                    Cell::Number(r.ly_rel_error),
+                    Cell::Number(r.p_exit_last),
+                ]
+            })
+            .collect();
+        Document {
+            metadata,
+            tables: vec![Table {
+                name: "truncation".into(),
+                columns: ["count", "max_surv_gap", "ly_rel_error", "p_exit_last"]
+                    .map(String::from)
+                    .to_vec(),
+                rows,
+            }],
+        }
+    }
+
+    /// The within-cycle table as exported.
+    pub fn within_cycle_document(&self) -> Document {
+        let mut metadata = self.metadata();
+        metadata.extend([
+            ("horizon_cycles".into(), self.horizon_cycles.to_string()),
+            ("discount".into(), number_text(self.analysis.discount)),
+        ]);
+        let rows = self
+            .within_cycle
+            .iter()
+            .map(|r| {
+                vec![
+                    Cell::Text(r.method.name().into()),
+                    Cell::Number(r.life_years),
+                    Cell::Number(r.exact),
+                    Cell::Number(r.error),
+                    Cell::Number(r.rel_error),
+                    Cell::Number(r.discounted_life_years),
+                    Cell::Number(r.discounted_exact),
+                    Cell::Number(r.discounted_error),
+                    Cell::Number(r.discounted_rel_error),
+                ]
+            })
+            .collect();
+        Document {
+            metadata,
+            tables: vec![Table {
+                name: "within_cycle".into(),
+                columns: [
+                    "method",
+                    "life_years",
+                    "exact",
+                    "error",
+                    "rel_error",
+                    "discounted_life_years",
+                    "discounted_exact",
+                    "discounted_error",
+                    "discounted_rel_error",
+                ]
+                .map(String::from)
+                .to_vec(),
+                rows,
+            }],
+        }
+    }
+}
+
+/// The last path component of a file name as given (so outputs do not depend on the working folder).
+fn file_name(path: &str) -> String {
+    Path::new(path)
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| path.to_string())
+}
+
+/// Runs the analysis on the data file's bytes; nothing is written.
+pub fn compute(analysis: Analysis, data_bytes: &[u8]) -> Result<RunResult> {
+    let options = InputOptions {
+        time_col: analysis.time_column.clone(),
+        event_col: analysis.event_column.clone(),
+        arm_col: analysis.arm_column.clone(),
+        delimiter: None,
+        zero_time: None,
+    };
+    let data = input::parse(&analysis.data_name, data_bytes, &options)?;
+    let arms: Vec<Option<&str>> = data.arms.iter().map(|a| a.arm.as_deref()).collect();
+    let arm = match (&analysis.arm, arms.as_slice()) {
+        (Some(a), _) => {
+            if !arms.contains(&Some(a.as_str())) {
+                let names: Vec<&str> = arms.iter().flatten().copied().collect();
+                return Err(analysis.error_at(
+                    analysis.arm_place,
+                    format!(
+                        "[fit] arm: the data have no arm \"{a}\" (arms: {})",
+                        names.join(", ")
+                    ),
+                ));
+            }
+            Some(a.clone())
+        }
+        (None, [only]) => only.map(str::to_string),
+        (None, _) => {
+            let names: Vec<&str> = arms.iter().flatten().copied().collect();
+            return Err(analysis.error_at(
+                analysis.choose_place,
+                format!(
+                    "the data have several arms ({}); say which one the tunnel table is for with [fit] arm",
+                    names.join(", ")
+                ),
+            ));
+        }
+    };
+    let fits = fit_dataset(&data, &analysis.families, analysis.time_unit, None);
+    let in_arm = |f: &&FamilyFit| f.arm == arm;
+    let (chosen, chosen_by) = match analysis.choose {
+        Choice::BestAic => {
+            let best = fits
+                .fits
+                .iter()
+                .filter(in_arm)
+                .filter(|f| f.converged)
+                .min_by(|a, b| {
+                    a.aic
+                        .unwrap_or(f64::INFINITY)
+                        .total_cmp(&b.aic.unwrap_or(f64::INFINITY))
+                })
+                .ok_or_else(|| {
+                    analysis.error_at(
+                        analysis.choose_place,
+                        "no family converged, so none can be chosen",
+                    )
+                })?;
+            (
+                best.clone(),
+                "smallest AIC among converged fits".to_string(),
+            )
+        }
+        Choice::Family(family) => {
+            let fit = fits
+                .fits
+                .iter()
+                .filter(in_arm)
+                .find(|f| f.family == family.name())
+                .ok_or_else(|| {
+                    Error::Computation(format!("the {} fit is missing", family.name()))
+                })?;
+            if !fit.converged {
+                return Err(analysis.error_at(
+                    analysis.choose_place,
+                    format!(
+                        "[fit] choose: the {} fit failed ({}); choose another family or \"best-aic\"",
+                        family.name(),
+                        fit.message.as_deref().unwrap_or("no reason recorded")
+                    ),
+                ));
+            }
+            (fit.clone(), "named in the analysis file".to_string())
+        }
+    };
+    let family = crate::families::by_name(&chosen.family).map_err(Error::Computation)?;
+    let params = chosen
+        .param_vector(family)
+        .ok_or_else(|| Error::Computation(format!("the {} fit lacks parameters", family.name())))?;
+    let curve = ParametricCurve::new(family, params, analysis.time_unit)
+        .map_err(|e| Error::Computation(format!("the {} fit: {e}", family.name())))?;
+
+    let cycle = analysis.cycle;
+    let (horizon_cycles, horizon_rule) = match analysis.horizon {
+        Some(h) => {
+            let n = count_until(cycle, h).map_err(|e| {
+                Error::Usage(format!(
+                    "{}: [tunnels] horizon: {}",
+                    analysis.file,
+                    e.replace("--until ", "")
+                ))
+            })?;
+            if n > MAX_HORIZON_CYCLES {
+                return Err(Error::Usage(format!(
+                    "{}: [tunnels] horizon {h} spans {n} cycles of {cycle}; at most {MAX_HORIZON_CYCLES} are allowed",
+                    analysis.file
+                )));
+            }
+            (n, format!("horizon = {h}"))
+        }
+        None => {
+            let (n, by_threshold) = default_horizon(&curve, cycle);
+            let why = if by_threshold {
+                format!("default: survival first falls below {DEFAULT_HORIZON_SURVIVAL}")
+            } else {
+                format!("default: survival stays above {DEFAULT_HORIZON_SURVIVAL} for 100 years")
+            };
+            (n, why)
+        }
+    };
+    let log_s = boundary_log_survival(&curve, cycle, horizon_cycles);
+    let truncation = truncation_table(&log_s, cycle.value);
+    let suggested = suggested_count(&truncation, analysis.tolerance);
+    let p_exit: Vec<f64> = truncation.iter().map(|r| r.p_exit_last).collect();
+    let stable = stable_count(&p_exit, analysis.tolerance);
+    let (count, count_rule) = match analysis.count {
+        Count::Auto => (suggested, "auto: the suggested count".to_string()),
+        Count::Fixed(n) => (n, "fixed in the analysis file".to_string()),
+    };
+    let tunnels = tunnel_table(&curve, cycle, count);
+    let within_cycle = within_cycle_table(&curve, cycle, horizon_cycles, analysis.discount);
+    Ok(RunResult {
+        analysis,
+        data,
+        fits,
+        chosen,
+        chosen_by,
+        curve,
+        tunnels,
+        count_rule,
+        horizon_cycles,
+        horizon_rule,
+        truncation,
+        suggested_count: suggested,
+        stable_count: stable,
+        within_cycle,
+    })
+}
+
+/// Every output file of a finished analysis, by name; `date` goes into the report only, so
+/// that the tables of a re-run are byte-identical.
+pub fn render_files(result: &RunResult, date: &str) -> Result<Vec<(String, Vec<u8>)>> {
+    let mut files: Vec<(String, Vec<u8>)> = Vec::new();
+    let mut fit_json = serde_json::to_vec_pretty(&result.fits)
+        .map_err(|e| Error::Computation(format!("cannot render JSON: {e}")))?;
+    fit_json.push(b'\n');
+    files.push(("fit.json".into(), fit_json));
+    let documents = [
+        ("tunnels", result.tunnel_document()),
+        ("truncation", result.truncation_document()),
+        ("within_cycle", result.within_cycle_document()),
+    ];
+    for format in &result.analysis.formats {
+        for (stem, document) in &documents {
+            let name = format!("{stem}.{format}");
+            let exporter = exporter_for(Path::new(&name), None)?;
+            files.push((name, exporter.render(document)?));
+        }
+    }
+    let unit = result.analysis.time_unit;
+    let longest = result
+        .data
+        .arms
+        .iter()
+        .map(|a| a.max_time())
+        .fold(0.0, f64::max);
+    let horizon = (result.horizon_cycles as f64 * result.analysis.cycle.in_unit(unit)).max(longest);
+    let mut figures = plot::fit_figures(&result.data, &result.fits, horizon)?;
+    let tunnel_plot = TunnelPlot {
+        title: format!("Tunnel table: {}", result.curve.family.name()),
+        table: &result.tunnels,
+        colour: plot::family_colour(result.curve.family.name()),
+        markers: vec![
+            TunnelMarker {
+                label: "suggested count".into(),
+                tunnel: result.suggested_count,
+            },
+            TunnelMarker {
+                label: "p_exit stable from".into(),
+                tunnel: result.stable_count,
+            },
+        ],
+    };
+    figures.extend(plot::both("tunnels", &tunnel_plot)?);
+    let horizon_plot = HorizonPlot {
+        title: "Truncation errors by number of tunnel states".into(),
+        counts: result.truncation.iter().map(|r| r.count).collect(),
+        max_surv_gap: result.truncation.iter().map(|r| r.max_surv_gap).collect(),
+        ly_rel_error: result.truncation.iter().map(|r| r.ly_rel_error).collect(),
+        tolerance: result.analysis.tolerance,
+    };
+    figures.extend(plot::both("horizon", &horizon_plot)?);
+    let html = crate::report::render(result, &figures, date)?;
+    files.extend(figures);
+    files.push(("report.html".into(), html.into_bytes()));
+    files.push((
+        "analysis.toml".into(),
+        result.analysis.text.clone().into_bytes(),
+    ));
+    Ok(files)
+}
+
+/// Short summary printed after a run.
+pub fn summary(result: &RunResult, folder: &Path) -> String {
+    let unit = result.tunnels.time_unit;
+    let arm = result
+        .chosen
+        .arm
+        .as_deref()
+        .map(|a| format!(", arm {a}"))
+        .unwrap_or_default();
+    let mut text = crate::cmd::fit::render_comparison(&result.fits);
+    text.push_str(&format!(
+        "\nchosen curve: {} ({}{arm})\n",
+        result.curve.describe(),
+        result.chosen_by
+    ));
+    text.push_str(&format!(
+        "tunnel table: {} tunnel states of {} {unit} ({}); suggested count {}, p_exit stable from tunnel {} (tolerance {})\n",
+        result.tunnels.rows.len(),
+        number_text(result.tunnels.cycle),
+        result.count_rule,
+        result.suggested_count,
+        result.stable_count,
+        result.analysis.tolerance
+    ));
+    text.push_str(&format!(
+        "\nreport: {}\n{}\n",
+        folder.join("report.html").display(),
+        crate::CAUTION
+    ));
+    text
+}
+
+/// Computes and writes an analysis into `folder` (checked beforehand), all or nothing.
+pub fn execute(analysis: Analysis, data_bytes: &[u8], folder: &Path) -> Result<String> {
+    let result = compute(analysis, data_bytes)?;
+    let files = render_files(&result, &crate::report::utc_now())?;
+    let staged = StagedFolder::new(folder)?;
+    for (name, bytes) in &files {
+        staged.write(name, bytes)?;
+    }
+    staged.finish()?;
+    Ok(summary(&result, folder))
+}
+
+/// Runs `run`.
+pub fn run(args: RunArgs) -> Result<()> {
+    let analysis = Analysis::load(&args.analysis)?;
+    let folder = match (&args.out, &analysis.folder) {
+        (Some(out), _) => out.clone(),
+        (None, Some(f)) => f.clone(),
+        (None, None) => {
+            let stem = args
+                .analysis
+                .file_stem()
+                .map(|s| s.to_string_lossy().into_owned())
+                .unwrap_or_else(|| "analysis".into());
+            args.analysis.with_file_name(format!("{stem}-results"))
+        }
+    };
+    output::check_folder(&folder, args.force)?;
+    let data_bytes = std::fs::read(&analysis.data_path).map_err(|e| {
+        analysis.error_at(
+            analysis.data_place,
+            format!(
+                "[data] file {}: cannot read: {e}",
+                analysis.data_path.display()
+            ),
+        )
+    })?;
+    let text = execute(analysis, &data_bytes, &folder)?;
+    output::print(&text);
+    Ok(())
+}

@@ -1,0 +1,507 @@
+//! `report.html`: one self-contained file (inline SVG and CSS, no scripts, no fetches) that a
+//! reviewer can read offline and print: data summary, fit comparison, plots, the chosen curve,
+//! the tunnel, truncation and within-cycle tables, adjustments, draws, the caution, and a
+//! reproducibility block. The markup is well-formed XML (polyglot HTML) so tests can parse it.
+//!
+//! Tables are rendered from the same export documents as the CSV/JSON files, so the numbers
+//! shown are the exported numbers (at 6 significant digits).
+
+use crate::cmd::run::RunResult;
+use crate::error::Result;
+use crate::export::{Cell, Table};
+use crate::format::sig;
+use crate::plot::Figure;
+
+/// Significant digits of numbers in report tables.
+pub const DIGITS: usize = 6;
+
+/// Most tunnel rows shown in the report (the files hold them all).
+pub const MAX_TUNNEL_ROWS: usize = 240;
+
+/// Escapes text for HTML/XML content and attributes.
+pub fn escape(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    for c in text.chars() {
+        match c {
+            '&' => out.push_str("&amp;"),
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '"' => out.push_str("&quot;"),
+            '\'' => out.push_str("&#39;"),
+            _ => out.push(c),
+        }
+    }
+    out
+}
+
+/// The current date and time in UTC, `YYYY-MM-DD HH:MM UTC` (civil calendar from Unix days;
+/// Hinnant's days-to-civil algorithm, from memory).
+pub fn utc_now() -> String {
+    let secs = std::time::SystemTime::now()
+        .duration_since(std::time::UNIX_EPOCH)
+        .map(|d| d.as_secs())
+        .unwrap_or(0);
+    format_utc(secs)
+}
+
+/// Formats seconds since 1970-01-01 00:00 UTC.
+pub fn format_utc(secs: u64) -> String {
+    let days = (secs / 86_400) as i64;
+    let rem = secs % 86_400;
+    let z = days + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z - era * 146_097;
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let day = doy - (153 * mp + 2) / 5 + 1;
+    let month = if mp < 10 { mp + 3 } else { mp - 9 };
+    let year = yoe + era * 400 + i64::from(month <= 2);
+    format!(
+        "{year:04}-{month:02}-{day:02} {:02}:{:02} UTC",
+        rem / 3600,
+        (rem % 3600) / 60
+    )
+}
+
+/// Text of a cell as shown in the report.
+fn cell_text(cell: &Cell) -> String {
+    match cell {
+        Cell::Int(i) => i.to_string(),
+        Cell::Number(x) => sig(*x, DIGITS),
+        Cell::Text(t) => t.clone(),
+        Cell::Missing => String::new(),
+    }
+}
+
+/// An export table as an HTML table with `id`, showing the rows selected by `keep`.
+fn html_table(id: &str, table: &Table, keep: impl Fn(usize) -> bool) -> String {
+    let mut out = format!("<table id=\"{}\"><thead><tr>", escape(id));
+    for c in &table.columns {
+        out.push_str(&format!("<th>{}</th>", escape(c)));
+    }
+    out.push_str("</tr></thead><tbody>");
+    for (_, row) in table.rows.iter().enumerate().filter(|(i, _)| keep(*i)) {
+        out.push_str("<tr>");
+        for cell in row {
+            let class = match cell {
+                Cell::Text(_) => "",
+                _ => " class=\"n\"",
+            };
+            out.push_str(&format!("<td{class}>{}</td>", escape(&cell_text(cell))));
+        }
+        out.push_str("</tr>");
+    }
+    out.push_str("</tbody></table>\n");
+    out
+}
+
+/// A plain table from header and text rows (numbers right-aligned when `numeric[i]`).
+fn text_table(id: &str, header: &[&str], rows: &[Vec<String>], numeric: &[bool]) -> String {
+    let mut out = format!("<table id=\"{}\"><thead><tr>", escape(id));
+    for h in header {
+        out.push_str(&format!("<th>{}</th>", escape(h)));
+    }
+    out.push_str("</tr></thead><tbody>");
+    for row in rows {
+        out.push_str("<tr>");
+        for (i, cell) in row.iter().enumerate() {
+            let class = if numeric.get(i).copied().unwrap_or(false) {
+                " class=\"n\""
+            } else {
+                ""
+            };
+            out.push_str(&format!("<td{class}>{}</td>", escape(cell)));
+        }
+        out.push_str("</tr>");
+    }
+    out.push_str("</tbody></table>\n");
+    out
+}
+
+/// An inline figure from the rendered SVG named `name`, if present.
+fn figure(figures: &[Figure], name: &str, caption: &str) -> String {
+    match figures.iter().find(|(n, _)| n == name) {
+        Some((_, bytes)) => format!(
+            "<figure id=\"fig-{}\">{}<figcaption>{} <span class=\"file\">({})</span></figcaption></figure>\n",
+            escape(name.trim_end_matches(".svg")),
+            String::from_utf8_lossy(bytes),
+            escape(caption),
+            escape(name)
+        ),
+        None => String::new(),
+    }
+}
+
+const STYLE: &str = "
+body{font-family:'DejaVu Sans',Verdana,sans-serif;font-size:12px;line-height:1.35;color:#1c1c1c;background:#fff;max-width:1000px;margin:0 auto;padding:14px 18px}
+h1{font-size:19px;margin:0 0 2px}
+h2{font-size:14px;margin:22px 0 6px;padding-top:5px;border-top:2px solid #1c1c1c;text-transform:uppercase;letter-spacing:.04em}
+h3{font-size:12.5px;margin:12px 0 4px}
+p{margin:4px 0}
+.meta{color:#505050}
+.caution{border-left:5px solid #b0302e;background:#f7efe9;padding:6px 10px;margin:8px 0}
+table{border-collapse:collapse;margin:4px 0 8px;font-size:11px}
+th,td{padding:2px 7px;border-bottom:1px solid #d6d6d6;vertical-align:top}
+th{text-align:left;border-bottom:1.5px solid #1c1c1c;background:#f1f1ee}
+td.n{text-align:right;font-variant-numeric:tabular-nums;white-space:nowrap}
+tr.mark td{background:#fff3c4}
+dl{display:grid;grid-template-columns:max-content auto;gap:2px 12px;margin:4px 0}
+dt{font-weight:bold}dd{margin:0}
+figure{margin:8px 0 14px}
+figure svg{max-width:100%;height:auto;border:1px solid #e0e0e0}
+figcaption{font-size:11px;color:#505050}
+.file{font-family:'DejaVu Sans Mono',monospace;font-size:10.5px}
+pre{background:#f4f4f1;border:1px solid #ddd;padding:6px 8px;font-size:10.5px;white-space:pre-wrap}
+code{font-family:'DejaVu Sans Mono',monospace}
+@media print{body{max-width:none;padding:0}h2{break-after:avoid}figure,table{break-inside:avoid}}
+";
+
+/// Renders the report.
+pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<String> {
+    let a = &result.analysis;
+    let unit = a.time_unit;
+    let fits = &result.fits;
+    let title = a
+        .title
+        .clone()
+        .unwrap_or_else(|| "Survival extrapolation and tunnel states".to_string());
+    let mut h = String::new();
+    h.push_str("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\"/>\n");
+    h.push_str(&format!("<title>{}</title>\n", escape(&title)));
+    h.push_str(&format!("<style>{STYLE}</style>\n</head>\n<body>\n"));
+    h.push_str(&format!("<h1>{}</h1>\n", escape(&title)));
+    h.push_str(&format!(
+        "<p class=\"meta\">tunnelcast {} · analysis file <code>{}</code> · data <code>{}</code> · {}</p>\n",
+        crate::VERSION,
+        escape(&file_name(&a.file)),
+        escape(&a.data_name),
+        escape(date)
+    ));
+    h.push_str(&format!(
+        "<p class=\"caution\">{}</p>\n",
+        escape(crate::CAUTION)
+    ));
+
+    // Data summary.
+    h.push_str("<section id=\"data\">\n<h2>Data</h2>\n");
+    h.push_str(&format!(
+        "<p>{} subjects, {} events; time unit: {unit}. Kaplan–Meier median with a 95% interval from the log-log band.</p>\n",
+        fits.data.n, fits.data.events
+    ));
+    let show = |x: Option<f64>| x.map(|v| sig(v, 4)).unwrap_or_else(|| "not reached".into());
+    let rows: Vec<Vec<String>> = fits
+        .data
+        .arms
+        .iter()
+        .map(|arm| {
+            vec![
+                arm.arm.clone().unwrap_or_else(|| "(all)".into()),
+                arm.n.to_string(),
+                arm.events.to_string(),
+                (arm.n - arm.events).to_string(),
+                sig(arm.max_time, 4),
+                show(arm.km_median.median),
+                show(arm.km_median.lower),
+                show(arm.km_median.upper),
+            ]
+        })
+        .collect();
+    let longest = format!("longest follow-up ({unit})");
+    let median = format!("median ({unit})");
+    h.push_str(&text_table(
+        "table-data",
+        &[
+            "arm",
+            "n",
+            "events",
+            "censored",
+            &longest,
+            &median,
+            "95% lower",
+            "95% upper",
+        ],
+        &rows,
+        &[false, true, true, true, true, true, true, true],
+    ));
+    h.push_str("</section>\n");
+
+    // Fit comparison.
+    h.push_str("<section id=\"fits\">\n<h2>Fit comparison</h2>\n");
+    h.push_str("<p>Maximum likelihood per arm; full log-likelihood; AIC = 2k − 2·loglik, BIC = k·ln(n) − 2·loglik; sorted by AIC. Parameters in the data's time unit with 95% intervals (Wald, on the estimation scale).</p>\n");
+    for arm in &fits.data.arms {
+        let label = arm.arm.as_deref();
+        if let Some(name) = label {
+            h.push_str(&format!("<h3>Arm {}</h3>\n", escape(name)));
+        }
+        let rows: Vec<Vec<String>> = fits
+            .fits
+            .iter()
+            .filter(|f| f.arm.as_deref() == label)
+            .map(|f| {
+                let params = crate::families::by_name(&f.family)
+                    .map(|fam| {
+                        fam.param_names()
+                            .iter()
+                            .map(|n| {
+                                let v = f.params.get(*n).copied().unwrap_or(f64::NAN);
+                                match f.intervals.get(*n) {
+                                    Some([lo, hi]) => format!(
+                                        "{n} {} ({} to {})",
+                                        sig(v, DIGITS),
+                                        sig(*lo, 4),
+                                        sig(*hi, 4)
+                                    ),
+                                    None => format!("{n} {}", sig(v, DIGITS)),
+                                }
+                            })
+                            .collect::<Vec<_>>()
+                            .join("; ")
+                    })
+                    .unwrap_or_default();
+                let opt = |x: Option<f64>| x.map(|v| sig(v, DIGITS)).unwrap_or_else(|| "NA".into());
+                vec![
+                    f.family.clone(),
+                    params,
+                    opt(f.loglik),
+                    opt(f.aic),
+                    opt(f.bic),
+                    opt(f.delta_aic),
+                    f.median
+                        .map(|m| sig(m, 4))
+                        .unwrap_or_else(|| "not reached".into()),
+                    if f.converged {
+                        "yes".into()
+                    } else {
+                        format!("no: {}", f.message.as_deref().unwrap_or(""))
+                    },
+                ]
+            })
+            .collect();
+        let id = format!("table-fits{}", crate::plot::file_stem(label));
+        h.push_str(&text_table(
+            &id,
+            &[
+                "family",
+                "parameters (95% CI)",
+                "loglik",
+                "AIC",
+                "BIC",
+                "ΔAIC",
+                &median,
+                "converged",
+            ],
+            &rows,
+            &[false, false, true, true, true, true, true, false],
+        ));
+    }
+    h.push_str("</section>\n");
+
+    // Plots.
+    h.push_str("<section id=\"plots\">\n<h2>Plots</h2>\n");
+    for arm in &fits.data.arms {
+        let label = arm.arm.as_deref();
+        let suffix = crate::plot::file_stem(label);
+        if let Some(name) = label {
+            h.push_str(&format!("<h3>Arm {}</h3>\n", escape(name)));
+        }
+        h.push_str(&figure(figures, &format!("survival{suffix}.svg"), "Kaplan–Meier estimate with 95% log-log band, censoring ticks and numbers at risk; fitted curves extrapolated to the horizon of the checks."));
+        h.push_str(&figure(figures, &format!("hazard{suffix}.svg"), "Kernel-smoothed Nelson–Aalen hazard (Epanechnikov kernel, Silverman's bandwidth over the event times; shown where the window lies within the event times) beside each fitted hazard."));
+        h.push_str(&figure(figures, &format!("diagnostics{suffix}.svg"), "Straight-line diagnostics: Kaplan–Meier points and each fitted curve on the scale where one family is a straight line in ln t."));
+    }
+    h.push_str("</section>\n");
+
+    // Chosen curve.
+    let c = &result.chosen;
+    let family = result.curve.family;
+    h.push_str("<section id=\"chosen\">\n<h2>Chosen curve</h2>\n<dl>\n");
+    let mut facts = vec![("family", family.name().to_string())];
+    if let Some(arm) = &c.arm {
+        facts.push(("arm", arm.clone()));
+    }
+    facts.extend([
+        ("chosen by", result.chosen_by.clone()),
+        ("parameter time unit", unit.name().to_string()),
+        (
+            "log-likelihood",
+            c.loglik.map(|v| sig(v, DIGITS)).unwrap_or_default(),
+        ),
+        ("AIC", c.aic.map(|v| sig(v, DIGITS)).unwrap_or_default()),
+    ]);
+    for (k, v) in facts {
+        h.push_str(&format!("<dt>{}</dt><dd>{}</dd>\n", escape(k), escape(&v)));
+    }
+    h.push_str("</dl>\n");
+    let rows: Vec<Vec<String>> = family
+        .param_names()
+        .iter()
+        .zip(&result.curve.params)
+        .map(|(n, v)| {
+            let (lo, hi) = c
+                .intervals
+                .get(*n)
+                .map(|[l, u]| (sig(*l, DIGITS), sig(*u, DIGITS)))
+                .unwrap_or_default();
+            vec![n.to_string(), sig(*v, DIGITS), lo, hi]
+        })
+        .collect();
+    h.push_str(&text_table(
+        "table-chosen",
+        &["parameter", "estimate", "95% lower", "95% upper"],
+        &rows,
+        &[false, true, true, true],
+    ));
+    if let Some(cov) = &c.covariance {
+        let rows: Vec<Vec<String>> = cov
+            .names
+            .iter()
+            .zip(&cov.matrix)
+            .map(|(n, row)| {
+                let mut r = vec![n.clone()];
+                r.extend(row.iter().map(|x| sig(*x, 4)));
+                r
+            })
+            .collect();
+        let mut header = vec!["covariance (estimation scale)"];
+        header.extend(cov.names.iter().map(String::as_str));
+        let numeric: Vec<bool> = (0..header.len()).map(|i| i > 0).collect();
+        h.push_str(&text_table("table-covariance", &header, &rows, &numeric));
+    }
+    h.push_str("</section>\n");
+
+    // Tunnel table.
+    let t = &result.tunnels;
+    let doc = result.tunnel_document();
+    h.push_str("<section id=\"tunnels\">\n<h2>Tunnel table</h2>\n");
+    h.push_str(&format!(
+        "<p>{} tunnel states of {} {} ({}). Tunnel k covers [(k−1)·cycle, k·cycle) since entry; p_exit = 1 − S(t_end)/S(t_start), with no half-cycle shift; the last tunnel repeats its own probability. Times in {}.</p>\n",
+        t.rows.len(),
+        crate::export::number_text(t.cycle),
+        t.time_unit,
+        escape(&result.count_rule),
+        t.time_unit
+    ));
+    if t.rows.len() > MAX_TUNNEL_ROWS {
+        h.push_str(&format!(
+            "<p>The first {MAX_TUNNEL_ROWS} rows are shown; the files <span class=\"file\">tunnels.*</span> hold all {}.</p>\n",
+            t.rows.len()
+        ));
+    }
+    h.push_str(&html_table("table-tunnels", &doc.tables[0], |i| {
+        i < MAX_TUNNEL_ROWS
+    }));
+    h.push_str(&figure(figures, "tunnels.svg", "p_exit by tunnel state, with the suggested count and the tunnel from which p_exit is stable."));
+    h.push_str("</section>\n");
+
+    // Truncation.
+    let doc = result.truncation_document();
+    let n = result.horizon_cycles;
+    h.push_str("<section id=\"truncation\">\n<h2>Truncation: how many tunnels are enough</h2>\n");
+    h.push_str(&format!(
+        "<p>Horizon of the checks: {n} cycles = {} {} ({}). A chain cut at K tunnels repeats tunnel K's probability for every later cycle. <b>Suggested count: {}</b> (smallest K with max_surv_gap and ly_rel_error both ≤ {}); p_exit stable from tunnel {} (changes by at most the tolerance, relative, from one tunnel to the next). Selected rows are shown; <span class=\"file\">truncation.*</span> hold every count.</p>\n",
+        crate::export::number_text(n as f64 * t.cycle),
+        t.time_unit,
+        escape(&result.horizon_rule),
+        result.suggested_count,
+        a.tolerance,
+        result.stable_count
+    ));
+    let shown = shown_counts(
+        n,
+        &[result.suggested_count, result.stable_count, t.rows.len()],
+    );
+    h.push_str(&html_table("table-truncation", &doc.tables[0], |i| {
+        shown.contains(&(i + 1))
+    }));
+    h.push_str(&figure(
+        figures,
+        "horizon.svg",
+        "Truncation errors against the number of tunnel states, with the tolerance.",
+    ));
+    h.push_str("</section>\n");
+
+    // Within-cycle.
+    let doc = result.within_cycle_document();
+    h.push_str("<section id=\"within-cycle\">\n<h2>Within-cycle accuracy</h2>\n");
+    h.push_str(&format!(
+        "<p>Life-years ({}) to the horizon from survival at cycle boundaries, by method, beside the exact integral of the curve; discounted at {} a year as (1 + r)^(−t) at each boundary.</p>\n",
+        t.time_unit, a.discount
+    ));
+    h.push_str(&html_table("table-within-cycle", &doc.tables[0], |_| true));
+    h.push_str("</section>\n");
+
+    // Adjustments and draws.
+    h.push_str("<section id=\"adjustments\">\n<h2>Adjustments</h2>\n<p>None: the chosen curve is used as fitted (no hazard ratio, acceleration factor or background mortality was requested).</p>\n</section>\n");
+    h.push_str("<section id=\"draws\">\n<h2>Uncertainty draws</h2>\n<p>None requested in this analysis, so no random numbers were used.</p>\n</section>\n");
+
+    // Caution.
+    h.push_str(&format!(
+        "<section id=\"caution\">\n<h2>Caution</h2>\n<p class=\"caution\">{}</p>\n<p>The fitted curves agree with the data only over the observed follow-up; beyond it, the families above differ by assumption alone. A reviewer should see the extrapolated part judged against clinical opinion and external data (registries, longer trials, general-population mortality).</p>\n</section>\n",
+        escape(crate::CAUTION)
+    ));
+
+    // Reproducibility.
+    h.push_str("<section id=\"reproducibility\">\n<h2>Reproducibility</h2>\n<dl>\n");
+    let analysis_sha = crate::input::sha256_hex(a.text.as_bytes());
+    for (k, v) in [
+        ("tool version", format!("tunnelcast {}", crate::VERSION)),
+        ("command", format!("tunnelcast run {}", file_name(&a.file))),
+        ("data file", a.data_name.clone()),
+        ("data SHA-256", result.data.sha256.clone()),
+        ("analysis file SHA-256", analysis_sha),
+        ("seed", "none (no random draws)".to_string()),
+        ("date", date.to_string()),
+    ] {
+        h.push_str(&format!(
+            "<dt>{}</dt><dd><code>{}</code></dd>\n",
+            escape(k),
+            escape(&v)
+        ));
+    }
+    h.push_str("</dl>\n<h3>Analysis file, verbatim</h3>\n");
+    h.push_str(&format!(
+        "<pre id=\"analysis-text\">{}</pre>\n",
+        escape(&a.text)
+    ));
+    h.push_str("</section>\n</body>\n</html>\n");
+    Ok(h)
+}
+
+/// Counts shown in the report's truncation table: 1–12, about 25 spread out, the marked ones and the last.
+fn shown_counts(n: usize, keep: &[usize]) -> Vec<usize> {
+    let step = (n / 25).max(1);
+    let mut counts: Vec<usize> = (1..=n.min(12)).collect();
+    counts.extend((step..=n).step_by(step).filter(|k| *k > 12));
+    counts.extend(keep.iter().copied().filter(|k| (1..=n).contains(k)));
+    counts.push(n);
+    counts.sort_unstable();
+    counts.dedup();
+    counts
+}
+
+/// The last path component of a file name.
+fn file_name(path: &str) -> String {
+    std::path::Path::new(path)
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| path.to_string())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn dates_follow_the_civil_calendar() {
+        // 0 is 1970-01-01 (Unix epoch); 951_782_400 is 2000-02-29 (a leap day); 1_700_000_000
+        // is 2023-11-14 22:13:20 UTC (common practice: well-known timestamps).
+        assert_eq!(format_utc(0), "1970-01-01 00:00 UTC");
+        assert_eq!(format_utc(951_782_400), "2000-02-29 00:00 UTC");
+        assert_eq!(format_utc(1_700_000_000), "2023-11-14 22:13 UTC");
+    }
+
+    #[test]
+    fn escapes_markup() {
+        assert_eq!(escape("a<b & \"c\""), "a&lt;b &amp; &quot;c&quot;");
+    }
+}

@@ -1,0 +1,355 @@
+//! `tunnelcast run` and `tunnelcast demo`: the output folder, the report's structure and
+//! numbers (read back and compared with the JSON outputs), re-run stability, and bad input.
+
+use assert_cmd::Command;
+use serde::Deserialize;
+use std::collections::BTreeMap;
+use std::path::Path;
+
+const DATA: &str = include_str!("../data/demo_trial.csv");
+const ANALYSIS: &str = include_str!("../data/demo_analysis.toml");
+
+/// Writes the demo analysis and its data into `dir` (with `edit` applied to the analysis).
+fn setup(dir: &Path, edit: impl Fn(&str) -> String) {
+    std::fs::write(dir.join("demo_trial.csv"), DATA).unwrap();
+    std::fs::write(dir.join("analysis.toml"), edit(ANALYSIS)).unwrap();
+}
+
+fn tunnelcast(dir: &Path) -> Command {
+    let mut cmd = Command::cargo_bin("tunnelcast").unwrap();
+    cmd.current_dir(dir);
+    cmd
+}
+
+/// Files and folders in `dir`, sorted.
+fn listing(dir: &Path) -> Vec<String> {
+    let mut names: Vec<String> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    names.sort();
+    names
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct TableFile {
+    metadata: BTreeMap<String, String>,
+    tables: Vec<JsonTable>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct JsonTable {
+    name: String,
+    columns: Vec<String>,
+    rows: Vec<Vec<serde_json::Value>>,
+}
+
+fn read_table(path: &Path) -> TableFile {
+    serde_json::from_slice(&std::fs::read(path).unwrap()).unwrap()
+}
+
+/// Cells of the HTML table with `id`, row by row.
+fn html_rows(doc: &roxmltree::Document, id: &str) -> Vec<Vec<String>> {
+    let table = doc
+        .descendants()
+        .find(|n| n.has_tag_name("table") && n.attribute("id") == Some(id))
+        .unwrap_or_else(|| panic!("table {id} missing"));
+    table
+        .descendants()
+        .filter(|n| n.has_tag_name("tbody"))
+        .flat_map(|b| b.children().filter(|n| n.has_tag_name("tr")))
+        .map(|tr| {
+            tr.children()
+                .filter(|n| n.has_tag_name("td"))
+                .map(|td| td.text().unwrap_or("").to_string())
+                .collect()
+        })
+        .collect()
+}
+
+/// The report shows numbers at 6 significant digits; equal within that rounding.
+fn close(shown: &str, exact: f64) -> bool {
+    let x: f64 = shown.parse().unwrap_or(f64::NAN);
+    (x - exact).abs() <= 1e-5 * exact.abs().max(1e-300) + 1e-300
+}
+
+#[test]
+fn run_writes_every_output_and_the_report_matches_the_json() {
+    let dir = tempfile::tempdir().unwrap();
+    setup(dir.path(), |a| a.to_string());
+    tunnelcast(dir.path())
+        .args(["run", "analysis.toml", "--out", "out"])
+        .assert()
+        .success();
+    let out = dir.path().join("out");
+    let names = listing(&out);
+    for expected in [
+        "analysis.toml",
+        "fit.json",
+        "report.html",
+        "tunnels.csv",
+        "tunnels.json",
+        "truncation.csv",
+        "truncation.json",
+        "within_cycle.csv",
+        "within_cycle.json",
+        "survival-veltranib.svg",
+        "survival-veltranib.png",
+        "hazard-standard-care.svg",
+        "diagnostics-standard-care.png",
+        "tunnels.svg",
+        "horizon.png",
+    ] {
+        assert!(
+            names.contains(&expected.to_string()),
+            "{expected} missing: {names:?}"
+        );
+    }
+    // No temporary folder left beside the output.
+    assert_eq!(
+        listing(dir.path()),
+        vec!["analysis.toml", "demo_trial.csv", "out"]
+    );
+
+    let html = std::fs::read_to_string(out.join("report.html")).unwrap();
+    let doc = roxmltree::Document::parse_with_options(
+        &html,
+        roxmltree::ParsingOptions {
+            allow_dtd: true,
+            ..Default::default()
+        },
+    )
+    .expect("report.html is well-formed");
+    for id in [
+        "data",
+        "fits",
+        "plots",
+        "chosen",
+        "tunnels",
+        "truncation",
+        "within-cycle",
+        "adjustments",
+        "draws",
+        "caution",
+        "reproducibility",
+    ] {
+        assert!(
+            doc.descendants()
+                .any(|n| n.has_tag_name("section") && n.attribute("id") == Some(id)),
+            "section {id} missing"
+        );
+    }
+    // Self-contained: no scripts, no external references.
+    assert!(!doc.descendants().any(|n| n.has_tag_name("script")));
+    assert!(!doc
+        .descendants()
+        .any(|n| n.attribute("src").is_some() || n.attribute("href").is_some()));
+    // Every plot of the run is inline.
+    let svgs = doc.descendants().filter(|n| n.has_tag_name("svg")).count();
+    assert_eq!(svgs, 3 * 2 + 2);
+
+    // Tunnel table: every shown cell equals tunnels.json.
+    let tunnels = read_table(&out.join("tunnels.json"));
+    assert_eq!(tunnels.tables[0].name, "tunnels");
+    let shown = html_rows(&doc, "table-tunnels");
+    assert_eq!(shown.len(), tunnels.tables[0].rows.len().min(240));
+    for (html_row, json_row) in shown.iter().zip(&tunnels.tables[0].rows) {
+        for (cell, value) in html_row.iter().zip(json_row) {
+            assert!(close(cell, value.as_f64().unwrap()), "{cell} vs {value}");
+        }
+    }
+    // Truncation rows: each shown count equals its JSON row.
+    let truncation = read_table(&out.join("truncation.json"));
+    let suggested: usize = truncation.metadata["suggested_count"].parse().unwrap();
+    let rows = html_rows(&doc, "table-truncation");
+    assert!(rows.iter().any(|r| r[0] == suggested.to_string()));
+    for row in &rows {
+        let k: usize = row[0].parse().unwrap();
+        let json = &truncation.tables[0].rows[k - 1];
+        assert_eq!(json[0].as_u64().unwrap() as usize, k);
+        for (cell, value) in row.iter().zip(json).skip(1) {
+            assert!(close(cell, value.as_f64().unwrap()), "{cell} vs {value}");
+        }
+    }
+    // The tunnel count is "auto": the suggested count.
+    assert_eq!(tunnels.tables[0].rows.len(), suggested);
+    // Within-cycle table.
+    let within = read_table(&out.join("within_cycle.json"));
+    assert_eq!(within.tables[0].columns[0], "method");
+    for (row, json) in html_rows(&doc, "table-within-cycle")
+        .iter()
+        .zip(&within.tables[0].rows)
+    {
+        assert_eq!(row[0], json[0].as_str().unwrap());
+        for (cell, value) in row.iter().zip(json).skip(1) {
+            assert!(close(cell, value.as_f64().unwrap()), "{cell} vs {value}");
+        }
+    }
+    // Fit comparison and the chosen curve against fit.json (deserialised by the library's type).
+    let fits: tunnelcast::fit::FitFile =
+        serde_json::from_slice(&std::fs::read(out.join("fit.json")).unwrap()).unwrap();
+    for row in html_rows(&doc, "table-fits-veltranib") {
+        let fit = fits
+            .fits
+            .iter()
+            .find(|f| f.family == row[0] && f.arm.as_deref() == Some("veltranib"))
+            .unwrap();
+        assert!(
+            close(&row[3], fit.aic.unwrap()),
+            "{} AIC {}",
+            row[0],
+            row[3]
+        );
+        assert!(close(&row[2], fit.loglik.unwrap()));
+    }
+    let best = fits
+        .fits
+        .iter()
+        .filter(|f| f.arm.as_deref() == Some("veltranib") && f.converged)
+        .min_by(|a, b| a.aic.unwrap().total_cmp(&b.aic.unwrap()))
+        .unwrap();
+    assert_eq!(tunnels.metadata["family"], best.family);
+    for row in html_rows(&doc, "table-chosen") {
+        assert!(close(&row[1], best.params[&row[0]]), "{row:?}");
+        assert!(close(&row[2], best.intervals[&row[0]][0]), "{row:?}");
+    }
+    // Reproducibility block: the data hash and the analysis file verbatim.
+    assert!(html.contains(&fits.data.sha256));
+    let verbatim = doc
+        .descendants()
+        .find(|n| n.attribute("id") == Some("analysis-text"))
+        .unwrap();
+    assert_eq!(verbatim.text().unwrap(), ANALYSIS);
+}
+
+#[test]
+fn rerun_writes_byte_identical_tables_and_needs_force() {
+    let dir = tempfile::tempdir().unwrap();
+    setup(dir.path(), |a| {
+        a.replace("horizon = \"20 years\"", "horizon = \"10 years\"")
+    });
+    tunnelcast(dir.path())
+        .args(["run", "analysis.toml", "--out", "a"])
+        .assert()
+        .success();
+    // The same analysis from another working folder, into another output folder.
+    let sub = dir.path().join("sub");
+    std::fs::create_dir(&sub).unwrap();
+    tunnelcast(&sub)
+        .args(["run", "../analysis.toml", "--out", "../b"])
+        .assert()
+        .success();
+    for name in [
+        "fit.json",
+        "tunnels.csv",
+        "tunnels.json",
+        "truncation.csv",
+        "within_cycle.json",
+    ] {
+        assert_eq!(
+            std::fs::read(dir.path().join("a").join(name)).unwrap(),
+            std::fs::read(dir.path().join("b").join(name)).unwrap(),
+            "{name} differs between runs"
+        );
+    }
+    let out = tunnelcast(dir.path())
+        .args(["run", "analysis.toml", "--out", "a"])
+        .assert()
+        .code(2)
+        .get_output()
+        .clone();
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--force"));
+    tunnelcast(dir.path())
+        .args(["run", "analysis.toml", "--out", "a", "--force"])
+        .assert()
+        .success();
+}
+
+/// Runs a broken analysis: exit 2, one line on stderr starting `error: `, nothing written.
+fn fails(edit: impl Fn(&str) -> String, data: Option<&str>) -> String {
+    let dir = tempfile::tempdir().unwrap();
+    setup(dir.path(), edit);
+    if let Some(d) = data {
+        std::fs::write(dir.path().join("demo_trial.csv"), d).unwrap();
+    }
+    let before = listing(dir.path());
+    let out = tunnelcast(dir.path())
+        .args(["run", "analysis.toml", "--out", "out"])
+        .assert()
+        .code(2)
+        .get_output()
+        .clone();
+    let stderr = String::from_utf8(out.stderr).unwrap();
+    assert_eq!(stderr.lines().count(), 1, "{stderr}");
+    assert!(stderr.starts_with("error: "), "{stderr}");
+    assert!(!stderr.contains("panicked"));
+    assert_eq!(
+        listing(dir.path()),
+        before,
+        "no output folder, no temporary folder"
+    );
+    stderr
+}
+
+#[test]
+fn bad_analysis_files_give_one_line_errors_and_no_folder() {
+    let e = fails(
+        |a| a.replace("cycle = \"1 month\"", "cycle = \"1 month"),
+        None,
+    );
+    assert!(e.starts_with("error: analysis.toml line 18 column "), "{e}");
+    let e = fails(|a| a.replace("tolerance =", "tolerence ="), None);
+    assert!(
+        e.contains("line 21 column 1") && e.contains("did you mean \"tolerance\""),
+        "{e}"
+    );
+    let e = fails(|a| a.replace("\"demo_trial.csv\"", "\"missing.csv\""), None);
+    assert!(
+        e.contains("line 6 column 8") && e.contains("missing.csv"),
+        "{e}"
+    );
+    let e = fails(
+        |a| a.replace("arm = \"veltranib\"", "arm = \"placebo\""),
+        None,
+    );
+    assert!(e.contains("no arm \"placebo\""), "{e}");
+}
+
+#[test]
+fn a_chosen_family_that_failed_to_fit_is_an_error() {
+    // Six events at nearly the same time: the log-normal's sigma runs to its boundary (the
+    // fitter reports it as not converged).
+    let data = "time,event,arm\n2,1,veltranib\n2,1,veltranib\n2,1,veltranib\n2,1,veltranib\n2,1,veltranib\n2.001,1,veltranib\n";
+    let e = fails(
+        |a| a.replace("choose = \"best-aic\"", "choose = \"lognormal\""),
+        Some(data),
+    );
+    assert!(e.contains("[fit] choose: the lognormal fit failed"), "{e}");
+}
+
+#[test]
+fn demo_runs_in_a_fresh_folder_and_replaces_only_its_own_output() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = tunnelcast(dir.path())
+        .arg("demo")
+        .assert()
+        .success()
+        .get_output()
+        .clone();
+    let stdout = String::from_utf8(out.stdout).unwrap();
+    assert!(stdout.contains("tunnelcast-demo/report.html"), "{stdout}");
+    assert!(stdout.contains("Caution"));
+    assert!(dir.path().join("tunnelcast-demo/report.html").is_file());
+    // Rerunnable: it replaces its own earlier output.
+    tunnelcast(dir.path()).arg("demo").assert().success();
+    // But never a folder of the user's.
+    std::fs::create_dir(dir.path().join("mine")).unwrap();
+    std::fs::write(dir.path().join("mine/notes.txt"), "keep").unwrap();
+    tunnelcast(dir.path())
+        .args(["demo", "--out", "mine"])
+        .assert()
+        .code(2);
+    assert_eq!(listing(&dir.path().join("mine")), vec!["notes.txt"]);
+}
