@@ -31,6 +31,8 @@ pub enum Command {
     Horizon(cmd::horizon::HorizonArgs),
     /// Run a whole analysis described in a TOML file: fits, tables, plots and report.html.
     Run(cmd::run::RunArgs),
+    /// Uncertainty draws of the tunnel table (multivariate normal or bootstrap) with a p_exit summary.
+    Draws(cmd::draws::DrawsArgs),
     /// Rebuild patient-level data from a digitised Kaplan–Meier figure (Guyot et al., 2012).
     Rebuild(cmd::rebuild::RebuildArgs),
 }
@@ -43,6 +45,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Tunnels(args) => cmd::tunnels::run(args),
         Command::Horizon(args) => cmd::horizon::run(args),
         Command::Run(args) => cmd::run::run(args),
+        Command::Draws(args) => cmd::draws::run(args),
         Command::Rebuild(args) => cmd::rebuild::run(args),
     }
 }
