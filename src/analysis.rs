@@ -248,7 +248,7 @@ impl Analysis {
             arm: None,
         });
         let families = match &fit.families {
-            None => families::STANDARD.to_vec(),
+            None => families::defaults(),
             Some(list) => {
                 if list.get_ref().is_empty() {
                     return Err(bad(list.span(), "[fit] families is empty".into()));

@@ -239,7 +239,8 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
             .iter()
             .filter(|f| f.arm.as_deref() == label)
             .map(|f| {
-                let params = crate::families::by_name(&f.family)
+                let params = f
+                    .family()
                     .map(|fam| {
                         fam.param_names()
                             .iter()

@@ -297,7 +297,7 @@ pub fn compute(analysis: Analysis, data_bytes: &[u8]) -> Result<RunResult> {
             (fit.clone(), "named in the analysis file".to_string())
         }
     };
-    let family = crate::families::by_name(&chosen.family).map_err(Error::Computation)?;
+    let family = chosen.family().map_err(Error::Computation)?;
     let params = chosen
         .param_vector(family)
         .ok_or_else(|| Error::Computation(format!("the {} fit lacks parameters", family.name())))?;

@@ -182,7 +182,7 @@ pub fn fitted_curves(file: &FitFile, arm: Option<&str>) -> Vec<(String, Parametr
         .iter()
         .filter(|f| f.arm.as_deref() == arm && f.converged)
         .filter_map(|f| {
-            let family = crate::families::by_name(&f.family).ok()?;
+            let family = f.family().ok()?;
             let params = f.param_vector(family)?;
             let curve = ParametricCurve::new(family, params, file.data.time_unit).ok()?;
             Some((f.family.clone(), curve))
