@@ -866,8 +866,8 @@ mod tests {
         // family grows without bound as the curve sharpens into a step (shape → ∞ or
         // sigma → 0), while the exponential has its closed-form estimate 8 events / 40 days.
         let recs = records(&[(5.0, true); 8]);
-        let fits = fit_arm(&families::all(), &recs, None);
-        assert_eq!(fits.len(), families::all().len());
+        let fits = fit_arm(&families::STANDARD, &recs, None);
+        assert_eq!(fits.len(), 5);
         assert_eq!(fits[0].family, "exponential");
         assert!(fits[0].converged);
         assert!((fits[0].params["rate"] - 0.2).abs() < 1e-12);
