@@ -27,6 +27,12 @@ pub trait Curve: Send + Sync {
         None
     }
 
+    /// Extra per-cycle values the curve reports beside its probabilities over [t0, t1), by column
+    /// name (e.g. the share of the cycle in which a background-mortality floor binds). Empty by default.
+    fn cycle_columns(&self, _t0: f64, _t1: f64) -> Vec<(&'static str, f64)> {
+        Vec::new()
+    }
+
     /// One-line description for headers and reports (family, parameters, adjustments).
     fn describe(&self) -> String;
 
@@ -86,11 +92,11 @@ impl ParametricCurve {
 
     /// The same curve with time measured in `unit` (parameters rescaled exactly, not the time grid).
     pub fn in_unit(&self, unit: TimeUnit) -> ParametricCurve {
+        let factor = self.unit.factor_to(unit);
         ParametricCurve {
-            family: self.family,
-            params: self
-                .family
-                .rescale_time(&self.params, self.unit.factor_to(unit)),
+            // Families with time-valued settings (cut points, knots) move them too.
+            family: self.family.rescaled_family(factor).unwrap_or(self.family),
+            params: self.family.rescale_time(&self.params, factor),
             unit,
         }
     }

@@ -74,13 +74,21 @@ pub fn tunnel_table(curve: &dyn Curve, cycle: Duration, count: usize) -> TunnelT
             p_exit,
             p_next: 1.0 - p_exit,
         });
-        if let Some(causes) = curve.exit_by_cause(t_start * to_curve, t_end * to_curve) {
-            for (name, p) in causes {
-                let column = format!("p_exit_{name}");
-                match by_cause.iter_mut().find(|(n, _)| *n == column) {
-                    Some((_, values)) => values.push(p),
-                    None => by_cause.push((column, vec![p])),
-                }
+        let (c0, c1) = (t_start * to_curve, t_end * to_curve);
+        let causes = curve.exit_by_cause(c0, c1).unwrap_or_default();
+        let named = causes
+            .into_iter()
+            .map(|(name, p)| (format!("p_exit_{name}"), p))
+            .chain(
+                curve
+                    .cycle_columns(c0, c1)
+                    .into_iter()
+                    .map(|(name, v)| (name.to_string(), v)),
+            );
+        for (column, value) in named {
+            match by_cause.iter_mut().find(|(n, _)| *n == column) {
+                Some((_, values)) => values.push(value),
+                None => by_cause.push((column, vec![value])),
             }
         }
         log_s0 = log_s1;
@@ -207,5 +215,245 @@ mod tests {
         assert_eq!(exit_probability(-800.0, f64::NEG_INFINITY), 1.0);
         // Tiny probabilities keep their precision: 1 - e^-x = x - x²/2 + … for x = 1e-12.
         assert!((exit_probability(0.0, -1e-12) - (1e-12 - 0.5e-24)).abs() < 1e-27);
+    }
+
+    #[test]
+    fn per_cycle_probability_reexpressed_for_another_cycle_by_powers_not_scaling() {
+        // Constant hazard: p = 1 - exp(-r·Δ), and a probability for cycle Δ1 becomes
+        // 1 - (1 - p)^(Δ2/Δ1) for cycle Δ2, not p·Δ2/Δ1 (Fleurence and Hollenbeak, 2007,
+        // PharmacoEconomics 25(1), "Rates and probabilities in economic modelling"; Briggs,
+        // Claxton and Sculpher, 2006, section 3.3).
+        let rate = 0.04;
+        let curve = ParametricCurve::new(&Exponential, vec![rate], TimeUnit::Months).unwrap();
+        let month = tunnel_table(
+            &curve,
+            Duration {
+                value: 1.0,
+                unit: TimeUnit::Months,
+            },
+            1,
+        );
+        let quarter = tunnel_table(
+            &curve,
+            Duration {
+                value: 3.0,
+                unit: TimeUnit::Months,
+            },
+            1,
+        );
+        let p1 = month.rows[0].p_exit;
+        let p3 = quarter.rows[0].p_exit;
+        assert!((p1 - (1.0 - (-rate).exp())).abs() < 1e-15);
+        assert!((p3 - (1.0 - (1.0 - p1).powf(3.0))).abs() < 1e-15);
+        // Linear scaling is wrong by more than rounding: 3·p1 overstates the quarterly probability.
+        assert!(3.0 * p1 - p3 > 1e-3);
+        // Non-whole ratios too: 10 days from a 1-week probability.
+        let week = tunnel_table(
+            &curve,
+            Duration {
+                value: 1.0,
+                unit: TimeUnit::Weeks,
+            },
+            1,
+        );
+        let ten_days = tunnel_table(
+            &curve,
+            Duration {
+                value: 10.0,
+                unit: TimeUnit::Days,
+            },
+            1,
+        );
+        let expected = 1.0 - (1.0 - week.rows[0].p_exit).powf(10.0 / 7.0);
+        assert!((ten_days.rows[0].p_exit - expected).abs() < 1e-15);
+    }
+
+    #[test]
+    fn matrix_rows_sum_to_one_and_cohort_reproduces_survival() {
+        // Interface contract: rows sum to 1; pushing a cohort through the matrix for k cycles
+        // gives S(k·cycle) while k ≤ count (identity of the chain).
+        let curve = ParametricCurve::new(&Weibull, vec![1.3, 18.0], TimeUnit::Months).unwrap();
+        let cycle = Duration {
+            value: 1.0,
+            unit: TimeUnit::Months,
+        };
+        let table = tunnel_table(&curve, cycle, 24);
+        let m = transition_matrix(&table);
+        for row in &m {
+            assert!((row.iter().sum::<f64>() - 1.0).abs() < 1e-12);
+        }
+        let mut cohort = vec![0.0; m.len()];
+        cohort[0] = 1.0;
+        for k in 1..=24 {
+            let mut next = vec![0.0; m.len()];
+            for (i, share) in cohort.iter().enumerate() {
+                for (j, p) in m[i].iter().enumerate() {
+                    next[j] += share * p;
+                }
+            }
+            cohort = next;
+            let alive: f64 = cohort[..24].iter().sum();
+            assert!((alive - curve.survival(k as f64)).abs() < 1e-12, "k={k}");
+        }
+    }
+
+    #[test]
+    fn count_until_rounds_up_to_whole_cycles() {
+        let month = Duration {
+            value: 1.0,
+            unit: TimeUnit::Months,
+        };
+        let year = Duration {
+            value: 1.0,
+            unit: TimeUnit::Years,
+        };
+        assert_eq!(count_until(month, year), Ok(12));
+        let four_weeks = Duration {
+            value: 4.0,
+            unit: TimeUnit::Weeks,
+        };
+        // 365.25 / 28 = 13.04…: 14 cycles reach a year.
+        assert_eq!(count_until(four_weeks, year), Ok(14));
+        assert!(count_until(year, month).is_err());
+    }
+
+    #[test]
+    fn tails_stay_finite_plateau_to_zero_and_certain_exit_after_zero() {
+        use crate::families::Gompertz;
+        // Far tails of every family: no NaN and probabilities in [0, 1], even where survival
+        // is far below 1e-300 (p_exit then still comes from log-survival differences).
+        let extreme: [(&str, Vec<f64>); 5] = [
+            ("exponential", vec![5.0]),
+            ("weibull", vec![3.0, 2.0]),
+            ("lognormal", vec![0.0, 0.2]),
+            ("loglogistic", vec![120.0, 1.0]),
+            ("gompertz", vec![1.5, 0.5]),
+        ];
+        for family in crate::families::STANDARD {
+            let params = &extreme.iter().find(|(n, _)| *n == family.name()).unwrap().1;
+            let curve = ParametricCurve::new(family, params.clone(), TimeUnit::Months).unwrap();
+            let table = tunnel_table(
+                &curve,
+                Duration {
+                    value: 1.0,
+                    unit: TimeUnit::Months,
+                },
+                2000,
+            );
+            for row in &table.rows {
+                for x in [row.surv_start, row.surv_end, row.p_exit, row.p_next] {
+                    assert!(
+                        x.is_finite() && (0.0..=1.0).contains(&x),
+                        "{} {row:?}",
+                        family.name()
+                    );
+                }
+            }
+            assert!(
+                table.rows.last().unwrap().surv_end < 1e-300,
+                "{} tail not reached",
+                family.name()
+            );
+        }
+        // Gompertz with negative shape levels off at exp(rate/shape): p_exit → 0.
+        let plateau = ParametricCurve::new(&Gompertz, vec![-0.5, 0.1], TimeUnit::Months).unwrap();
+        let table = tunnel_table(
+            &plateau,
+            Duration {
+                value: 1.0,
+                unit: TimeUnit::Months,
+            },
+            200,
+        );
+        let last = table.rows.last().unwrap();
+        assert!(last.p_exit < 1e-40 && last.p_exit >= 0.0);
+        assert!((last.surv_end - (0.1f64 / -0.5).exp()).abs() < 1e-12);
+        // Survival exactly 0 (log-survival -∞): exit is certain and stays defined afterwards.
+        let steep = ParametricCurve::new(&Gompertz, vec![20.0, 1.0], TimeUnit::Months).unwrap();
+        let table = tunnel_table(
+            &steep,
+            Duration {
+                value: 1.0,
+                unit: TimeUnit::Months,
+            },
+            60,
+        );
+        for row in &table.rows[40..] {
+            assert_eq!((row.p_exit, row.p_next, row.surv_end), (1.0, 0.0, 0.0));
+        }
+    }
+
+    #[test]
+    fn fitting_in_days_or_months_gives_the_same_tunnel_table() {
+        // Interface contract: converting a curve's unit rescales its parameters exactly, so the
+        // same data fitted in days (then converted) and in months give one table; 1e-9 allows
+        // for the optimiser's own tolerance on each fit.
+        use crate::fit::{fit_family, FitData};
+        use crate::input::Record;
+        // Invented data: a seeded linear congruential generator drawing Weibull times (shape
+        // 1.3, scale 500 days) with uniform censoring; no external source.
+        let mut state: u64 = 20_261_202;
+        let mut uniform = || {
+            state = state
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407);
+            ((state >> 11) as f64 + 0.5) / (1u64 << 53) as f64
+        };
+        let mut days = Vec::new();
+        for _ in 0..300 {
+            let event_time = 500.0 * (-uniform().ln()).powf(1.0 / 1.3);
+            let censor = 1500.0 * uniform();
+            days.push(Record {
+                time: event_time.min(censor),
+                event: event_time <= censor,
+            });
+        }
+        days.sort_by(|a, b| a.time.total_cmp(&b.time).then(b.event.cmp(&a.event)));
+        let per_month = TimeUnit::Days.factor_to(TimeUnit::Months);
+        let months: Vec<Record> = days
+            .iter()
+            .map(|r| Record {
+                time: r.time * per_month,
+                event: r.event,
+            })
+            .collect();
+        let cycle = Duration {
+            value: 1.0,
+            unit: TimeUnit::Months,
+        };
+        for family in crate::families::STANDARD {
+            let fit_days = fit_family(family, &FitData::from_records(&days), None);
+            let fit_months = fit_family(family, &FitData::from_records(&months), None);
+            assert!(
+                fit_days.converged && fit_months.converged,
+                "{}",
+                family.name()
+            );
+            let in_days = ParametricCurve::new(
+                family,
+                fit_days.param_vector(family).unwrap(),
+                TimeUnit::Days,
+            )
+            .unwrap()
+            .in_unit(TimeUnit::Months);
+            let in_months = ParametricCurve::new(
+                family,
+                fit_months.param_vector(family).unwrap(),
+                TimeUnit::Months,
+            )
+            .unwrap();
+            let a = tunnel_table(&in_days, cycle, 60);
+            let b = tunnel_table(&in_months, cycle, 60);
+            for (x, y) in a.rows.iter().zip(&b.rows) {
+                assert!(
+                    (x.p_exit - y.p_exit).abs() < 1e-9,
+                    "{} tunnel {}: {} vs {}",
+                    family.name(),
+                    x.tunnel,
+                    x.p_exit,
+                    y.p_exit
+                );
+            }
+        }
     }
 }

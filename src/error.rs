@@ -1,5 +1,6 @@
 //! The one error type of the library, carrying what a user needs to fix the problem,
-//! and the mapping to exit codes (0 success, 1 computation failed, 2 bad usage or input).
+//! and the mapping to exit codes (0 success, 1 computation failed, 2 bad usage or input, 128 + signal
+//! number when interrupted).
 
 use std::path::Path;
 
@@ -27,6 +28,14 @@ pub enum Error {
     /// The computation itself failed (no family converged, a numerical failure).
     #[error("{0}")]
     Computation(String),
+    /// The run was stopped by a signal (SIGINT or SIGTERM) before its output was written.
+    #[error("interrupted by {name}; no output file was written")]
+    Interrupted {
+        /// Signal number (2 for SIGINT, 15 for SIGTERM).
+        signal: i32,
+        /// Signal name.
+        name: &'static str,
+    },
 }
 
 impl Error {
@@ -34,6 +43,8 @@ impl Error {
     pub fn exit_code(&self) -> i32 {
         match self {
             Error::Computation(_) => 1,
+            // Shell convention: 128 + signal number (130 for SIGINT, 143 for SIGTERM).
+            Error::Interrupted { signal, .. } => 128 + signal,
             _ => 2,
         }
     }

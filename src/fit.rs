@@ -210,9 +210,18 @@ pub struct FamilyFit {
     pub gradient_max: Option<f64>,
     /// Why the family did not converge, when it did not.
     pub message: Option<String>,
+    /// Settings of a configured family (cut points, spline scale and knots); absent otherwise.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub settings: Option<families::FamilySettings>,
 }
 
 impl FamilyFit {
+    /// The fitted family, rebuilt with its recorded settings (knots, cut points): use this, not
+    /// [`families::by_name`], to turn a fit back into a curve.
+    pub fn family(&self) -> std::result::Result<&'static dyn Family, String> {
+        families::configured(&self.family, self.settings.as_ref())
+    }
+
     /// Natural parameters in the family's own order.
     pub fn param_vector(&self, family: &dyn Family) -> Option<Vec<f64>> {
         family
@@ -351,8 +360,11 @@ fn newton_polish(family: &dyn Family, data: &FitData, mut theta: Vec<f64>) -> Ve
                 .zip(&step)
                 .map(|(t, s)| t + scale * s)
                 .collect();
-            let (trial_ll, _) = family.loglik_grad(&trial, data);
-            if trial_ll.is_finite() && trial_ll >= ll {
+            let (trial_ll, trial_grad) = family.loglik_grad(&trial, data);
+            // At the optimum the log-likelihood is flat to rounding, so a step that shrinks the
+            // gradient without lowering the log-likelihood beyond rounding also counts.
+            let flat = trial_ll >= ll - 1e-13 * ll.abs() && max_abs(&trial_grad) < max_abs(&grad);
+            if trial_ll.is_finite() && (trial_ll >= ll || flat) {
                 theta = trial;
                 ll = trial_ll;
                 improved = true;
@@ -409,6 +421,7 @@ pub fn fit_family(family: &dyn Family, data: &FitData, arm: Option<&str>) -> Fam
         median: None,
         gradient_max: None,
         message: None,
+        settings: family.settings(),
     };
     let Some((ll, theta)) = best else {
         fit.message = Some("no starting point gave a finite log-likelihood".into());
@@ -461,14 +474,55 @@ pub fn fit_family(family: &dyn Family, data: &FitData, arm: Option<&str>) -> Fam
             describe(family, &theta)
         ));
     }
-    if !params_ok && fit.message.is_none() {
+    if let (Err(why), None) = (family.check_params(&params), &fit.message) {
         fit.message = Some(format!(
-            "estimates out of range at {}",
+            "estimates out of range at {}: {why}",
             describe(family, &theta)
         ));
     }
     fit.converged = covariance.is_some() && gradient_ok && params_ok;
+    keep_finite(&mut fit);
     fit
+}
+
+/// Drops non-finite numbers from a fit (JSON has no NaN or infinity, and a `null` where a
+/// number is expected would make the fit file unreadable); a fit that loses any is not converged.
+fn keep_finite(fit: &mut FamilyFit) {
+    let finite = |x: &f64| x.is_finite();
+    let mut lost = false;
+    let before = fit.params.len();
+    fit.params.retain(|_, v| v.is_finite());
+    lost |= fit.params.len() != before;
+    if !fit.estimates.iter().all(finite) {
+        fit.estimates.clear();
+        lost = true;
+    }
+    fit.intervals
+        .retain(|_, [a, b]| a.is_finite() && b.is_finite());
+    if fit
+        .covariance
+        .as_ref()
+        .is_some_and(|c| !c.matrix.iter().flatten().all(finite))
+    {
+        fit.covariance = None;
+        lost = true;
+    }
+    for value in [
+        &mut fit.loglik,
+        &mut fit.aic,
+        &mut fit.bic,
+        &mut fit.median,
+        &mut fit.gradient_max,
+    ] {
+        *value = value.filter(finite);
+    }
+    if lost && fit.converged {
+        fit.converged = false;
+    }
+    if lost && fit.message.is_none() {
+        fit.message =
+            Some("an estimate is not a finite number (over- or underflow at extreme times)".into());
+    }
 }
 
 fn describe(family: &dyn Family, theta: &[f64]) -> String {
@@ -491,10 +545,35 @@ pub fn fit_arm(
     let data = FitData::from_records(records);
     let mut fits: Vec<FamilyFit> = families
         .par_iter()
-        .map(|f| fit_family(*f, &data, arm))
+        .map(|f| match f.for_data(&data) {
+            Ok(configured) => fit_family(configured.unwrap_or(*f), &data, arm),
+            Err(why) => failed_fit(*f, arm, why),
+        })
         .collect();
     rank_by_aic(&mut fits);
     fits
+}
+
+/// The record of a family that could not be fitted to this arm at all (e.g. a piecewise
+/// interval without events), so that it is reported beside the others.
+fn failed_fit(family: &dyn Family, arm: Option<&str>, why: String) -> FamilyFit {
+    FamilyFit {
+        family: family.name().to_string(),
+        arm: arm.map(str::to_string),
+        params: BTreeMap::new(),
+        loglik: None,
+        aic: None,
+        bic: None,
+        converged: false,
+        covariance: None,
+        estimates: Vec::new(),
+        intervals: BTreeMap::new(),
+        delta_aic: None,
+        median: None,
+        gradient_max: None,
+        message: Some(why),
+        settings: family.settings(),
+    }
 }
 
 /// Sorts fits by AIC (converged first) and sets ΔAIC against the best converged fit.
@@ -637,19 +716,44 @@ pub struct FitFile {
     pub fits: Vec<FamilyFit>,
 }
 
-/// Resolves `--families` (empty = all standard families).
+/// Resolves `--families` (empty = the default families: the standard five plus `gengamma`).
 pub fn select_families(names: &[String]) -> Result<Vec<&'static dyn Family>> {
-    if names.is_empty() {
-        return Ok(families::STANDARD.to_vec());
-    }
-    let mut out: Vec<&'static dyn Family> = Vec::new();
-    for name in names {
-        let family = families::by_name(name).map_err(Error::Usage)?;
-        if !out.iter().any(|f| f.name() == family.name()) {
-            out.push(family);
+    select_families_with(names, &families::FamilyOptions::default())
+}
+
+/// Resolves `--families` and configures the flexible ones with `--cuts`/`--knots` (data's
+/// time unit); an option that no selected family uses is an error rather than silently ignored.
+pub fn select_families_with(
+    names: &[String],
+    options: &families::FamilyOptions,
+) -> Result<Vec<&'static dyn Family>> {
+    let selected = if names.is_empty() {
+        families::defaults()
+    } else {
+        let mut out: Vec<&'static dyn Family> = Vec::new();
+        for name in names {
+            let family = families::by_name(name).map_err(Error::Usage)?;
+            if !out.iter().any(|f| f.name() == family.name()) {
+                out.push(family);
+            }
         }
+        out
+    };
+    if options.cuts.is_some() && !selected.iter().any(|f| f.name() == "piecewise") {
+        return Err(Error::Usage(
+            "--cuts sets the cut points of the piecewise family; add piecewise to --families"
+                .into(),
+        ));
     }
-    Ok(out)
+    if options.knots.is_some() && !selected.iter().any(|f| f.name().starts_with("spline-")) {
+        return Err(Error::Usage(
+            "--knots sets the knots of the spline families; add one (e.g. spline-hazard-2) to --families".into(),
+        ));
+    }
+    selected
+        .into_iter()
+        .map(|f| families::with_options(f, options).map_err(Error::Usage))
+        .collect()
 }
 
 /// Fits every selected family to every arm of a validated dataset.
@@ -754,6 +858,43 @@ mod tests {
                 );
             }
         }
+    }
+
+    #[test]
+    fn families_running_to_a_boundary_are_reported_while_others_fit() {
+        // Every subject has its event at the same time: the likelihood of every two-parameter
+        // family grows without bound as the curve sharpens into a step (shape → ∞ or
+        // sigma → 0), while the exponential has its closed-form estimate 8 events / 40 days.
+        let recs = records(&[(5.0, true); 8]);
+        let fits = fit_arm(&families::STANDARD, &recs, None);
+        assert_eq!(fits.len(), 5);
+        assert_eq!(fits[0].family, "exponential");
+        assert!(fits[0].converged);
+        assert!((fits[0].params["rate"] - 0.2).abs() < 1e-12);
+        assert_eq!(fits[0].delta_aic, Some(0.0));
+        for fit in &fits[1..] {
+            assert!(!fit.converged, "{} converged", fit.family);
+            let message = fit.message.as_deref().unwrap_or_default();
+            assert!(!message.is_empty(), "{}: no reason given", fit.family);
+        }
+    }
+
+    #[test]
+    fn gompertz_running_away_is_reported() {
+        // All events come after every censoring, at the last time: the Gompertz hazard can
+        // concentrate there without limit (shape → ∞); the fit must say so.
+        let recs = records(&[
+            (1.0, false),
+            (2.0, false),
+            (3.0, false),
+            (4.0, false),
+            (10.0, true),
+            (10.0, true),
+        ]);
+        let data = FitData::from_records(&recs);
+        let fit = fit_family(families::by_name("gompertz").unwrap(), &data, None);
+        assert!(!fit.converged);
+        assert!(fit.message.is_some());
     }
 
     #[test]

@@ -109,7 +109,7 @@ pub fn load(path: &Path, options: &InputOptions) -> Result<Dataset> {
 pub fn detect_delimiter(bytes: &[u8]) -> u8 {
     let header_end = bytes
         .iter()
-        .position(|&b| b == b'\n')
+        .position(|&b| b == b'\n' || b == b'\r')
         .unwrap_or(bytes.len());
     let header = &bytes[..header_end];
     let count = |d: u8| header.iter().filter(|&&b| b == d).count();
@@ -123,6 +123,49 @@ pub fn detect_delimiter(bytes: &[u8]) -> u8 {
 pub fn strip_bom(bytes: &[u8]) -> &[u8] {
     bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes)
 }
+
+/// Longest piece of a user's value quoted back in a message; a 50 MB field must not become a
+/// 50 MB error line.
+const SHOWN_CHARS: usize = 40;
+
+/// A value as quoted in a one-line message: control characters escaped (no line breaks, NULs
+/// or terminal escapes reach the terminal) and long values cut with an ellipsis.
+pub fn shown(text: &str) -> String {
+    let mut out = String::new();
+    for (i, c) in text.chars().enumerate() {
+        if i == SHOWN_CHARS {
+            out.push('…');
+            break;
+        }
+        if c.is_control() {
+            out.extend(c.escape_default());
+        } else {
+            out.push(c);
+        }
+    }
+    out
+}
+
+/// 1-based line of the first non-blank byte at or after `offset` in `body`, counting LF, CRLF
+/// and lone CR as line ends (the csv reader's own line count misses lone CRs and points at
+/// blank lines before a record).
+pub fn line_at(body: &[u8], offset: u64) -> u64 {
+    let mut start = (offset as usize).min(body.len());
+    while start < body.len() && (body[start] == b'\n' || body[start] == b'\r') {
+        start += 1;
+    }
+    let before = &body[..start];
+    let mut lines = 1;
+    for (i, &b) in before.iter().enumerate() {
+        if b == b'\n' || (b == b'\r' && before.get(i + 1) != Some(&b'\n')) {
+            lines += 1;
+        }
+    }
+    lines
+}
+
+/// Most distinct arms accepted; more means `--arm-col` probably names a subject identifier.
+pub const MAX_ARMS: usize = 1000;
 
 /// Finds a named column in a header; errors when missing or duplicated.
 pub fn find_column(file: &str, headers: &csv::ByteRecord, name: &str) -> Result<usize> {
@@ -138,17 +181,18 @@ pub fn find_column(file: &str, headers: &csv::ByteRecord, name: &str) -> Result<
             let names: Vec<String> = headers
                 .iter()
                 .take(12)
-                .map(|h| String::from_utf8_lossy(h).trim().to_string())
+                .map(|h| shown(String::from_utf8_lossy(h).trim()))
                 .collect();
             let refs: Vec<&str> = names.iter().map(String::as_str).collect();
             let hint = crate::units::nearest(name, &refs)
                 .map(|n| format!(" (did you mean \"{n}\"?)"))
                 .unwrap_or_default();
+            let name = shown(name);
             Err(Error::at(
                 file,
                 1,
                 headers.len().max(1),
-                name,
+                &name,
                 format!(
                     "no column named \"{name}\"{hint}; the header has: {}{}",
                     names.join(", "),
@@ -178,14 +222,17 @@ pub fn parse_number(raw: &str) -> std::result::Result<f64, String> {
     }
     match text.parse::<f64>() {
         Ok(v) if v.is_finite() => Ok(v),
-        Ok(v) => Err(format!("\"{text}\" is not a finite number ({v})")),
+        Ok(v) => Err(format!("\"{}\" is not a finite number ({v})", shown(text))),
         Err(_) => {
-            let hint = if text.contains(',') && text.replace(',', ".").parse::<f64>().is_ok() {
-                " (a decimal comma? write decimals with a point, e.g. 1.5)"
+            let hint = if text.contains(',')
+                && (text.replace(',', ".").parse::<f64>().is_ok()
+                    || text.replace(',', "").parse::<f64>().is_ok())
+            {
+                " (a decimal comma or a thousands separator? write plain numbers with a decimal point, e.g. 1234.5)"
             } else {
                 ""
             };
-            Err(format!("\"{text}\" is not a number{hint}"))
+            Err(format!("\"{}\" is not a number{hint}", shown(text)))
         }
     }
 }
@@ -193,6 +240,15 @@ pub fn parse_number(raw: &str) -> std::result::Result<f64, String> {
 /// Validates the bytes of a time-to-event CSV into a sorted dataset.
 pub fn parse(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Dataset> {
     let sha256 = sha256_hex(bytes);
+    if bytes.starts_with(b"\xFF\xFE") || bytes.starts_with(b"\xFE\xFF") {
+        return Err(Error::at(
+            file,
+            1,
+            1,
+            &options.time_col,
+            "the file is UTF-16 encoded; save it as UTF-8 CSV",
+        ));
+    }
     let body = strip_bom(bytes);
     if body.iter().all(|b| b.is_ascii_whitespace()) {
         return Err(Error::input(
@@ -216,57 +272,70 @@ pub fn parse(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Dataset
         Some(name) => Some(find_column(file, &headers, name)?),
         None => None,
     };
-    let needed = time_idx.max(event_idx).max(arm_idx.unwrap_or(0));
 
     let mut arms: Vec<ArmData> = Vec::new();
+    let mut arm_slots: std::collections::HashMap<Option<String>, usize> =
+        std::collections::HashMap::new();
     let mut zero_times_replaced = 0;
     let mut record = csv::ByteRecord::new();
     loop {
-        let line_hint = reader.position().line();
+        let offset_hint = reader.position().byte();
         match reader.read_byte_record(&mut record) {
             Ok(false) => break,
             Ok(true) => {}
             Err(e) => {
-                let line = e.position().map(|p| p.line()).unwrap_or(line_hint);
+                let offset = e.position().map(|p| p.byte()).unwrap_or(offset_hint);
                 return Err(Error::input(
                     file,
-                    format!("line {line}: malformed CSV: {e}"),
+                    format!("line {}: malformed CSV: {e}", line_at(body, offset)),
                 ));
             }
         }
-        let line = record.position().map(|p| p.line()).unwrap_or(line_hint);
-        if record.len() == 1 && record.get(0).is_some_and(|f| f.trim_ascii().is_empty()) {
+        let offset = record.position().map(|p| p.byte()).unwrap_or(offset_hint);
+        let line = || line_at(body, offset);
+        // Blank lines and rows of empty fields (spreadsheets export ",," for empty rows) carry no data.
+        if record.iter().all(|f| f.trim_ascii().is_empty()) {
             continue;
         }
-        if record.len() <= needed {
+        // Extra trailing fields are tolerated only when empty (a trailing delimiter); any other
+        // mismatch means the columns are not where the header says they are.
+        let filled = record
+            .iter()
+            .rposition(|f| !f.trim_ascii().is_empty())
+            .map_or(0, |i| i + 1);
+        if record.len() < headers.len() || filled > headers.len() {
+            let (fields, column) = if record.len() < headers.len() {
+                (record.len(), record.len() + 1)
+            } else {
+                (filled, headers.len() + 1)
+            };
+            let name = headers
+                .get(column - 1)
+                .map(|h| shown(String::from_utf8_lossy(h).trim()))
+                .unwrap_or_else(|| "beyond the header".into());
             return Err(Error::at(
                 file,
-                line,
-                record.len() + 1,
-                headers
-                    .get(needed)
-                    .map(|h| String::from_utf8_lossy(h).into_owned())
-                    .unwrap_or_default()
-                    .as_str(),
+                line(),
+                column,
+                &name,
                 format!(
-                    "row has {} field(s) but the header has {} (wrong delimiter or a thousands separator?)",
-                    record.len(),
+                    "row has {fields} field(s) but the header has {} (wrong delimiter, a decimal comma or thousands separator, or an unquoted delimiter in a value?)",
                     headers.len()
                 ),
             ));
         }
         let field = |idx: usize, name: &str| -> Result<&str> {
             std::str::from_utf8(&record[idx])
-                .map_err(|_| Error::at(file, line, idx + 1, name, "value is not valid UTF-8"))
+                .map_err(|_| Error::at(file, line(), idx + 1, name, "value is not valid UTF-8"))
         };
         let time_name = options.time_col.as_str();
         let raw_time = field(time_idx, time_name)?;
         let mut time = parse_number(raw_time)
-            .map_err(|m| Error::at(file, line, time_idx + 1, time_name, m))?;
+            .map_err(|m| Error::at(file, line(), time_idx + 1, time_name, m))?;
         if time < 0.0 {
             return Err(Error::at(
                 file,
-                line,
+                line(),
                 time_idx + 1,
                 time_name,
                 format!("time {time} is negative"),
@@ -281,7 +350,7 @@ pub fn parse(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Dataset
                 None => {
                     return Err(Error::at(
                         file,
-                        line,
+                        line(),
                         time_idx + 1,
                         time_name,
                         "time is 0; survival times must be positive (add --zero-time VALUE to replace zero times by a stated small positive time, e.g. half a day)",
@@ -297,10 +366,13 @@ pub fn parse(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Dataset
             other => {
                 return Err(Error::at(
                     file,
-                    line,
+                    line(),
                     event_idx + 1,
                     event_name,
-                    format!("event must be 1 (event) or 0 (censored), got \"{other}\""),
+                    format!(
+                        "event must be 1 (event) or 0 (censored), got \"{}\"",
+                        shown(other)
+                    ),
                 ))
             }
         };
@@ -308,15 +380,28 @@ pub fn parse(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Dataset
             (Some(idx), Some(name)) => {
                 let value = field(idx, name)?.trim();
                 if value.is_empty() {
-                    return Err(Error::at(file, line, idx + 1, name, "arm is empty"));
+                    return Err(Error::at(file, line(), idx + 1, name, "arm is empty"));
                 }
                 Some(value.to_string())
             }
             _ => None,
         };
-        let slot = match arms.iter().position(|a| a.arm == arm) {
-            Some(i) => i,
+        let slot = match arm_slots.get(&arm) {
+            Some(&i) => i,
             None => {
+                if arms.len() == MAX_ARMS {
+                    let idx = arm_idx.unwrap_or(0);
+                    return Err(Error::at(
+                        file,
+                        line(),
+                        idx + 1,
+                        options.arm_col.as_deref().unwrap_or_default(),
+                        format!(
+                            "more than {MAX_ARMS} distinct arms; does --arm-col name the treatment arm rather than a subject identifier?"
+                        ),
+                    ));
+                }
+                arm_slots.insert(arm.clone(), arms.len());
                 arms.push(ArmData {
                     arm,
                     records: Vec::new(),
@@ -339,7 +424,7 @@ pub fn parse(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Dataset
             let which = arm
                 .arm
                 .as_ref()
-                .map(|a| format!("arm \"{a}\" has "))
+                .map(|a| format!("arm \"{}\" has ", shown(a)))
                 .unwrap_or_default();
             return Err(Error::input(
                 file,
@@ -435,5 +520,68 @@ mod tests {
         assert_eq!(data.arms.len(), 2);
         assert_eq!(data.arms[0].arm.as_deref(), Some("B"));
         assert_eq!(data.arms[0].records.len(), 2);
+    }
+
+    #[test]
+    fn extra_non_empty_field_is_rejected_not_ignored() {
+        // Before: "2,0,1" under a two-column header was read as time 2, censored, dropping the 1.
+        let err = parse_str("time,event\n2,0,1\n3,1\n")
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("line 2 column 3"), "{err}");
+        let err = parse_str("time,event,note\n2,1\n").unwrap_err().to_string();
+        assert!(err.contains("line 2 column 3"), "{err}");
+        // Trailing delimiters (empty extra fields) and all-empty rows are harmless.
+        let data = parse_str("time,event\n2,1,\n3,0,,\n,,\n").unwrap();
+        assert_eq!(data.n(), 2);
+    }
+
+    #[test]
+    fn line_numbers_count_blank_lines_and_lone_carriage_returns() {
+        let err = parse_str("time,event\n\n\n1,1\n\n2,x\n")
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("line 6 "), "{err}");
+        let err = parse_str("time,event\r1,1\r2,x\r").unwrap_err().to_string();
+        assert!(err.contains("line 3 "), "{err}");
+        let err = parse_str("time,event\r\n\r\n1,1\r\n2,x\r\n")
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("line 4 "), "{err}");
+        assert_eq!(line_at(b"a\r\nb\rc\nd", 9), 4);
+    }
+
+    #[test]
+    fn messages_stay_short_and_on_one_line() {
+        let long = "9".repeat(100_000);
+        let err = parse_str(&format!("time,event\n{long}\u{1b}\n"))
+            .unwrap_err()
+            .to_string();
+        assert!(err.len() < 300, "{} bytes", err.len());
+        let err = parse_str("ti\rme\0,event\n1,1\n").unwrap_err().to_string();
+        assert!(!err.chars().any(|c| c.is_control()), "{err:?}");
+        let err = parse("u.csv", b"\xFF\xFEt\0i\0", &InputOptions::default())
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("UTF-16"), "{err}");
+    }
+
+    #[test]
+    fn subject_identifiers_as_arms_are_refused() {
+        let options = InputOptions {
+            arm_col: Some("id".into()),
+            ..InputOptions::default()
+        };
+        let mut text = String::from("time,event,id\n");
+        for i in 0..=MAX_ARMS {
+            text.push_str(&format!("{},1,S{i}\n", i + 1));
+        }
+        let err = parse("ids.csv", text.as_bytes(), &options)
+            .unwrap_err()
+            .to_string();
+        assert!(
+            err.contains(&format!("line {} column 3", MAX_ARMS + 2)),
+            "{err}"
+        );
     }
 }

@@ -8,10 +8,12 @@
 // Matrix and grid code reads more plainly with index loops.
 #![allow(clippy::needless_range_loop)]
 
+pub mod adjust;
 pub mod cli;
 pub mod cmd;
 pub mod curve;
 pub mod discretise;
+pub mod draws;
 pub mod error;
 pub mod export;
 pub mod families;
@@ -22,6 +24,8 @@ pub mod input;
 pub mod km;
 pub mod numeric;
 pub mod output;
+pub mod plot;
+pub mod progress;
 pub mod rebuild;
 pub mod units;
 

@@ -142,7 +142,17 @@ impl FromStr for Duration {
             ));
         }
         let unit: TimeUnit = unit.parse()?;
-        Ok(Duration { value, unit })
+        let duration = Duration { value, unit };
+        // 1e308 years overflows in days, 5e-324 days underflows to 0 in years.
+        if !ALL_UNITS.iter().all(|&u| {
+            let v = duration.in_unit(u);
+            v.is_finite() && v > 0.0
+        }) {
+            return Err(format!(
+                "duration \"{text}\" is out of range (it must be positive and finite in every unit)"
+            ));
+        }
+        Ok(duration)
     }
 }
 
@@ -204,6 +214,14 @@ mod tests {
         assert!("nan days".parse::<Duration>().is_err());
         let err = "3 monhts".parse::<Duration>().unwrap_err();
         assert!(err.contains("did you mean \"months\""), "{err}");
+    }
+
+    #[test]
+    fn durations_overflowing_or_underflowing_another_unit_are_refused() {
+        // Found by the duration fuzz target's invariant (positive and finite in every unit).
+        assert!("1e308 years".parse::<Duration>().is_err());
+        assert!("5e-324 days".parse::<Duration>().is_err());
+        assert!("1e300 years".parse::<Duration>().is_ok());
     }
 
     #[test]

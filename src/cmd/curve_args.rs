@@ -83,11 +83,18 @@ impl CurveArgs {
             Some(path) => self.curve_from_fit(path, family)?,
             None => self.curve_from_params(family)?,
         };
+        // The curve's own family: for configured families (cut points, knots) the fit file's.
+        let family = built.base.family;
         built.metadata.push(("family".into(), family.name().into()));
         built.metadata.push((
             "parameters".into(),
             parameter_text(family, &built.base.params),
         ));
+        if let Some(settings) = family.settings() {
+            if let Ok(text) = serde_json::to_string(&settings) {
+                built.metadata.push(("family_settings".into(), text));
+            }
+        }
         built
             .metadata
             .push(("parameter_time_unit".into(), built.base.unit.name().into()));
@@ -115,6 +122,9 @@ impl CurveArgs {
             .find(family.name(), self.arm.as_deref())
             .map_err(|e| Error::input(&name, e))?
             .clone();
+        let family = fit
+            .family()
+            .map_err(|e| Error::input(&name, format!("the {} fit: {e}", fit.family)))?;
         let mut warnings = Vec::new();
         if !fit.converged {
             let why = fit.message.as_deref().unwrap_or("no reason recorded");

@@ -2,7 +2,7 @@
 
 use crate::error::{Error, Result};
 use crate::families;
-use crate::fit::{fit_dataset, select_families, FitFile};
+use crate::fit::{fit_dataset, select_families_with, FitFile};
 use crate::format::sig;
 use crate::input::{self, InputOptions};
 use crate::km::MedianEstimate;
@@ -14,7 +14,7 @@ use std::path::PathBuf;
 /// Options of `fit`.
 #[derive(Debug, Args)]
 #[command(after_help = concat!(
-    "Example:\n  tunnelcast fit data/demo_trial.csv --time-unit days --arm-col arm --json fit.json\n\n",
+    "Example:\n  tunnelcast fit data/demo_trial.csv --time-unit months --arm-col arm --json fit.json\n\n",
     "Caution: extrapolated survival is an assumption, not an observation. Check every extrapolation \
 against clinical opinion and external data. tunnelcast does not replace local HTA guidance or qualified review."
 ))]
@@ -33,12 +33,24 @@ pub struct FitArgs {
     /// Time unit of the data (days, weeks, months, years).
     #[arg(long, default_value = "days")]
     pub time_unit: TimeUnit,
-    /// Families to fit, comma-separated (default: all standard families).
+    /// Families to fit, comma-separated (default: the five standard families plus gengamma).
     #[arg(long, value_delimiter = ',')]
     pub families: Vec<String>,
+    /// Cut points of the piecewise family, comma-separated durations (e.g. "6 months,12 months").
+    #[arg(long, value_name = "DURATIONS")]
+    pub cuts: Option<String>,
+    /// Knots of the spline families, comma-separated durations: K internal knots, or all K + 2
+    /// with the boundary knots (default: boundaries at the extreme event times, internal knots
+    /// at equally spaced quantiles of the log event times).
+    #[arg(long, value_name = "DURATIONS")]
+    pub knots: Option<String>,
     /// Write the fits to this JSON file.
     #[arg(long)]
     pub json: Option<PathBuf>,
+    /// Write plots (Kaplan–Meier with fitted curves, hazards, straight-line diagnostics; SVG
+    /// and PNG) into this folder, extrapolated to three times the longest follow-up.
+    #[arg(long)]
+    pub plots: Option<PathBuf>,
     /// Field delimiter (detected from the header when not given).
     #[arg(long)]
     pub delimiter: Option<char>,
@@ -82,7 +94,7 @@ pub fn render_comparison(file: &FitFile) -> String {
         ));
         let mut rows = Vec::new();
         for fit in file.fits.iter().filter(|f| f.arm == arm.arm) {
-            let family = families::by_name(&fit.family).ok();
+            let family = fit.family().ok();
             let params = family
                 .map(|f| {
                     f.param_names()
@@ -137,6 +149,15 @@ pub fn render_comparison(file: &FitFile) -> String {
             &rows,
             2,
         ));
+        for fit in file.fits.iter().filter(|f| f.arm == arm.arm) {
+            if let Some(settings) = &fit.settings {
+                out.push_str(&format!(
+                    "{}: {}\n",
+                    fit.family,
+                    settings_text(settings, unit)
+                ));
+            }
+        }
         for fit in file
             .fits
             .iter()
@@ -152,11 +173,58 @@ pub fn render_comparison(file: &FitFile) -> String {
     out
 }
 
+/// One line describing a configured family's settings, times in `unit`.
+pub fn settings_text(settings: &families::FamilySettings, unit: TimeUnit) -> String {
+    let list = |v: &[f64]| {
+        v.iter()
+            .map(|x| crate::export::number_text(*x))
+            .collect::<Vec<_>>()
+            .join(", ")
+    };
+    let mut parts = Vec::new();
+    if let Some(scale) = &settings.scale {
+        parts.push(format!("scale {scale}"));
+    }
+    if let Some(knots) = &settings.knots {
+        parts.push(format!("knots at {} {unit}", list(knots)));
+    }
+    if let Some(cuts) = &settings.cuts {
+        parts.push(format!("cut points at {} {unit}", list(cuts)));
+    }
+    parts.join("; ")
+}
+
+/// Parses a comma-separated list of durations given to `option`, in the data's `unit`.
+fn parse_durations(option: &str, text: &str, unit: TimeUnit) -> Result<Vec<f64>> {
+    text.split(',')
+        .map(|part| {
+            part.parse::<crate::units::Duration>()
+                .map(|d| d.in_unit(unit))
+                .map_err(|e| Error::Usage(format!("{option}: {e}")))
+        })
+        .collect()
+}
+
 /// Runs `fit`.
 pub fn run(args: FitArgs) -> Result<()> {
-    let families = select_families(&args.families)?;
+    let options = families::FamilyOptions {
+        cuts: args
+            .cuts
+            .as_deref()
+            .map(|t| parse_durations("--cuts", t, args.time_unit))
+            .transpose()?,
+        knots: args
+            .knots
+            .as_deref()
+            .map(|t| parse_durations("--knots", t, args.time_unit))
+            .transpose()?,
+    };
+    let families = select_families_with(&args.families, &options)?;
     if let Some(path) = &args.json {
         output::check_writable(path, args.force)?;
+    }
+    if let Some(dir) = &args.plots {
+        output::check_folder(dir, args.force)?;
     }
     if let Some(z) = args.zero_time {
         if !(z.is_finite() && z > 0.0) {
@@ -197,6 +265,15 @@ pub fn run(args: FitArgs) -> Result<()> {
             .map_err(|e| Error::output(path, format!("cannot serialise: {e}")))?;
         output::write_atomic(path, &json)?;
         text.push_str(&format!("wrote {}\n", path.display()));
+    }
+    if let Some(dir) = &args.plots {
+        let longest = data.arms.iter().map(|a| a.max_time()).fold(0.0, f64::max);
+        let staged = output::StagedFolder::new(dir)?;
+        for (name, bytes) in crate::plot::fit_figures(&data, &file, 3.0 * longest)? {
+            staged.write(&name, &bytes)?;
+        }
+        staged.finish()?;
+        text.push_str(&format!("wrote plots to {}\n", dir.display()));
     }
     output::print(&text);
     if file.fits.iter().all(|f| !f.converged) {

@@ -31,10 +31,10 @@ pub struct HorizonArgs {
     #[command(flatten)]
     pub curve: CurveArgs,
     /// Cycle length, e.g. "1 month", "28 days"; the tables are in its unit.
-    #[arg(long, value_name = "DURATION")]
+    #[arg(long, value_name = "DURATION", allow_hyphen_values = true)]
     pub cycle: String,
     /// Time horizon (default: where survival first falls below 0.001, at most 100 years); rounded up to whole cycles.
-    #[arg(long, value_name = "DURATION")]
+    #[arg(long, value_name = "DURATION", allow_hyphen_values = true)]
     pub horizon: Option<String>,
     /// Tolerance for both truncation errors and for the stable-probability criterion.
     #[arg(long, default_value = "0.001", value_name = "X")]

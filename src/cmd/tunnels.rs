@@ -25,18 +25,19 @@ pub struct TunnelsArgs {
     #[command(flatten)]
     pub curve: CurveArgs,
     /// Cycle length, e.g. "1 month", "28 days", "0.25 years".
-    #[arg(long, value_name = "DURATION")]
+    #[arg(long, value_name = "DURATION", allow_hyphen_values = true)]
     pub cycle: String,
     /// Number of tunnel states (the last repeats its own probability for every later cycle).
     #[arg(
         long,
         value_name = "N",
+        allow_hyphen_values = true,
         conflicts_with = "until",
         required_unless_present = "until"
     )]
     pub count: Option<String>,
     /// Enough tunnel states to reach this time since entry (rounded up to whole cycles).
-    #[arg(long, value_name = "DURATION")]
+    #[arg(long, value_name = "DURATION", allow_hyphen_values = true)]
     pub until: Option<String>,
     /// Time unit of t_start and t_end (default: the cycle's unit).
     #[arg(long, value_name = "UNIT")]

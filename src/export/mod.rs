@@ -49,13 +49,18 @@ pub trait Exporter {
 pub mod csv;
 pub mod json;
 pub mod tunnel;
+pub mod xlsx;
 
 use crate::error::Error;
 use std::path::Path;
 
 /// Every export format, looked up by extension or `--format`; adding a format is one line here.
 pub fn exporters() -> Vec<Box<dyn Exporter>> {
-    vec![Box::new(csv::Csv), Box::new(json::Json)]
+    vec![
+        Box::new(csv::Csv),
+        Box::new(json::Json),
+        Box::new(xlsx::Xlsx),
+    ]
 }
 
 /// The exporter for `path`: from `format` when given, else from the file's extension.

@@ -3,19 +3,33 @@
 //! Parameters are held in two forms: *natural* (the interface's names, e.g. `shape`, `scale`)
 //! and *estimation* (unconstrained: logs of positive parameters, e.g. `ln_shape`), on which
 //! the fitter works and the covariance is reported. Times are in the curve's own unit.
+//!
+//! Most families are stateless unit structs. *Configured* families (piecewise cut points,
+//! spline knots) carry settings: they are built by [`configured`] from a name plus
+//! [`FamilySettings`], interned (each distinct configuration is allocated once and lives for
+//! the rest of the process, so a bounded number of small leaks), and handed out as the same
+//! `&'static dyn Family` as the unit structs. The settings are written to the fit file so that
+//! [`crate::fit::FamilyFit::family`] rebuilds the exact curve later.
 
 use crate::fit::FitData;
+use serde::{Deserialize, Serialize};
+use std::sync::Mutex;
 
 mod exponential;
+mod gengamma;
 mod gompertz;
+mod incomplete_gamma;
 mod loglogistic;
 mod lognormal;
+mod piecewise;
 mod weibull;
 
 pub use exponential::Exponential;
+pub use gengamma::GenGamma;
 pub use gompertz::Gompertz;
 pub use loglogistic::LogLogistic;
 pub use lognormal::LogNormal;
+pub use piecewise::Piecewise;
 pub use weibull::Weibull;
 
 /// What a parametric survival family provides. Implementations are stateless unit structs.
@@ -96,6 +110,120 @@ pub trait Family: Sync + Send {
     fn median(&self, params: &[f64]) -> f64 {
         self.quantile(params, 0.5)
     }
+
+    /// This family rebuilt from recorded settings (see [`configured`]); unit-struct families
+    /// accept no settings.
+    fn with_settings(&self, settings: &FamilySettings) -> Result<&'static dyn Family, String> {
+        if *settings == FamilySettings::default() {
+            by_name(self.name())
+        } else {
+            Err(format!("family {} takes no settings", self.name()))
+        }
+    }
+
+    /// This family configured by command-line options (`--cuts`, `--knots`); unit-struct
+    /// families ignore them.
+    fn with_options(&self, _options: &FamilyOptions) -> Result<&'static dyn Family, String> {
+        by_name(self.name())
+    }
+
+    /// Settings of a configured family (cut points, knots), as recorded in the fit file; `None`
+    /// for the unit-struct families.
+    fn settings(&self) -> Option<FamilySettings> {
+        None
+    }
+
+    /// The family to fit to `data`: `None` for itself, or a configured instance whose settings
+    /// come from the data (spline knots). The error says why the data cannot support the family.
+    fn for_data(&self, _data: &FitData) -> Result<Option<&'static dyn Family>, String> {
+        Ok(None)
+    }
+
+    /// For configured families whose settings are times: the same family with time measured in
+    /// a new unit (t_new = factor · t_old), used with [`Family::rescale_time`]; `None` when the
+    /// family has no time-valued settings.
+    fn rescaled_family(&self, _factor: f64) -> Option<&'static dyn Family> {
+        None
+    }
+}
+
+/// Settings of a configured family, written to the fit file beside its parameters (an
+/// optional `settings` object; absent for the unit-struct families).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, Default)]
+#[serde(deny_unknown_fields)]
+pub struct FamilySettings {
+    /// Spline scale: `hazard`, `odds` or `normal`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub scale: Option<String>,
+    /// Spline knots as times (curve's time unit), boundary knots first and last, ascending.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub knots: Option<Vec<f64>>,
+    /// Piecewise-exponential cut points (curve's time unit), ascending.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cuts: Option<Vec<f64>>,
+}
+
+/// Options of the configured families given on the command line, in the data's time unit.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct FamilyOptions {
+    /// Piecewise-exponential cut points.
+    pub cuts: Option<Vec<f64>>,
+    /// Spline knots: K internal knots, or all K + 2 including the boundary knots.
+    pub knots: Option<Vec<f64>>,
+}
+
+/// One interned configured family: its name, its settings and the one leaked instance.
+type Interned = (String, Option<FamilySettings>, &'static dyn Family);
+
+/// Interned configured families.
+static CONFIGURED: Mutex<Vec<Interned>> = Mutex::new(Vec::new());
+
+/// The one instance of a configured family with this name and these settings, made by `make`
+/// on first use. Bounded: one allocation per distinct configuration in the process.
+pub(crate) fn intern(
+    name: &str,
+    settings: Option<FamilySettings>,
+    make: impl FnOnce() -> Box<dyn Family>,
+) -> &'static dyn Family {
+    let mut table = CONFIGURED.lock().unwrap_or_else(|e| e.into_inner());
+    if let Some((_, _, f)) = table.iter().find(|(n, s, _)| *n == name && *s == settings) {
+        return *f;
+    }
+    let leaked: &'static dyn Family = Box::leak(make());
+    table.push((name.to_string(), settings, leaked));
+    leaked
+}
+
+/// A string that lives for the rest of the process (parameter names of configured families;
+/// allocated once per distinct configuration through [`intern`]).
+pub(crate) fn leak_names(names: Vec<String>) -> &'static [&'static str] {
+    let names: Vec<&'static str> = names
+        .into_iter()
+        .map(|n| &*Box::leak(n.into_boxed_str()))
+        .collect();
+    Box::leak(names.into_boxed_slice())
+}
+
+/// A family from its name and the settings recorded in a fit file (the inverse of
+/// [`Family::settings`]); the unit-struct families take no settings.
+pub fn configured(
+    name: &str,
+    settings: Option<&FamilySettings>,
+) -> Result<&'static dyn Family, String> {
+    let template = by_name(name)?;
+    match settings {
+        None => Ok(template),
+        Some(s) => template.with_settings(s),
+    }
+}
+
+/// The configured families given the command-line options: `--cuts` for `piecewise`,
+/// `--knots` for the spline families. Unit-struct families pass through.
+pub fn with_options(
+    family: &'static dyn Family,
+    options: &FamilyOptions,
+) -> Result<&'static dyn Family, String> {
+    family.with_options(options)
 }
 
 /// The five standard families, in the interface's order.
@@ -104,17 +232,69 @@ pub static STANDARD: [&dyn Family; 5] =
 
 /// Every family the tool knows.
 pub fn all() -> Vec<&'static dyn Family> {
-    STANDARD.to_vec()
+    let mut families = STANDARD.to_vec();
+    families.push(&GenGamma);
+    families
+}
+
+/// The families `fit` uses when none are named: the five standard ones plus the generalized gamma.
+pub fn defaults() -> Vec<&'static dyn Family> {
+    let mut families = STANDARD.to_vec();
+    families.push(&GenGamma);
+    families
+}
+
+/// Time t with ln S(t) = ln(1 - `p`) for a survival curve given as ln S over t, by bisection
+/// on ln t (∞ when the curve never falls that far); for families without a closed-form inverse.
+pub(crate) fn quantile_by_bisection(log_survival: impl Fn(f64) -> f64, p: f64) -> f64 {
+    if p <= 0.0 {
+        return 0.0;
+    }
+    let target = (-p).ln_1p();
+    let below = |x: f64| log_survival(x.exp()) <= target;
+    let (mut lo, mut hi) = (-1.0f64, 1.0f64);
+    while !below(hi) {
+        hi = 2.0 * hi + 1.0;
+        if hi > 710.0 {
+            return f64::INFINITY;
+        }
+    }
+    while below(lo) {
+        lo = 2.0 * lo - 1.0;
+        if lo < -710.0 {
+            return 0.0;
+        }
+    }
+    for _ in 0..200 {
+        let mid = 0.5 * (lo + hi);
+        if mid <= lo || mid >= hi {
+            break;
+        }
+        if below(mid) {
+            hi = mid;
+        } else {
+            lo = mid;
+        }
+    }
+    (0.5 * (lo + hi)).exp()
 }
 
 /// Looks a family up by name; the error lists the known names and suggests the nearest.
+///
+/// The configured families come back unconfigured (`piecewise` without cut points, splines
+/// with knots still to be placed on the data): fit them after [`with_options`], or rebuild
+/// them from a fit file with [`configured`].
 pub fn by_name(name: &str) -> Result<&'static dyn Family, String> {
     let lower = name.trim().to_ascii_lowercase();
     let families = all();
     if let Some(f) = families.iter().find(|f| f.name() == lower) {
         return Ok(*f);
     }
-    let names: Vec<&str> = families.iter().map(|f| f.name()).collect();
+    if let Some(f) = flexible_template(&lower) {
+        return Ok(f);
+    }
+    let mut names: Vec<&str> = families.iter().map(|f| f.name()).collect();
+    names.extend(FLEXIBLE_NAMES);
     let hint = crate::units::nearest(&lower, &names)
         .map(|n| format!(" (did you mean \"{n}\"?)"))
         .unwrap_or_default();
@@ -123,6 +303,33 @@ pub fn by_name(name: &str) -> Result<&'static dyn Family, String> {
         name.trim(),
         names.join(", ")
     ))
+}
+
+/// Names of the configured families (spline K = 0–3 internal knots, piecewise exponential).
+pub const FLEXIBLE_NAMES: [&str; 13] = [
+    "spline-hazard-0",
+    "spline-hazard-1",
+    "spline-hazard-2",
+    "spline-hazard-3",
+    "spline-odds-0",
+    "spline-odds-1",
+    "spline-odds-2",
+    "spline-odds-3",
+    "spline-normal-0",
+    "spline-normal-1",
+    "spline-normal-2",
+    "spline-normal-3",
+    "piecewise",
+];
+
+/// The unconfigured instance of a configured family, by lower-case name.
+fn flexible_template(name: &str) -> Option<&'static dyn Family> {
+    if name == "piecewise" {
+        return Some(intern("piecewise", None, || {
+            Box::new(Piecewise::unconfigured())
+        }));
+    }
+    None
 }
 
 /// Checks a parameter is finite and strictly positive.
@@ -159,6 +366,12 @@ pub(crate) mod tests {
             "lognormal" => vec![vec![3.0, 0.5], vec![-1.0, 2.0]],
             "loglogistic" => vec![vec![0.8, 20.0], vec![3.5, 1.5]],
             "gompertz" => vec![vec![0.05, 0.01], vec![-0.3, 0.2], vec![1e-12, 0.4]],
+            "gengamma" => vec![
+                vec![1.0, 0.5, 1.0],
+                vec![3.0, 1.2, -0.7],
+                vec![2.0, 0.8, 0.004],
+                vec![0.5, 0.3, 2.5],
+            ],
             _ => vec![],
         }
     }

@@ -93,3 +93,17 @@ impl Family for Weibull {
         p[1] * statrs::function::gamma::gamma(a) * statrs::function::gamma::gamma_lr(1.0 / p[0], x)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn restricted_mean_is_the_integral_of_survival_not_the_truncated_mean() {
+        // Regression: the closed form once used P(1 + 1/k, x), which is the mean of T over
+        // T < τ without the τ·S(τ) term. Exponential case (shape 1): ∫₀^τ e^(-t/s) dt =
+        // s(1 - e^(-τ/s)) (elementary integral).
+        let got = Weibull.restricted_mean(&[1.0, 5.0], 7.0);
+        assert!((got - 5.0 * (1.0 - (-7.0f64 / 5.0).exp())).abs() < 1e-12);
+    }
+}

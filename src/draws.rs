@@ -1,0 +1,612 @@
+//! Uncertainty draws of a tunnel table, for probabilistic sensitivity analysis.
+//!
+//! Parameters are drawn from the multivariate normal approximation of the estimates, on the
+//! scale they were estimated on (logs of positive parameters), with the fit's covariance;
+//! each draw is transformed back to natural parameters and turned into a tunnel table by the
+//! same curve builder as the point estimate, so adjustments apply to every draw alike. The
+//! optional nonparametric bootstrap resamples subjects and refits instead.
+//!
+//! Reproducibility: one generator ([`GENERATOR`]) seeded from `--seed`; every random number
+//! is drawn sequentially before any parallel work, so a given seed and tool version give the
+//! same draws, and the same bytes, whatever the number of threads.
+
+use crate::curve::Curve;
+use crate::discretise::{tunnel_table, TunnelTable};
+use crate::error::{Error, Result};
+use crate::families::Family;
+use crate::fit::{fit_family, FamilyFit, FitData};
+use crate::input::Record;
+use crate::numeric::{cholesky, normal_quantile};
+use crate::units::Duration;
+use rand_chacha::rand_core::{Rng, SeedableRng};
+use rand_chacha::ChaCha20Rng;
+use rayon::prelude::*;
+
+/// The random number generator, as written into output files.
+pub const GENERATOR: &str = "ChaCha20 (rand_chacha 0.10, seed_from_u64); standard normal \
+z = inverse normal CDF of (u + 0.5)/2^53, u = top 53 bits of one 64-bit output";
+
+/// Draws handled between two checks for an interruption and two progress updates.
+pub const CHUNK: usize = 64;
+
+/// A stream of standard normal variates from the seeded generator (see [`GENERATOR`]).
+///
+/// Inversion of the normal CDF is used rather than a rejection method so the stream is
+/// defined by this file alone: one 64-bit output per variate, always.
+pub struct NormalStream {
+    rng: ChaCha20Rng,
+}
+
+impl NormalStream {
+    /// A stream started from `seed`.
+    pub fn new(seed: u64) -> Self {
+        NormalStream {
+            rng: ChaCha20Rng::seed_from_u64(seed),
+        }
+    }
+
+    /// The next standard normal variate.
+    pub fn next_normal(&mut self) -> f64 {
+        // (u + 0.5)/2^53 lies strictly inside (0, 1), so the quantile is always finite (|z| < 8.3).
+        let u = (self.rng.next_u64() >> 11) as f64;
+        normal_quantile((u + 0.5) * (1.0 / 9_007_199_254_740_992.0))
+    }
+
+    /// The next 64-bit output, for seeding sub-streams.
+    pub fn next_u64(&mut self) -> u64 {
+        self.rng.next_u64()
+    }
+}
+
+/// A uniform index in `0..n` (n ≥ 1) from `rng`, by rejection so that every index is equally likely.
+fn uniform_index(rng: &mut ChaCha20Rng, n: u64) -> u64 {
+    // Largest multiple of n that fits in 2^64; values at or above it are redrawn.
+    let limit = u64::MAX - (u64::MAX % n + 1) % n;
+    loop {
+        let u = rng.next_u64();
+        if u <= limit {
+            return u % n;
+        }
+    }
+}
+
+/// The multivariate normal approximation of one fit on the estimation scale.
+#[derive(Clone)]
+pub struct Sampler {
+    /// Family of the fit.
+    pub family: &'static dyn Family,
+    /// Estimates (estimation scale), the mean of the draws.
+    pub mean: Vec<f64>,
+    /// Lower Cholesky factor L of the covariance (Σ = L·Lᵀ).
+    pub factor: Vec<Vec<f64>>,
+}
+
+impl std::fmt::Debug for Sampler {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("Sampler")
+            .field("family", &self.family.name())
+            .field("mean", &self.mean)
+            .field("factor", &self.factor)
+            .finish()
+    }
+}
+
+impl Sampler {
+    /// The sampler of a fit; the error names the family and says why draws are impossible
+    /// (no covariance, a covariance of the wrong size or names, or one not positive definite).
+    pub fn from_fit(
+        family: &'static dyn Family,
+        fit: &FamilyFit,
+    ) -> std::result::Result<Sampler, String> {
+        let name = family.name();
+        let Some(cov) = &fit.covariance else {
+            return Err(format!(
+                "family {name} has no covariance in the fit file (its information matrix was \
+                 not positive definite), so its parameters cannot be drawn; choose another \
+                 family or use --bootstrap"
+            ));
+        };
+        let k = family.estimation_names().len();
+        let names_match = cov.names.len() == k
+            && cov
+                .names
+                .iter()
+                .zip(family.estimation_names())
+                .all(|(a, b)| a == b);
+        if !names_match {
+            return Err(format!(
+                "family {name}: the covariance is over ({}), expected ({})",
+                cov.names.join(", "),
+                family.estimation_names().join(", ")
+            ));
+        }
+        if cov.scale != "estimation" {
+            return Err(format!(
+                "family {name}: the covariance is on the \"{}\" scale, expected \"estimation\"",
+                cov.scale
+            ));
+        }
+        let square = cov.matrix.len() == k && cov.matrix.iter().all(|r| r.len() == k);
+        if !square || fit.estimates.len() != k {
+            return Err(format!(
+                "family {name}: expected {k} estimates and a {k}×{k} covariance"
+            ));
+        }
+        if fit.estimates.iter().any(|x| !x.is_finite()) {
+            return Err(format!("family {name}: the estimates are not all finite"));
+        }
+        let symmetric = (0..k).all(|i| {
+            (0..i).all(|j| {
+                let (a, b) = (cov.matrix[i][j], cov.matrix[j][i]);
+                (a - b).abs() <= 1e-10 * a.abs().max(b.abs()).max(f64::MIN_POSITIVE)
+            })
+        });
+        let factor = symmetric.then(|| cholesky(&cov.matrix)).flatten();
+        let Some(factor) = factor else {
+            return Err(format!(
+                "family {name}: the covariance is not symmetric positive definite, so \
+                 parameters cannot be drawn from it"
+            ));
+        };
+        Ok(Sampler {
+            family,
+            mean: fit.estimates.clone(),
+            factor,
+        })
+    }
+
+    /// `n` draws on the estimation scale, θ = mean + L·z with z standard normal, drawn in order.
+    pub fn draw(&self, n: usize, seed: u64) -> Vec<Vec<f64>> {
+        let k = self.mean.len();
+        let mut stream = NormalStream::new(seed);
+        let mut z = vec![0.0; k];
+        (0..n)
+            .map(|_| {
+                for zi in z.iter_mut() {
+                    *zi = stream.next_normal();
+                }
+                (0..k)
+                    .map(|i| self.mean[i] + (0..=i).map(|j| self.factor[i][j] * z[j]).sum::<f64>())
+                    .collect()
+            })
+            .collect()
+    }
+
+    /// `n` draws of the natural parameters (the estimation-scale draws transformed back).
+    pub fn draw_natural(&self, n: usize, seed: u64) -> Vec<Vec<f64>> {
+        self.draw(n, seed)
+            .iter()
+            .map(|theta| self.family.to_natural(theta))
+            .collect()
+    }
+}
+
+/// Builds the curve of one set of natural parameters, with whatever adjustments the command
+/// applies; the point estimate and every draw go through the same builder.
+pub type CurveBuilder<'a> =
+    dyn Fn(&[f64]) -> std::result::Result<Box<dyn Curve>, String> + Sync + 'a;
+
+/// Hooks a long run calls between chunks: `stop` asks whether to give up (an interruption),
+/// `advance` reports finished items (a progress bar).
+pub struct Control<'a> {
+    /// Returns the error to stop with, if the run should stop now.
+    pub stop: &'a (dyn Fn() -> Option<Error> + Sync),
+    /// Called with the number of items just finished.
+    pub advance: &'a (dyn Fn(u64) + Sync),
+}
+
+impl Control<'_> {
+    /// No interruption, no progress.
+    pub fn none() -> Control<'static> {
+        Control {
+            stop: &|| None,
+            advance: &|_| {},
+        }
+    }
+}
+
+/// Computes the tunnel table of every parameter set, [`CHUNK`] draws at a time (each chunk in
+/// parallel), and hands each chunk's tables in draw order to `sink` with the 0-based index of
+/// its first draw. Checks `control.stop` between chunks.
+pub fn tables_in_chunks(
+    params: &[Vec<f64>],
+    build: &CurveBuilder<'_>,
+    cycle: Duration,
+    count: usize,
+    control: &Control<'_>,
+    mut sink: impl FnMut(usize, Vec<TunnelTable>) -> Result<()>,
+) -> Result<()> {
+    for (c, chunk) in params.chunks(CHUNK).enumerate() {
+        if let Some(e) = (control.stop)() {
+            return Err(e);
+        }
+        let first = c * CHUNK;
+        let tables: Vec<TunnelTable> = chunk
+            .par_iter()
+            .enumerate()
+            .map(|(i, p)| {
+                let curve = build(p)
+                    .map_err(|e| Error::Computation(format!("draw {}: {e}", first + i + 1)))?;
+                Ok(tunnel_table(curve.as_ref(), cycle, count))
+            })
+            .collect::<Result<_>>()?;
+        sink(first, tables)?;
+        (control.advance)(chunk.len() as u64);
+    }
+    Ok(())
+}
+
+/// Percentile `p` (0–1) of sorted values by linear interpolation between order statistics,
+/// h = (n - 1)·p (Hyndman and Fan, 1996, definition 7). NaN for no values.
+pub fn percentile_sorted(sorted: &[f64], p: f64) -> f64 {
+    match sorted.len() {
+        0 => f64::NAN,
+        1 => sorted[0],
+        n => {
+            let h = (n - 1) as f64 * p.clamp(0.0, 1.0);
+            let lo = h.floor() as usize;
+            let hi = (lo + 1).min(n - 1);
+            sorted[lo] + (h - lo as f64) * (sorted[hi] - sorted[lo])
+        }
+    }
+}
+
+/// One tunnel's summary over the draws.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SummaryRow {
+    /// 1-based tunnel number.
+    pub tunnel: usize,
+    /// Start of the tunnel's cycle (table's time unit).
+    pub t_start: f64,
+    /// End of the tunnel's cycle (table's time unit).
+    pub t_end: f64,
+    /// `p_exit` of the point estimate.
+    pub point: f64,
+    /// Mean `p_exit` over the draws.
+    pub mean: f64,
+    /// 2.5% percentile of `p_exit` over the draws.
+    pub lower: f64,
+    /// 97.5% percentile of `p_exit` over the draws.
+    pub upper: f64,
+}
+
+/// Collects `p_exit` per tunnel across draws for the summary; memory is draws × tunnels numbers.
+#[derive(Debug, Clone)]
+pub struct SummaryBuilder {
+    point: TunnelTable,
+    by_tunnel: Vec<Vec<f64>>,
+}
+
+impl SummaryBuilder {
+    /// A summary around the point estimate's table.
+    pub fn new(point: TunnelTable) -> Self {
+        let by_tunnel = vec![Vec::new(); point.rows.len()];
+        SummaryBuilder { point, by_tunnel }
+    }
+
+    /// Adds one draw's table (same cycle and count as the point estimate).
+    pub fn add(&mut self, table: &TunnelTable) {
+        for (values, row) in self.by_tunnel.iter_mut().zip(&table.rows) {
+            values.push(row.p_exit);
+        }
+    }
+
+    /// Mean and 2.5%/97.5% percentiles per tunnel.
+    pub fn finish(mut self) -> Vec<SummaryRow> {
+        self.point
+            .rows
+            .iter()
+            .zip(self.by_tunnel.iter_mut())
+            .map(|(row, values)| {
+                values.sort_by(f64::total_cmp);
+                let mean = values.iter().sum::<f64>() / values.len() as f64;
+                SummaryRow {
+                    tunnel: row.tunnel,
+                    t_start: row.t_start,
+                    t_end: row.t_end,
+                    point: row.p_exit,
+                    mean,
+                    lower: percentile_sorted(values, 0.025),
+                    upper: percentile_sorted(values, 0.975),
+                }
+            })
+            .collect()
+    }
+}
+
+/// Outcome of a nonparametric bootstrap: one natural parameter set per successful refit.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Bootstrap {
+    /// Natural parameters of each replicate whose refit converged, in replicate order.
+    pub params: Vec<Vec<f64>>,
+    /// 1-based numbers of the replicates whose refit failed, with the reason.
+    pub failed: Vec<(usize, String)>,
+}
+
+/// Nonparametric bootstrap: `replicates` samples of the subjects drawn with replacement, each
+/// refitted with [`fit_family`]. Each replicate's own generator is seeded from the master
+/// stream in order before any refit, so results do not depend on the number of threads.
+pub fn bootstrap(
+    family: &'static dyn Family,
+    records: &[Record],
+    replicates: usize,
+    seed: u64,
+    control: &Control<'_>,
+) -> Result<Bootstrap> {
+    let mut master = NormalStream::new(seed);
+    let seeds: Vec<u64> = (0..replicates).map(|_| master.next_u64()).collect();
+    let n = records.len() as u64;
+    let mut params = Vec::new();
+    let mut failed = Vec::new();
+    for (c, chunk) in seeds.chunks(CHUNK).enumerate() {
+        if let Some(e) = (control.stop)() {
+            return Err(e);
+        }
+        let fits: Vec<std::result::Result<Vec<f64>, String>> = chunk
+            .par_iter()
+            .map(|&s| {
+                let mut rng = ChaCha20Rng::seed_from_u64(s);
+                let mut sample: Vec<Record> = (0..n)
+                    .map(|_| records[uniform_index(&mut rng, n) as usize])
+                    .collect();
+                sample.sort_by(|a, b| a.time.total_cmp(&b.time).then(b.event.cmp(&a.event)));
+                if !sample.iter().any(|r| r.event) {
+                    return Err("the resample has no events".to_string());
+                }
+                let fit = fit_family(family, &FitData::from_records(&sample), None);
+                match (fit.converged, fit.param_vector(family)) {
+                    (true, Some(p)) => Ok(p),
+                    _ => Err(fit
+                        .message
+                        .unwrap_or_else(|| "the refit did not converge".into())),
+                }
+            })
+            .collect();
+        for (i, fit) in fits.into_iter().enumerate() {
+            match fit {
+                Ok(p) => params.push(p),
+                Err(reason) => failed.push((c * CHUNK + i + 1, reason)),
+            }
+        }
+        (control.advance)(chunk.len() as u64);
+    }
+    Ok(Bootstrap { params, failed })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::curve::ParametricCurve;
+    use crate::families::{self, Weibull};
+    use crate::fit::Covariance;
+    use crate::units::TimeUnit;
+
+    fn weibull_fit(estimates: Vec<f64>, matrix: Vec<Vec<f64>>) -> FamilyFit {
+        FamilyFit {
+            family: "weibull".into(),
+            arm: None,
+            params: Default::default(),
+            loglik: None,
+            aic: None,
+            bic: None,
+            converged: true,
+            covariance: Some(Covariance {
+                scale: "estimation".into(),
+                names: vec!["ln_shape".into(), "ln_scale".into()],
+                matrix,
+            }),
+            estimates,
+            intervals: Default::default(),
+            delta_aic: None,
+            median: None,
+            gradient_max: None,
+            message: None,
+            settings: None,
+        }
+    }
+
+    #[test]
+    fn normal_stream_has_standard_normal_moments() {
+        // Moments of N(0, 1): mean 0, variance 1, P(Z < -1.96) = 0.025 (standard normal table,
+        // common practice); tolerances are 4 Monte-Carlo standard errors for 200,000 variates.
+        let n = 200_000;
+        let mut stream = NormalStream::new(7);
+        let z: Vec<f64> = (0..n).map(|_| stream.next_normal()).collect();
+        let mean = z.iter().sum::<f64>() / n as f64;
+        let var = z.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1) as f64;
+        let below = z.iter().filter(|&&x| x < -1.959_963_984_540_054).count() as f64 / n as f64;
+        let se_mean = (1.0 / n as f64).sqrt();
+        let se_var = (2.0 / n as f64).sqrt();
+        let se_tail = (0.025f64 * 0.975 / n as f64).sqrt();
+        assert!(mean.abs() < 4.0 * se_mean, "mean {mean}");
+        assert!((var - 1.0).abs() < 4.0 * se_var, "variance {var}");
+        assert!((below - 0.025).abs() < 4.0 * se_tail, "tail {below}");
+    }
+
+    #[test]
+    fn same_seed_same_draws_other_seed_other_draws() {
+        let fit = weibull_fit(vec![0.3, 3.1], vec![vec![0.04, 0.01], vec![0.01, 0.09]]);
+        let sampler = Sampler::from_fit(&Weibull, &fit).unwrap();
+        assert_eq!(sampler.draw(50, 11), sampler.draw(50, 11));
+        assert_ne!(sampler.draw(50, 11), sampler.draw(50, 12));
+    }
+
+    #[test]
+    fn draw_mean_and_covariance_match_the_fit_within_monte_carlo_error() {
+        // Central limit theorem: the sample mean of n draws has standard error sqrt(Σᵢᵢ/n); the
+        // sample covariance sᵢⱼ has variance (Σᵢⱼ² + ΣᵢᵢΣⱼⱼ)/n for a normal sample (Anderson,
+        // 2003, An Introduction to Multivariate Statistical Analysis, section 3.4 — from memory).
+        // Tolerance: 4 standard errors.
+        let mean = vec![0.25, 3.4];
+        let sigma = vec![vec![0.02, -0.012], vec![-0.012, 0.05]];
+        let fit = weibull_fit(mean.clone(), sigma.clone());
+        let n = 100_000;
+        let draws = Sampler::from_fit(&Weibull, &fit).unwrap().draw(n, 2024);
+        let nf = n as f64;
+        let m: Vec<f64> = (0..2)
+            .map(|i| draws.iter().map(|d| d[i]).sum::<f64>() / nf)
+            .collect();
+        for i in 0..2 {
+            let se = (sigma[i][i] / nf).sqrt();
+            assert!((m[i] - mean[i]).abs() < 4.0 * se, "mean {i}: {}", m[i]);
+            for j in 0..2 {
+                let s = draws
+                    .iter()
+                    .map(|d| (d[i] - m[i]) * (d[j] - m[j]))
+                    .sum::<f64>()
+                    / (nf - 1.0);
+                let se = ((sigma[i][j].powi(2) + sigma[i][i] * sigma[j][j]) / nf).sqrt();
+                assert!((s - sigma[i][j]).abs() < 4.0 * se, "cov {i}{j}: {s}");
+            }
+        }
+    }
+
+    #[test]
+    fn refuses_missing_or_indefinite_covariance_naming_the_family() {
+        let mut fit = weibull_fit(vec![0.3, 3.1], vec![vec![1.0, 2.0], vec![2.0, 1.0]]);
+        let err = Sampler::from_fit(&Weibull, &fit).unwrap_err();
+        assert!(
+            err.contains("weibull") && err.contains("positive definite"),
+            "{err}"
+        );
+        fit.covariance = None;
+        let err = Sampler::from_fit(&Weibull, &fit).unwrap_err();
+        assert!(
+            err.contains("weibull") && err.contains("no covariance"),
+            "{err}"
+        );
+        let fit = weibull_fit(vec![0.3], vec![vec![1.0]]);
+        assert!(Sampler::from_fit(&Weibull, &fit).is_err());
+    }
+
+    #[test]
+    fn percentiles_follow_linear_interpolation_between_order_statistics() {
+        // Hyndman and Fan (1996), definition 7: h = (n-1)p, worked by hand for 1..=5 and 1..=10.
+        let five = [1.0, 2.0, 3.0, 4.0, 5.0];
+        assert_eq!(percentile_sorted(&five, 0.5), 3.0);
+        assert!((percentile_sorted(&five, 0.025) - 1.1).abs() < 1e-15);
+        assert!((percentile_sorted(&five, 0.975) - 4.9).abs() < 1e-15);
+        let ten: Vec<f64> = (1..=10).map(f64::from).collect();
+        assert!((percentile_sorted(&ten, 0.025) - 1.225).abs() < 1e-15);
+        assert!((percentile_sorted(&ten, 0.975) - 9.775).abs() < 1e-15);
+        assert!(percentile_sorted(&[], 0.5).is_nan());
+    }
+
+    #[test]
+    fn chunked_tables_match_tables_built_one_by_one_in_order() {
+        let fit = weibull_fit(vec![0.3, 3.1], vec![vec![0.04, 0.01], vec![0.01, 0.09]]);
+        let params = Sampler::from_fit(&Weibull, &fit)
+            .unwrap()
+            .draw_natural(150, 5);
+        let build = |p: &[f64]| -> std::result::Result<Box<dyn Curve>, String> {
+            Ok(Box::new(ParametricCurve::new(
+                &Weibull,
+                p.to_vec(),
+                TimeUnit::Weeks,
+            )?))
+        };
+        let cycle = Duration {
+            value: 1.0,
+            unit: TimeUnit::Months,
+        };
+        let mut seen = Vec::new();
+        tables_in_chunks(&params, &build, cycle, 12, &Control::none(), |first, t| {
+            assert_eq!(first, seen.len());
+            seen.extend(t);
+            Ok(())
+        })
+        .unwrap();
+        assert_eq!(seen.len(), 150);
+        for (p, table) in params.iter().zip(&seen) {
+            let direct = tunnel_table(build(p).unwrap().as_ref(), cycle, 12);
+            assert_eq!(&direct, table);
+        }
+    }
+
+    #[test]
+    fn interruption_stops_between_chunks() {
+        let params = vec![vec![1.0, 10.0]; 3 * CHUNK];
+        let build = |p: &[f64]| -> std::result::Result<Box<dyn Curve>, String> {
+            Ok(Box::new(ParametricCurve::new(
+                &Weibull,
+                p.to_vec(),
+                TimeUnit::Days,
+            )?))
+        };
+        let done = std::sync::atomic::AtomicU64::new(0);
+        let advance = |k: u64| {
+            done.fetch_add(k, std::sync::atomic::Ordering::SeqCst);
+        };
+        let stop = || {
+            (done.load(std::sync::atomic::Ordering::SeqCst) >= CHUNK as u64)
+                .then(|| Error::Computation("stopped".into()))
+        };
+        let control = Control {
+            stop: &stop,
+            advance: &advance,
+        };
+        let cycle = Duration {
+            value: 1.0,
+            unit: TimeUnit::Days,
+        };
+        let result = tables_in_chunks(&params, &build, cycle, 3, &control, |_, _| Ok(()));
+        assert!(result.is_err());
+        assert_eq!(done.into_inner(), CHUNK as u64);
+    }
+
+    #[test]
+    fn bootstrap_of_exponential_matches_its_known_sampling_spread() {
+        // Exponential MLE rate = d / Σt; its bootstrap standard error on the log scale is close to
+        // 1/sqrt(d) (asymptotic variance of the log rate, from memory; common practice).
+        // Invented data: 400 subjects with exponential times (rate 0.1) censored at 12.
+        let mut stream = NormalStream::new(99);
+        let mut records: Vec<Record> = (0..400)
+            .map(|_| {
+                let u = crate::numeric::normal_sf(stream.next_normal());
+                let t = -u.ln() / 0.1;
+                if t < 12.0 {
+                    Record {
+                        time: t,
+                        event: true,
+                    }
+                } else {
+                    Record {
+                        time: 12.0,
+                        event: false,
+                    }
+                }
+            })
+            .collect();
+        records.sort_by(|a, b| a.time.total_cmp(&b.time).then(b.event.cmp(&a.event)));
+        let events = records.iter().filter(|r| r.event).count() as f64;
+        let exponential = families::by_name("exponential").unwrap();
+        let result = bootstrap(exponential, &records, 400, 3, &Control::none()).unwrap();
+        assert!(result.failed.is_empty());
+        let logs: Vec<f64> = result.params.iter().map(|p| p[0].ln()).collect();
+        let m = logs.iter().sum::<f64>() / logs.len() as f64;
+        let sd =
+            (logs.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (logs.len() - 1) as f64).sqrt();
+        let expected = 1.0 / events.sqrt();
+        // The sample SD of 400 replicates has relative standard error about 1/sqrt(2·399) ≈ 3.5%;
+        // allow 20% for that and the approximation.
+        assert!((sd / expected - 1.0).abs() < 0.2, "sd {sd} vs {expected}");
+        let again = bootstrap(exponential, &records, 400, 3, &Control::none()).unwrap();
+        assert_eq!(result, again);
+    }
+
+    #[test]
+    fn uniform_index_covers_the_range_evenly() {
+        // Chi-square test of 60,000 indices in 0..6 (5 degrees of freedom, 0.1% critical value
+        // 20.52, from memory of the chi-square table).
+        let mut rng = ChaCha20Rng::seed_from_u64(1);
+        let mut counts = [0.0f64; 6];
+        for _ in 0..60_000 {
+            counts[uniform_index(&mut rng, 6) as usize] += 1.0;
+        }
+        let chi2: f64 = counts
+            .iter()
+            .map(|c| (c - 10_000.0).powi(2) / 10_000.0)
+            .sum();
+        assert!(chi2 < 20.52, "{chi2} {counts:?}");
+    }
+}

@@ -1,0 +1,111 @@
+//! Command-line checks of the configured families: settings given on `fit`, recorded in the
+//! fit JSON (read back with serde, unknown fields refused) and used again by `tunnels`.
+
+use assert_cmd::Command;
+use tunnelcast::fit::FitFile;
+
+/// Invented data: hazard 0.05 per month before month 6 and 0.12 after, censored at month 20,
+/// times by inversion of a low-discrepancy sequence.
+fn write_piecewise_data(dir: &std::path::Path) -> std::path::PathBuf {
+    let mut text = String::from("time,event\n");
+    for i in 0..300 {
+        let u = ((i as f64 + 0.5) * 0.618_033_988_749_895).fract();
+        let h = -(1.0 - u).ln();
+        let t = if h < 0.3 {
+            h / 0.05
+        } else {
+            6.0 + (h - 0.3) / 0.12
+        };
+        text.push_str(&format!("{:.6},{}\n", t.min(20.0), u8::from(t < 20.0)));
+    }
+    let path = dir.join("trial.csv");
+    std::fs::write(&path, text).unwrap();
+    path
+}
+
+fn tunnelcast(dir: &std::path::Path) -> Command {
+    let mut cmd = Command::cargo_bin("tunnelcast").unwrap();
+    cmd.current_dir(dir);
+    cmd
+}
+
+#[test]
+fn piecewise_cuts_reach_the_fit_file_and_the_tunnel_table() {
+    let dir = tempfile::tempdir().unwrap();
+    write_piecewise_data(dir.path());
+    tunnelcast(dir.path())
+        .args(["fit", "trial.csv", "--time-unit", "months", "--families"])
+        .args([
+            "piecewise,weibull",
+            "--cuts",
+            "26 weeks,1 year",
+            "--json",
+            "fit.json",
+        ])
+        .assert()
+        .success();
+    let file: FitFile =
+        serde_json::from_slice(&std::fs::read(dir.path().join("fit.json")).unwrap()).unwrap();
+    let fit = file.fits.iter().find(|f| f.family == "piecewise").unwrap();
+    // 26 weeks = 182 days = 182/(365.25/12) months (interface: a month is a twelfth of 365.25 days).
+    let cuts = fit.settings.as_ref().unwrap().cuts.clone().unwrap();
+    assert!((cuts[0] - 182.0 * 12.0 / 365.25).abs() < 1e-12, "{cuts:?}");
+    assert!((cuts[1] - 12.0).abs() < 1e-12, "{cuts:?}");
+    assert_eq!(fit.params.len(), 3);
+    assert!(file
+        .fits
+        .iter()
+        .find(|f| f.family == "weibull")
+        .unwrap()
+        .settings
+        .is_none());
+    // The rebuilt family gives the same per-cycle exit probability as the rates in the file:
+    // in the first interval, 1 - exp(-rate·cycle) with a cycle of one month.
+    let rate = fit.params[&format!("rate[0,{})", cuts[0])];
+    let out = tunnelcast(dir.path())
+        .args(["tunnels", "--fit", "fit.json", "--family", "piecewise"])
+        .args(["--cycle", "1 month", "--count", "3", "--out", "t.csv"])
+        .assert()
+        .success();
+    drop(out);
+    let table = std::fs::read_to_string(dir.path().join("t.csv")).unwrap();
+    let mut rows = csv::ReaderBuilder::new()
+        .comment(Some(b'#'))
+        .from_reader(table.as_bytes());
+    let headers = rows.headers().unwrap().clone();
+    let column = headers.iter().position(|h| h == "p_exit").unwrap();
+    let first = rows.records().next().unwrap().unwrap();
+    let p_exit: f64 = first[column].parse().unwrap();
+    assert!((p_exit - (1.0 - (-rate).exp())).abs() < 1e-12, "{p_exit}");
+}
+
+#[test]
+fn option_errors_are_one_line_usage_errors() {
+    let dir = tempfile::tempdir().unwrap();
+    write_piecewise_data(dir.path());
+    for (args, expected) in [
+        (
+            vec!["--families", "weibull", "--cuts", "6 months"],
+            "add piecewise",
+        ),
+        (vec!["--families", "piecewise"], "needs cut points"),
+        (
+            vec!["--families", "piecewise", "--cuts", "6 parsecs"],
+            "--cuts",
+        ),
+        (
+            vec!["--families", "piecewise", "--cuts", "1 year,6 months"],
+            "must increase",
+        ),
+    ] {
+        let out = tunnelcast(dir.path())
+            .args(["fit", "trial.csv", "--json", "fit.json"])
+            .args(&args)
+            .assert()
+            .code(2);
+        let stderr = String::from_utf8(out.get_output().stderr.clone()).unwrap();
+        assert!(stderr.contains(expected), "{args:?}: {stderr}");
+        assert_eq!(stderr.trim_end().lines().count(), 1, "{stderr}");
+        assert!(!dir.path().join("fit.json").exists());
+    }
+}
