@@ -47,7 +47,9 @@ pub fn normal_sf(z: f64) -> f64 {
 
 /// ln Q(z) = ln(1 - Φ(z)), accurate far in the upper tail (no ln(1 - Φ) cancellation).
 pub fn log_normal_sf(z: f64) -> f64 {
-    if z > 5.0 {
+    // erfc keeps its relative accuracy until it nears underflow (z ≈ 37); the continued
+    // fraction is needed only beyond, where it also converges in a few terms.
+    if z > 30.0 {
         -0.5 * z * z - LN_SQRT_2PI + mills_ratio_tail(z).ln()
     } else if z < -5.0 {
         // Q close to 1: ln(1 - Φ(z)) with Φ(z) = Q(-z) tiny.
@@ -343,8 +345,15 @@ mod tests {
             let expected = -0.5 * z * z - LN_SQRT_2PI - z.ln() + series.ln();
             assert!((log_normal_sf(z) - expected).abs() < 1e-9 * expected.abs());
         }
-        // Continuity across the switch point at z = 5.
-        assert!((log_normal_sf(5.0 + 1e-12) - log_normal_sf(5.0)).abs() < 1e-10);
+        // Continuity across the switch point at z = 30.
+        // Both forms agree where they meet.
+        for z in [6.0f64, 30.0] {
+            let tail = -0.5 * z * z - LN_SQRT_2PI + mills_ratio_tail(z).ln();
+            assert!(
+                (tail - normal_sf(z).ln()).abs() < 1e-13 * tail.abs(),
+                "z={z}"
+            );
+        }
     }
 
     #[test]

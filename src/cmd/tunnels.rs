@@ -46,10 +46,10 @@ pub struct TunnelsArgs {
     /// Table layout.
     #[arg(long, value_enum, default_value = "long")]
     pub layout: Layout,
-    /// Write the table to this file (format from the extension: .csv, .json).
+    /// Write the table to this file (format from the extension: .csv, .json, .xlsx).
     #[arg(long, value_name = "FILE")]
     pub out: Option<PathBuf>,
-    /// Output format, overriding the extension (csv, json).
+    /// Output format, overriding the extension (csv, json, xlsx).
     #[arg(long, value_name = "FORMAT", requires = "out")]
     pub format: Option<String>,
     /// Replace an existing output file.
@@ -102,6 +102,16 @@ pub fn header(
     metadata
 }
 
+/// A time with up to 6 significant digits and no trailing zeros (`1`, `30.4375`, `4.33333`).
+fn time_text(t: f64) -> String {
+    let text = sig(t, 6);
+    if text.contains('.') && !text.contains('e') {
+        text.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        text
+    }
+}
+
 /// The aligned text shown on standard output.
 pub fn render_text(table: &TunnelTable, layout: Layout) -> String {
     let unit = table.time_unit;
@@ -133,8 +143,8 @@ pub fn render_text(table: &TunnelTable, layout: Layout) -> String {
                 .map(|(i, r)| {
                     let mut row = vec![
                         r.tunnel.to_string(),
-                        sig(r.t_start, 6),
-                        sig(r.t_end, 6),
+                        time_text(r.t_start),
+                        time_text(r.t_end),
                         sig(r.surv_start, 6),
                         sig(r.surv_end, 6),
                         sig(r.p_exit, 6),
