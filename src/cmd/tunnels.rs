@@ -17,7 +17,8 @@ use std::path::PathBuf;
 #[command(after_help = concat!(
     "Examples:\n",
     "  tunnelcast tunnels --family weibull --param shape=1.2 --param scale=30 --time-unit months --cycle \"1 month\" --count 24\n",
-    "  tunnelcast tunnels --fit fit.json --family lognormal --arm active --cycle \"4 weeks\" --until \"10 years\" --out tunnels.csv\n\n",
+    "  tunnelcast tunnels --fit fit.json --family lognormal --arm active --cycle \"4 weeks\" --until \"10 years\" --out tunnels.csv\n",
+    "  tunnelcast tunnels --family weibull --param shape=1.2 --param scale=30 --time-unit months --cycle \"1 month\" --until \"20 years\" --hazard-ratio 0.7 --waning \"1 year..3 years\" --background data/demo_lifetable.csv --start-age 63.5 --sex female --background-mode add\n\n",
     "Caution: extrapolated survival is an assumption, not an observation. Check every extrapolation \
 against clinical opinion and external data. tunnelcast does not replace local HTA guidance or qualified review."
 ))]
