@@ -319,7 +319,7 @@ mod tests {
 
     #[test]
     fn tails_stay_finite_plateau_to_zero_and_certain_exit_after_zero() {
-        use crate::families::{Gompertz, STANDARD};
+        use crate::families::Gompertz;
         // Far tails of every family: no NaN and probabilities in [0, 1], even where survival
         // is far below 1e-300 (p_exit then still comes from log-survival differences).
         let extreme: [(&str, Vec<f64>); 5] = [
@@ -329,7 +329,7 @@ mod tests {
             ("loglogistic", vec![120.0, 1.0]),
             ("gompertz", vec![1.5, 0.5]),
         ];
-        for family in STANDARD {
+        for family in crate::families::STANDARD {
             let params = &extreme.iter().find(|(n, _)| *n == family.name()).unwrap().1;
             let curve = ParametricCurve::new(family, params.clone(), TimeUnit::Months).unwrap();
             let table = tunnel_table(
