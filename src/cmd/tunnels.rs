@@ -45,10 +45,10 @@ pub struct TunnelsArgs {
     /// Table layout.
     #[arg(long, value_enum, default_value = "long")]
     pub layout: Layout,
-    /// Write the table to this file (format from the extension: .csv, .json).
+    /// Write the table to this file (format from the extension: .csv, .json, .xlsx).
     #[arg(long, value_name = "FILE")]
     pub out: Option<PathBuf>,
-    /// Output format, overriding the extension (csv, json).
+    /// Output format, overriding the extension (csv, json, xlsx).
     #[arg(long, value_name = "FORMAT", requires = "out")]
     pub format: Option<String>,
     /// Replace an existing output file.
@@ -101,6 +101,16 @@ pub fn header(
     metadata
 }
 
+/// A time with up to 6 significant digits and no trailing zeros (`1`, `30.4375`, `4.33333`).
+fn time_text(t: f64) -> String {
+    let text = sig(t, 6);
+    if text.contains('.') && !text.contains('e') {
+        text.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        text
+    }
+}
+
 /// The aligned text shown on standard output.
 pub fn render_text(table: &TunnelTable, layout: Layout) -> String {
     let unit = table.time_unit;
@@ -132,8 +142,8 @@ pub fn render_text(table: &TunnelTable, layout: Layout) -> String {
                 .map(|(i, r)| {
                     let mut row = vec![
                         r.tunnel.to_string(),
-                        sig(r.t_start, 6),
-                        sig(r.t_end, 6),
+                        time_text(r.t_start),
+                        time_text(r.t_end),
                         sig(r.surv_start, 6),
                         sig(r.surv_end, 6),
                         sig(r.p_exit, 6),
@@ -301,14 +311,16 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
         value: cycle.in_unit(table_unit),
         unit: table_unit,
     };
+    let cycle_in_curve = cycle.in_unit(built.curve.time_unit());
+    built.check_horizon(count as f64 * cycle_in_curve)?;
     let table = tunnel_table(built.curve.as_ref(), cycle_in_table, count);
+    let mut metadata = built.metadata.clone();
+    let floor = built.floor_report(cycle_in_curve, count);
+    metadata.extend(floor.iter().cloned());
     match exporter {
         Some((path, exporter)) => {
-            let mut document = tunnel_document(
-                &table,
-                args.layout,
-                header(&table, &built.metadata, args.layout),
-            );
+            let mut document =
+                tunnel_document(&table, args.layout, header(&table, &metadata, args.layout));
             if exporter.holds_several_tables() {
                 document
                     .tables
@@ -326,7 +338,13 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
                 exporter.extension()
             ));
         }
-        None => output::print(&render_text(&table, args.layout)),
+        None => {
+            let mut text = render_text(&table, args.layout);
+            for (key, value) in &floor {
+                text.push_str(&format!("{}: {value}\n", key.replace('_', " ")));
+            }
+            output::print(&text)
+        }
     }
     Ok(())
 }
