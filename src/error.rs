@@ -28,10 +28,10 @@ pub enum Error {
     /// The computation itself failed (no family converged, a numerical failure).
     #[error("{0}")]
     Computation(String),
-    /// The run was stopped by a signal (SIGINT or SIGTERM) before its output was written.
+    /// The run was stopped by a signal (SIGINT, SIGTERM or SIGHUP) before its output was written.
     #[error("interrupted by {name}; no output file was written")]
     Interrupted {
-        /// Signal number (2 for SIGINT, 15 for SIGTERM).
+        /// Signal number (2 for SIGINT, 15 for SIGTERM, 1 for SIGHUP).
         signal: i32,
         /// Signal name.
         name: &'static str,

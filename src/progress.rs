@@ -1,7 +1,7 @@
 //! Long runs (draws, bootstrap refits): a progress bar on a terminal only, and a clean stop
-//! on SIGINT or SIGTERM.
+//! on SIGINT, SIGTERM or SIGHUP (a closed terminal).
 //!
-//! While a [`LongRun`] is alive, SIGINT and SIGTERM only set a flag; the run checks it between
+//! While a [`LongRun`] is alive, these signals only set a flag; the run checks it between
 //! chunks of work and stops with [`Error::Interrupted`], so the output writer removes its
 //! temporary file and the program exits with 128 + the signal number. Dropping the
 //! [`LongRun`] restores the default signal handling.
@@ -9,7 +9,7 @@
 use crate::draws::Control;
 use crate::error::Error;
 use indicatif::{ProgressBar, ProgressStyle};
-use signal_hook::consts::{SIGINT, SIGTERM};
+use signal_hook::consts::{SIGHUP, SIGINT, SIGTERM};
 use signal_hook::SigId;
 use std::io::IsTerminal;
 use std::sync::atomic::{AtomicUsize, Ordering};
@@ -40,7 +40,7 @@ impl LongRun {
         };
         let signal = Arc::new(AtomicUsize::new(0));
         let mut handlers = Vec::new();
-        for sig in [SIGINT, SIGTERM] {
+        for sig in [SIGINT, SIGTERM, SIGHUP] {
             let id = signal_hook::flag::register_usize(sig, Arc::clone(&signal), sig as usize)
                 .map_err(|e| Error::Computation(format!("cannot watch for interruptions: {e}")))?;
             handlers.push(id);
@@ -91,10 +91,10 @@ impl Drop for LongRun {
 fn interrupted(signal: i32) -> Error {
     Error::Interrupted {
         signal,
-        name: if signal == SIGTERM {
-            "SIGTERM"
-        } else {
-            "SIGINT"
+        name: match signal {
+            SIGTERM => "SIGTERM",
+            SIGHUP => "SIGHUP",
+            _ => "SIGINT",
         },
     }
 }
@@ -105,9 +105,10 @@ mod tests {
 
     #[test]
     fn exit_codes_follow_the_shell_convention() {
-        // 128 + signal number: SIGINT = 2, SIGTERM = 15 (POSIX signal numbers; common practice).
+        // 128 + signal number: SIGHUP = 1, SIGINT = 2, SIGTERM = 15 (POSIX signal numbers; common practice).
         assert_eq!(interrupted(SIGINT).exit_code(), 130);
         assert_eq!(interrupted(SIGTERM).exit_code(), 143);
         assert!(interrupted(SIGTERM).to_string().contains("SIGTERM"));
+        assert_eq!(interrupted(SIGHUP).exit_code(), 129);
     }
 }

@@ -544,7 +544,7 @@ fn bad_input_is_refused_with_one_line_and_nothing_written() {
 #[cfg(unix)]
 #[test]
 fn interruption_leaves_no_file_and_exits_with_the_signal_code() {
-    for (signal, code) in [("-INT", 130), ("-TERM", 143)] {
+    for (signal, code) in [("-INT", 130), ("-TERM", 143), ("-HUP", 129)] {
         let dir = tempfile::tempdir().unwrap();
         let d = dir.path();
         write_fit(d);
