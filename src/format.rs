@@ -1,5 +1,31 @@
 //! Number formatting for printed tables: significant digits for humans (files keep full precision).
 
+/// Longest piece of a user's value quoted back in a message; a 50 MB field must not become a
+/// 50 MB error line.
+const SHOWN_CHARS: usize = 40;
+
+/// A value as quoted in a one-line message: control characters escaped (no line breaks, NULs
+/// or terminal escapes reach the terminal) and long values cut with an ellipsis.
+pub fn shown(text: &str) -> String {
+    let mut out = String::new();
+    let mut length = 0;
+    for c in text.chars() {
+        // Escapes count at their written length, so a value of NULs stays as short as any other.
+        let piece: String = if c.is_control() {
+            c.escape_default().collect()
+        } else {
+            c.to_string()
+        };
+        length += piece.chars().count();
+        if length > SHOWN_CHARS {
+            out.push('…');
+            break;
+        }
+        out.push_str(&piece);
+    }
+    out
+}
+
 /// `x` with `digits` significant digits, without exponent for ordinary magnitudes; "NA" when not finite.
 pub fn sig(x: f64, digits: usize) -> String {
     if !x.is_finite() {

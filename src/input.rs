@@ -5,6 +5,7 @@
 //! quoted fields, and a comma, semicolon or tab delimiter (detected from the header unless set).
 
 use crate::error::{Error, Result};
+use crate::format::shown;
 use sha2::{Digest, Sha256};
 use std::path::Path;
 
@@ -122,28 +123,6 @@ pub fn detect_delimiter(bytes: &[u8]) -> u8 {
 /// Strips a UTF-8 byte-order mark.
 pub fn strip_bom(bytes: &[u8]) -> &[u8] {
     bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes)
-}
-
-/// Longest piece of a user's value quoted back in a message; a 50 MB field must not become a
-/// 50 MB error line.
-const SHOWN_CHARS: usize = 40;
-
-/// A value as quoted in a one-line message: control characters escaped (no line breaks, NULs
-/// or terminal escapes reach the terminal) and long values cut with an ellipsis.
-pub fn shown(text: &str) -> String {
-    let mut out = String::new();
-    for (i, c) in text.chars().enumerate() {
-        if i == SHOWN_CHARS {
-            out.push('…');
-            break;
-        }
-        if c.is_control() {
-            out.extend(c.escape_default());
-        } else {
-            out.push(c);
-        }
-    }
-    out
 }
 
 /// 1-based line of the first non-blank byte at or after `offset` in `body`, counting LF, CRLF

@@ -24,6 +24,7 @@ pub mod input;
 pub mod km;
 pub mod numeric;
 pub mod output;
+pub mod plot;
 pub mod progress;
 pub mod rebuild;
 pub mod units;

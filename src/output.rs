@@ -72,6 +72,112 @@ pub fn write_atomic_with(
     result
 }
 
+/// Checks that an output folder may be filled: it does not exist, or is empty, or `force` is
+/// given; its parent folder exists.
+pub fn check_folder(path: &Path, force: bool) -> Result<()> {
+    if path.exists() {
+        if !path.is_dir() {
+            return Err(Error::output(path, "exists and is not a folder"));
+        }
+        let empty = std::fs::read_dir(path)
+            .map_err(|e| Error::output(path, format!("cannot read: {e}")))?
+            .next()
+            .is_none();
+        if !empty && !force {
+            return Err(Error::output(
+                path,
+                "folder is not empty (add --force to replace it)",
+            ));
+        }
+    }
+    let parent = parent_dir(path);
+    if !parent.is_dir() {
+        return Err(Error::output(
+            path,
+            format!("folder {} does not exist", parent.display()),
+        ));
+    }
+    Ok(())
+}
+
+/// An output folder built in a temporary sibling folder and renamed into place by
+/// [`StagedFolder::finish`], so that a failure never leaves a half-filled folder. Dropping it
+/// unfinished removes the temporary folder.
+#[derive(Debug)]
+pub struct StagedFolder {
+    target: PathBuf,
+    staging: PathBuf,
+    finished: bool,
+}
+
+impl StagedFolder {
+    /// Creates the temporary folder beside `target` (which [`check_folder`] has accepted).
+    pub fn new(target: &Path) -> Result<StagedFolder> {
+        let parent = parent_dir(target);
+        let name = target
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_else(|| "output".into());
+        let staging = parent.join(format!(".{name}.tmp-{}", std::process::id()));
+        if staging.exists() {
+            let _ = std::fs::remove_dir_all(&staging);
+        }
+        std::fs::create_dir(&staging)
+            .map_err(|e| Error::output(target, format!("cannot create a temporary folder: {e}")))?;
+        Ok(StagedFolder {
+            target: target.to_path_buf(),
+            staging,
+            finished: false,
+        })
+    }
+
+    /// The folder the result will finally have.
+    pub fn target(&self) -> &Path {
+        &self.target
+    }
+
+    /// Writes one file (a plain name, no folders) into the temporary folder.
+    pub fn write(&self, name: &str, bytes: &[u8]) -> Result<()> {
+        let path = self.staging.join(name);
+        std::fs::write(&path, bytes)
+            .map_err(|e| Error::output(&self.target.join(name), format!("cannot write: {e}")))
+    }
+
+    /// Moves the finished folder into place, replacing an existing (empty, or accepted with
+    /// `--force`) target folder.
+    pub fn finish(mut self) -> Result<()> {
+        let fail = |e: std::io::Error| Error::output(&self.target, format!("cannot write: {e}"));
+        if self.target.exists() {
+            let old = parent_dir(&self.target).join(format!(
+                ".{}.old-{}",
+                self.target
+                    .file_name()
+                    .map(|n| n.to_string_lossy().into_owned())
+                    .unwrap_or_default(),
+                std::process::id()
+            ));
+            std::fs::rename(&self.target, &old).map_err(fail)?;
+            if let Err(e) = std::fs::rename(&self.staging, &self.target) {
+                let _ = std::fs::rename(&old, &self.target);
+                return Err(fail(e));
+            }
+            let _ = std::fs::remove_dir_all(&old);
+        } else {
+            std::fs::rename(&self.staging, &self.target).map_err(fail)?;
+        }
+        self.finished = true;
+        Ok(())
+    }
+}
+
+impl Drop for StagedFolder {
+    fn drop(&mut self) {
+        if !self.finished {
+            let _ = std::fs::remove_dir_all(&self.staging);
+        }
+    }
+}
+
 /// Prints to standard output; a closed pipe (e.g. `| head`) ends the program quietly with status 0.
 pub fn print(text: &str) {
     let mut out = std::io::stdout().lock();
@@ -118,5 +224,29 @@ mod tests {
         });
         assert!(result.is_err());
         assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 0);
+    }
+
+    #[test]
+    fn staged_folder_appears_only_when_finished() {
+        let dir = tempfile::tempdir().unwrap();
+        let target = dir.path().join("out");
+        {
+            let staged = StagedFolder::new(&target).unwrap();
+            staged.write("a.txt", b"1").unwrap();
+            assert!(!target.exists());
+        }
+        // Dropped unfinished: nothing left behind.
+        assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 0);
+        let staged = StagedFolder::new(&target).unwrap();
+        staged.write("a.txt", b"1").unwrap();
+        staged.finish().unwrap();
+        assert_eq!(std::fs::read(target.join("a.txt")).unwrap(), b"1");
+        assert!(check_folder(&target, false).is_err());
+        assert!(check_folder(&target, true).is_ok());
+        let again = StagedFolder::new(&target).unwrap();
+        again.write("b.txt", b"2").unwrap();
+        again.finish().unwrap();
+        assert!(!target.join("a.txt").exists());
+        assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 1);
     }
 }

@@ -82,11 +82,11 @@ impl FromStr for TimeUnit {
         match nearest(&lower, &names) {
             Some(best) => Err(format!(
                 "unknown time unit \"{}\" (did you mean \"{best}\"? units: days, weeks, months, years)",
-                s.trim()
+                crate::format::shown(s.trim())
             )),
             None => Err(format!(
                 "unknown time unit \"{}\" (units: days, weeks, months, years)",
-                s.trim()
+                crate::format::shown(s.trim())
             )),
         }
     }
@@ -120,6 +120,7 @@ impl FromStr for Duration {
     /// Parses `"3 months"`, `"28 days"`, `"1 year"`, `"0.5years"`; the value must be finite and positive.
     fn from_str(s: &str) -> Result<Self, String> {
         let text = s.trim();
+        let quoted = crate::format::shown(text);
         let split = text
             .find(|c: char| c.is_ascii_alphabetic() && c != 'e' && c != 'E')
             .or_else(|| {
@@ -128,17 +129,20 @@ impl FromStr for Duration {
             });
         let Some(split) = split else {
             return Err(format!(
-                "duration \"{text}\" has no unit (write e.g. \"3 months\" or \"28 days\")"
+                "duration \"{quoted}\" has no unit (write e.g. \"3 months\" or \"28 days\")"
             ));
         };
         let (number, unit) = text.split_at(split);
         let number = number.trim();
         let value: f64 = number.parse().map_err(|_| {
-            format!("duration \"{text}\": \"{number}\" is not a number (write e.g. \"3 months\")")
+            format!(
+                "duration \"{quoted}\": \"{}\" is not a number (write e.g. \"3 months\")",
+                crate::format::shown(number)
+            )
         })?;
         if !value.is_finite() || value <= 0.0 {
             return Err(format!(
-                "duration \"{text}\" must be a positive finite number of a unit"
+                "duration \"{quoted}\" must be a positive finite number of a unit"
             ));
         }
         let unit: TimeUnit = unit.parse()?;
@@ -149,7 +153,7 @@ impl FromStr for Duration {
             v.is_finite() && v > 0.0
         }) {
             return Err(format!(
-                "duration \"{text}\" is out of range (it must be positive and finite in every unit)"
+                "duration \"{quoted}\" is out of range (it must be positive and finite in every unit)"
             ));
         }
         Ok(duration)

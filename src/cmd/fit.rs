@@ -14,7 +14,7 @@ use std::path::PathBuf;
 /// Options of `fit`.
 #[derive(Debug, Args)]
 #[command(after_help = concat!(
-    "Example:\n  tunnelcast fit data/demo_trial.csv --time-unit days --arm-col arm --json fit.json\n\n",
+    "Example:\n  tunnelcast fit data/demo_trial.csv --time-unit months --arm-col arm --json fit.json\n\n",
     "Caution: extrapolated survival is an assumption, not an observation. Check every extrapolation \
 against clinical opinion and external data. tunnelcast does not replace local HTA guidance or qualified review."
 ))]
@@ -47,6 +47,10 @@ pub struct FitArgs {
     /// Write the fits to this JSON file.
     #[arg(long)]
     pub json: Option<PathBuf>,
+    /// Write plots (Kaplan–Meier with fitted curves, hazards, straight-line diagnostics; SVG
+    /// and PNG) into this folder, extrapolated to three times the longest follow-up.
+    #[arg(long)]
+    pub plots: Option<PathBuf>,
     /// Field delimiter (detected from the header when not given).
     #[arg(long)]
     pub delimiter: Option<char>,
@@ -219,6 +223,9 @@ pub fn run(args: FitArgs) -> Result<()> {
     if let Some(path) = &args.json {
         output::check_writable(path, args.force)?;
     }
+    if let Some(dir) = &args.plots {
+        output::check_folder(dir, args.force)?;
+    }
     if let Some(z) = args.zero_time {
         if !(z.is_finite() && z > 0.0) {
             return Err(Error::Usage(format!(
@@ -258,6 +265,15 @@ pub fn run(args: FitArgs) -> Result<()> {
             .map_err(|e| Error::output(path, format!("cannot serialise: {e}")))?;
         output::write_atomic(path, &json)?;
         text.push_str(&format!("wrote {}\n", path.display()));
+    }
+    if let Some(dir) = &args.plots {
+        let longest = data.arms.iter().map(|a| a.max_time()).fold(0.0, f64::max);
+        let staged = output::StagedFolder::new(dir)?;
+        for (name, bytes) in crate::plot::fit_figures(&data, &file, 3.0 * longest)? {
+            staged.write(&name, &bytes)?;
+        }
+        staged.finish()?;
+        text.push_str(&format!("wrote plots to {}\n", dir.display()));
     }
     output::print(&text);
     if file.fits.iter().all(|f| !f.converged) {

@@ -1,0 +1,166 @@
+//! Plot (a): the Kaplan–Meier estimate with its 95% band, censoring marks and a row of
+//! numbers at risk under the time axis, with every fitted curve overlaid and extrapolated to
+//! the horizon.
+
+use super::{
+    draw_legend, draw_x_ticks, err, family_colour, grid, nice_ticks, text_style, tick_label, Mark,
+    Plot,
+};
+use super::{BAND, EMPIRICAL, REFERENCE};
+use crate::curve::Curve;
+use crate::km::KaplanMeier;
+use crate::units::TimeUnit;
+use plotters::coord::Shift;
+use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
+
+/// Kaplan–Meier with fitted curves for one arm; times in `unit`.
+pub struct SurvivalPlot<'a> {
+    /// Title line (e.g. the arm).
+    pub title: String,
+    /// Time unit of the Kaplan–Meier times and of the axis.
+    pub unit: TimeUnit,
+    /// The estimate.
+    pub km: &'a KaplanMeier,
+    /// Fitted curves with their labels (family names); any time unit, converted for drawing.
+    pub curves: Vec<(String, &'a dyn Curve)>,
+    /// End of the time axis (`unit`): the extrapolation horizon.
+    pub horizon: f64,
+}
+
+impl SurvivalPlot<'_> {
+    /// Step path of the estimate from (0, 1) to the last observed time.
+    pub fn step_path(&self) -> Vec<(f64, f64)> {
+        step_path(self.km, |s| s.survival, 1.0)
+    }
+}
+
+/// Step path through `value` of each step, starting at (0, `start`).
+fn step_path(
+    km: &KaplanMeier,
+    value: impl Fn(&crate::km::KmStep) -> f64,
+    start: f64,
+) -> Vec<(f64, f64)> {
+    let mut path = vec![(0.0, start)];
+    let mut last = start;
+    for s in &km.steps {
+        let v = value(s);
+        if v != last {
+            path.push((s.time, last));
+            path.push((s.time, v));
+            last = v;
+        }
+    }
+    if let Some(end) = km.steps.last() {
+        path.push((end.time, last));
+    }
+    path
+}
+
+impl Plot for SurvivalPlot<'_> {
+    fn size(&self) -> (u32, u32) {
+        (960, 590)
+    }
+
+    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), String> {
+        root.fill(&WHITE).map_err(err)?;
+        let (left, legend) = root.split_horizontally(740);
+        let (top, risk) = left.split_vertically(535);
+        let unit = self.unit;
+        let horizon = self
+            .horizon
+            .max(self.km.steps.last().map_or(1.0, |s| s.time));
+        let ticks = nice_ticks(horizon, 10);
+        let mut chart = ChartBuilder::on(&top)
+            .caption(&self.title, text_style(17))
+            .margin(12)
+            .x_label_area_size(44)
+            .y_label_area_size(58)
+            .build_cartesian_2d(0f64..horizon, 0f64..1.0f64)
+            .map_err(err)?;
+        chart
+            .configure_mesh()
+            .light_line_style(WHITE)
+            .bold_line_style(super::GRID)
+            .disable_x_mesh()
+            .x_labels(0)
+            .x_desc(format!("Time ({unit})"))
+            .y_desc("Survival probability")
+            .y_label_formatter(&|y| tick_label(*y))
+            .label_style(text_style(13))
+            .axis_desc_style(text_style(14))
+            .draw()
+            .map_err(err)?;
+        draw_x_ticks(root, &mut chart, &ticks, (0.0, 1.0))?;
+
+        let upper = step_path(self.km, |s| s.upper, 1.0);
+        let lower = step_path(self.km, |s| s.lower, 1.0);
+        let mut band = upper.clone();
+        band.extend(lower.iter().rev());
+        chart
+            .draw_series(std::iter::once(Polygon::new(band, BAND.mix(0.35).filled())))
+            .map_err(err)?;
+
+        let end = self.km.steps.last().map_or(0.0, |s| s.time);
+        chart
+            .draw_series(std::iter::once(PathElement::new(
+                vec![(end, 0.0), (end, 1.0)],
+                REFERENCE.stroke_width(1),
+            )))
+            .map_err(err)?;
+
+        for (label, curve) in &self.curves {
+            let to_curve = unit.factor_to(curve.time_unit());
+            let points: Vec<(f64, f64)> = grid(0.0, horizon, 400)
+                .map(|t| (t, curve.survival(t * to_curve).clamp(0.0, 1.0)))
+                .collect();
+            chart
+                .draw_series(LineSeries::new(
+                    points,
+                    family_colour(label).stroke_width(2),
+                ))
+                .map_err(err)?;
+        }
+
+        chart
+            .draw_series(LineSeries::new(self.step_path(), EMPIRICAL.stroke_width(2)))
+            .map_err(err)?;
+        let marks = self.km.steps.iter().filter(|s| s.censored > 0).map(|s| {
+            PathElement::new(
+                vec![(s.time, s.survival - 0.012), (s.time, s.survival + 0.012)],
+                EMPIRICAL.stroke_width(1),
+            )
+        });
+        chart.draw_series(marks).map_err(err)?;
+
+        // Numbers at risk, aligned under the time axis ticks inside the observed range.
+        let label_y = risk.get_base_pixel().1 + 26;
+        root.draw(&Text::new(
+            "Number at risk".to_string(),
+            (12, risk.get_base_pixel().1 + 4),
+            text_style(13),
+        ))
+        .map_err(err)?;
+        let centred = text_style(13).pos(Pos::new(HPos::Center, VPos::Top));
+        for &t in ticks.iter().filter(|&&t| t <= end) {
+            let (x, _) = chart.backend_coord(&(t, 0.0));
+            root.draw(&Text::new(
+                self.km.at_risk_at(t).to_string(),
+                (x, label_y),
+                centred.clone(),
+            ))
+            .map_err(err)?;
+        }
+
+        let mut entries = vec![
+            ("Kaplan–Meier".to_string(), Mark::Line(EMPIRICAL, 2)),
+            ("95% band (log-log)".to_string(), Mark::Swatch(BAND)),
+            ("censored (tick)".to_string(), Mark::Line(EMPIRICAL, 1)),
+            ("end of follow-up".to_string(), Mark::Line(REFERENCE, 1)),
+        ];
+        for (label, _) in &self.curves {
+            entries.push((label.clone(), Mark::Line(family_colour(label), 2)));
+        }
+        draw_legend(&legend, "Legend", &entries)
+    }
+}
