@@ -109,3 +109,76 @@ fn option_errors_are_one_line_usage_errors() {
         assert!(!dir.path().join("fit.json").exists());
     }
 }
+
+#[test]
+fn spline_knots_are_recorded_settable_and_reused() {
+    let dir = tempfile::tempdir().unwrap();
+    write_piecewise_data(dir.path());
+    tunnelcast(dir.path())
+        .args(["fit", "trial.csv", "--time-unit", "months", "--families"])
+        .args(["spline-hazard-2,spline-odds-1", "--json", "fit.json"])
+        .assert()
+        .success();
+    let file: FitFile =
+        serde_json::from_slice(&std::fs::read(dir.path().join("fit.json")).unwrap()).unwrap();
+    let fit = file
+        .fits
+        .iter()
+        .find(|f| f.family == "spline-hazard-2")
+        .unwrap();
+    let settings = fit.settings.as_ref().unwrap();
+    assert_eq!(settings.scale.as_deref(), Some("hazard"));
+    let knots = settings.knots.clone().unwrap();
+    assert_eq!(knots.len(), 4);
+    assert_eq!(fit.params.len(), 4);
+    // Internal knots set by hand (durations in another unit) replace the centiles.
+    tunnelcast(dir.path())
+        .args(["fit", "trial.csv", "--time-unit", "months", "--families"])
+        .args([
+            "spline-hazard-2",
+            "--knots",
+            "4 months,1 year",
+            "--json",
+            "fixed.json",
+        ])
+        .assert()
+        .success();
+    let fixed: FitFile =
+        serde_json::from_slice(&std::fs::read(dir.path().join("fixed.json")).unwrap()).unwrap();
+    let set = fixed.fits[0]
+        .settings
+        .as_ref()
+        .unwrap()
+        .knots
+        .clone()
+        .unwrap();
+    assert!(
+        (set[1] - 4.0).abs() < 1e-12 && (set[2] - 12.0).abs() < 1e-12,
+        "{set:?}"
+    );
+    assert_eq!((set[0], set[3]), (knots[0], knots[3]));
+    tunnelcast(dir.path())
+        .args([
+            "tunnels",
+            "--fit",
+            "fit.json",
+            "--family",
+            "spline-hazard-2",
+        ])
+        .args(["--cycle", "1 month", "--count", "24", "--out", "t.csv"])
+        .assert()
+        .success();
+    let out = tunnelcast(dir.path())
+        .args([
+            "fit",
+            "trial.csv",
+            "--families",
+            "spline-hazard-2",
+            "--knots",
+            "4 months",
+        ])
+        .assert()
+        .code(2);
+    let stderr = String::from_utf8(out.get_output().stderr.clone()).unwrap();
+    assert!(stderr.contains("takes 2 internal knots"), "{stderr}");
+}

@@ -23,6 +23,7 @@ mod incomplete_gamma;
 mod loglogistic;
 mod lognormal;
 mod piecewise;
+mod spline;
 mod weibull;
 
 pub use cure::{Cure, CURE_LOGLOGISTIC, CURE_LOGNORMAL, CURE_WEIBULL};
@@ -32,6 +33,7 @@ pub use gompertz::Gompertz;
 pub use loglogistic::LogLogistic;
 pub use lognormal::LogNormal;
 pub use piecewise::Piecewise;
+pub use spline::{Spline, SplineScale};
 pub use weibull::Weibull;
 
 /// What a parametric survival family provides. Implementations are stateless unit structs.
@@ -336,7 +338,18 @@ fn flexible_template(name: &str) -> Option<&'static dyn Family> {
             Box::new(Piecewise::unconfigured())
         }));
     }
-    None
+    let name: &'static str = FLEXIBLE_NAMES.iter().find(|n| **n == name)?;
+    let rest = name.strip_prefix("spline-")?;
+    let (scale, internal) = rest.split_once('-')?;
+    let scale = match scale {
+        "hazard" => SplineScale::Hazard,
+        "odds" => SplineScale::Odds,
+        _ => SplineScale::Normal,
+    };
+    let internal: usize = internal.parse().ok()?;
+    Some(intern(name, None, || {
+        Box::new(Spline::unconfigured(scale, internal, name))
+    }))
 }
 
 /// Checks a parameter is finite and strictly positive.

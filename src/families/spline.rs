@@ -1,0 +1,648 @@
+//! Royston–Parmar spline families (Royston and Parmar, 2002): a natural cubic spline s(x) in
+//! x = ln t for the log cumulative hazard (`spline-hazard-K`: S = exp(-e^s)), the log
+//! cumulative odds (`spline-odds-K`: S = 1/(1 + e^s)) or the probit (`spline-normal-K`:
+//! S = 1 - Φ(s)), with K = 0–3 internal knots. Parameters `gamma0` … `gamma{K+1}` (estimated
+//! as they are); knots are settings, recorded in the fit file as times.
+//!
+//! Basis (Royston and Parmar, 2002, eq. 2): 1, x, and for each internal knot k_j,
+//! v_j(x) = (x - k_j)³₊ - λ_j (x - k_min)³₊ - (1 - λ_j)(x - k_max)³₊ with
+//! λ_j = (k_max - k_j)/(k_max - k_min); linear beyond the boundary knots. Default knots: the
+//! boundary knots at the smallest and largest uncensored log times, internal knots at equally
+//! spaced centiles of the uncensored log times (linear interpolation between order statistics).
+//! With 0 knots the three scales are the Weibull, log-logistic and log-normal.
+//!
+//! Survival must fall: s must increase in x everywhere. [`Family::check_params`] checks the
+//! slope exactly (it is quadratic between knots, constant outside) and rejects any parameter
+//! set where it is not positive, naming the time where survival would rise.
+
+use super::{intern, quantile_by_bisection, Family, FamilyOptions, FamilySettings};
+use crate::fit::{sum_terms, FitData};
+use crate::numeric::LN_SQRT_2PI;
+use crate::numeric::{inverse_mills, log_normal_sf, logistic, normal_quantile, softplus};
+
+/// The scale on which the spline models the curve.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SplineScale {
+    /// ln H(t) = s(ln t).
+    Hazard,
+    /// ln((1 - S)/S) = s(ln t).
+    Odds,
+    /// Φ⁻¹(1 - S) = s(ln t).
+    Normal,
+}
+
+impl SplineScale {
+    fn word(self) -> &'static str {
+        match self {
+            SplineScale::Hazard => "hazard",
+            SplineScale::Odds => "odds",
+            SplineScale::Normal => "normal",
+        }
+    }
+
+    /// (ln S, d ln S/ds, ln g, d ln g/ds) at s, where g = -dS/ds.
+    #[inline]
+    fn terms(self, s: f64) -> (f64, f64, f64, f64) {
+        match self {
+            SplineScale::Hazard => {
+                let e = s.exp();
+                (-e, -e, s - e, 1.0 - e)
+            }
+            SplineScale::Odds => {
+                let sp = softplus(s);
+                let p = logistic(s);
+                (-sp, -p, s - 2.0 * sp, 1.0 - 2.0 * p)
+            }
+            SplineScale::Normal => (
+                log_normal_sf(s),
+                -inverse_mills(s),
+                -0.5 * s * s - LN_SQRT_2PI,
+                -s,
+            ),
+        }
+    }
+
+    /// The transform of S that the spline models, for starting values from Kaplan–Meier.
+    fn link(self, survival: f64) -> f64 {
+        match self {
+            SplineScale::Hazard => (-survival.ln()).ln(),
+            SplineScale::Odds => ((1.0 - survival) / survival).ln(),
+            SplineScale::Normal => normal_quantile(1.0 - survival),
+        }
+    }
+}
+
+/// Parameter names, of which a spline with K internal knots uses the first K + 2.
+const GAMMA_NAMES: [&str; 5] = ["gamma0", "gamma1", "gamma2", "gamma3", "gamma4"];
+
+/// A Royston–Parmar spline family; unconfigured until its knots are placed.
+pub struct Spline {
+    scale: SplineScale,
+    internal: usize,
+    name: &'static str,
+    /// All knots in ln t (boundary first and last), once placed.
+    knots: Option<Vec<f64>>,
+    /// Internal knots in ln t from `--knots`, the boundary knots still to come from the data.
+    fixed_internal: Option<Vec<f64>>,
+}
+
+/// Spline basis (value and derivative in x) at x for the given ln-time knots; entries past
+/// K + 2 stay zero.
+#[inline]
+fn basis(knots: &[f64], x: f64) -> ([f64; 5], [f64; 5]) {
+    let mut b = [0.0; 5];
+    let mut db = [0.0; 5];
+    b[0] = 1.0;
+    b[1] = x;
+    db[1] = 1.0;
+    let (k_min, k_max) = (knots[0], knots[knots.len() - 1]);
+    let cube = |u: f64| if u > 0.0 { u * u * u } else { 0.0 };
+    let square = |u: f64| if u > 0.0 { u * u } else { 0.0 };
+    for j in 1..knots.len() - 1 {
+        let lambda = (k_max - knots[j]) / (k_max - k_min);
+        b[j + 1] = cube(x - knots[j]) - lambda * cube(x - k_min) - (1.0 - lambda) * cube(x - k_max);
+        db[j + 1] = 3.0
+            * (square(x - knots[j])
+                - lambda * square(x - k_min)
+                - (1.0 - lambda) * square(x - k_max));
+    }
+    (b, db)
+}
+
+fn dot(a: &[f64], b: &[f64]) -> f64 {
+    a.iter().zip(b).map(|(x, y)| x * y).sum()
+}
+
+/// Centile `p` of sorted values by linear interpolation between order statistics.
+fn centile(sorted: &[f64], p: f64) -> f64 {
+    let h = (sorted.len() - 1) as f64 * p;
+    let lo = h.floor() as usize;
+    let hi = (lo + 1).min(sorted.len() - 1);
+    sorted[lo] + (h - lo as f64) * (sorted[hi] - sorted[lo])
+}
+
+impl Spline {
+    /// The unconfigured family `spline-SCALE-K` (name as in [`super::FLEXIBLE_NAMES`]).
+    pub fn unconfigured(scale: SplineScale, internal: usize, name: &'static str) -> Spline {
+        Spline {
+            scale,
+            internal,
+            name,
+            knots: None,
+            fixed_internal: None,
+        }
+    }
+
+    /// The interned family with all knots given as times (ascending, boundary first and last).
+    fn with_knot_times(&self, times: &[f64]) -> Result<&'static dyn Family, String> {
+        if times.len() != self.internal + 2 {
+            return Err(format!(
+                "{} needs {} knots (2 boundary and {} internal), got {}",
+                self.name,
+                self.internal + 2,
+                self.internal,
+                times.len()
+            ));
+        }
+        check_increasing(times)?;
+        let settings = FamilySettings {
+            scale: Some(self.scale.word().into()),
+            knots: Some(times.to_vec()),
+            cuts: None,
+        };
+        let (scale, internal, name) = (self.scale, self.internal, self.name);
+        let knots: Vec<f64> = times.iter().map(|t| t.ln()).collect();
+        Ok(intern(name, Some(settings), || {
+            Box::new(Spline {
+                scale,
+                internal,
+                name,
+                knots: Some(knots),
+                fixed_internal: None,
+            })
+        }))
+    }
+
+    fn knots(&self) -> &[f64] {
+        self.knots.as_deref().unwrap_or(&[])
+    }
+
+    /// s(x) and s'(x).
+    #[inline]
+    fn spline(&self, gamma: &[f64], x: f64) -> (f64, f64) {
+        let (b, db) = basis(self.knots(), x);
+        (dot(gamma, &b), dot(gamma, &db))
+    }
+
+    /// Smallest slope s'(x) over the whole line and where it occurs (exact: s' is constant
+    /// outside the boundary knots and quadratic between knots).
+    fn smallest_slope(&self, gamma: &[f64]) -> (f64, f64) {
+        let knots = self.knots();
+        let mut best = (gamma[1], knots[0]);
+        for w in knots.windows(2) {
+            let (a, b) = (w[0], w[1]);
+            let m = 0.5 * (a + b);
+            let (p0, p1, p2) = (
+                self.spline(gamma, a).1,
+                self.spline(gamma, m).1,
+                self.spline(gamma, b).1,
+            );
+            let mut candidates = vec![(p0, a), (p2, b)];
+            let curvature = p0 - 2.0 * p1 + p2;
+            if curvature > 0.0 {
+                let u = -(p2 - p0) / (2.0 * curvature);
+                if u.abs() < 1.0 {
+                    let x = m + u * 0.5 * (b - a);
+                    candidates.push((self.spline(gamma, x).1, x));
+                }
+            }
+            for c in candidates {
+                if c.0 < best.0 {
+                    best = c;
+                }
+            }
+        }
+        best
+    }
+}
+
+/// Checks knot times are positive, finite and strictly increasing.
+fn check_increasing(times: &[f64]) -> Result<(), String> {
+    for (i, t) in times.iter().enumerate() {
+        if !(t.is_finite() && *t > 0.0) {
+            return Err(format!("knot {t} must be a positive time"));
+        }
+        if i > 0 && times[i - 1] >= *t {
+            return Err(format!(
+                "knots must increase: {} is followed by {t}",
+                times[i - 1]
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// What to tell a user who evaluates a spline whose knots were never placed.
+fn needs_knots(name: &str) -> String {
+    format!("family {name} has no knots: fit it to data, or take it from its fit file")
+}
+
+impl Family for Spline {
+    fn name(&self) -> &'static str {
+        self.name
+    }
+    fn param_names(&self) -> &'static [&'static str] {
+        &GAMMA_NAMES[..self.internal + 2]
+    }
+    fn estimation_names(&self) -> &'static [&'static str] {
+        &GAMMA_NAMES[..self.internal + 2]
+    }
+    fn to_natural(&self, theta: &[f64]) -> Vec<f64> {
+        theta.to_vec()
+    }
+    fn to_estimation(&self, params: &[f64]) -> Vec<f64> {
+        params.to_vec()
+    }
+    fn check_params(&self, params: &[f64]) -> Result<(), String> {
+        if self.knots.is_none() {
+            return Err(needs_knots(self.name));
+        }
+        for (name, value) in self.param_names().iter().zip(params) {
+            super::check_finite(name, *value)?;
+        }
+        let (slope, x) = self.smallest_slope(params);
+        if slope > 0.0 {
+            Ok(())
+        } else {
+            Err(format!(
+                "{}: survival would rise near t = {:.6e} (the spline's slope in ln t is {slope:.3e} there, and must be positive); parameters rejected",
+                self.name,
+                x.exp()
+            ))
+        }
+    }
+    fn log_survival(&self, p: &[f64], t: f64) -> f64 {
+        if self.knots.is_none() {
+            return f64::NAN;
+        }
+        if t <= 0.0 {
+            return 0.0;
+        }
+        self.scale.terms(self.spline(p, t.ln()).0).0
+    }
+    fn log_hazard(&self, p: &[f64], t: f64) -> f64 {
+        self.log_density(p, t) - self.log_survival(p, t)
+    }
+    fn log_density(&self, p: &[f64], t: f64) -> f64 {
+        if self.knots.is_none() {
+            return f64::NAN;
+        }
+        let x = t.ln();
+        let (s, ds) = self.spline(p, x);
+        self.scale.terms(s).2 + ds.ln() - x
+    }
+    fn quantile(&self, p: &[f64], prob: f64) -> f64 {
+        if self.knots.is_none() {
+            return f64::NAN;
+        }
+        quantile_by_bisection(|t| self.log_survival(p, t), prob)
+    }
+    fn rescale_time(&self, p: &[f64], factor: f64) -> Vec<f64> {
+        // s(x) with knots k equals s'(x + c) with knots k + c when gamma0' = gamma0 - gamma1·c.
+        let mut q = p.to_vec();
+        q[0] -= p[1] * factor.ln();
+        q
+    }
+    fn rescaled_family(&self, factor: f64) -> Option<&'static dyn Family> {
+        let times: Vec<f64> = self.knots().iter().map(|k| k.exp() * factor).collect();
+        self.with_knot_times(&times).ok()
+    }
+    fn proportional_hazards(&self) -> bool {
+        // A hazard ratio adds ln HR to gamma0 on the hazard scale.
+        self.scale == SplineScale::Hazard
+    }
+    fn accelerated_failure_time(&self) -> bool {
+        false
+    }
+    fn start_values(&self, data: &FitData) -> Vec<Vec<f64>> {
+        let k = self.internal + 2;
+        let mut starts = Vec::new();
+        let scale = self.scale;
+        if let Some((slope, intercept)) = data.km_line(|s| scale.link(s)) {
+            if slope > 0.0 {
+                let mut start = vec![0.0; k];
+                start[0] = intercept;
+                start[1] = slope;
+                starts.push(start);
+            }
+        }
+        let (mean, sd) = data.event_log_time_moments();
+        let mut start = vec![0.0; k];
+        start[1] = 1.0 / sd;
+        start[0] = -mean / sd;
+        starts.push(start);
+        starts
+    }
+    fn loglik_grad(&self, theta: &[f64], data: &FitData) -> (f64, Vec<f64>) {
+        if self.knots.is_none() {
+            return (f64::NAN, vec![0.0; theta.len()]);
+        }
+        let knots = self.knots();
+        let scale = self.scale;
+        let mut gamma = [0.0; 5];
+        gamma[..theta.len()].copy_from_slice(theta);
+        let (ll, g) = sum_terms::<5>(data, |_t, x, d, n| {
+            let (b, db) = basis(knots, x);
+            let s = dot(&gamma, &b);
+            let (log_s, dlog_s, log_g, dlog_g) = scale.terms(s);
+            let c = n - d;
+            let mut ll = c * log_s;
+            let mut grad = [0.0; 5];
+            for j in 0..5 {
+                grad[j] = c * dlog_s * b[j];
+            }
+            if d > 0.0 {
+                let ds = dot(&gamma, &db);
+                // ln f = ln g(s) + ln s'(x) - ln t; a non-positive slope has no density.
+                ll += if ds > 0.0 {
+                    d * (log_g + ds.ln() - x)
+                } else {
+                    f64::NEG_INFINITY
+                };
+                for j in 0..5 {
+                    grad[j] += d * (dlog_g * b[j] + db[j] / ds);
+                }
+            }
+            (ll, grad)
+        });
+        (ll, g[..theta.len()].to_vec())
+    }
+    fn settings(&self) -> Option<FamilySettings> {
+        self.knots.as_ref().map(|k| FamilySettings {
+            scale: Some(self.scale.word().into()),
+            knots: Some(k.iter().map(|x| x.exp()).collect()),
+            cuts: None,
+        })
+    }
+    fn for_data(&self, data: &FitData) -> Result<Option<&'static dyn Family>, String> {
+        if self.knots.is_some() {
+            return Ok(None);
+        }
+        let mut log_times: Vec<f64> = Vec::new();
+        for (x, d) in data.ln_time.iter().zip(&data.events) {
+            for _ in 0..(*d as usize) {
+                log_times.push(*x);
+            }
+        }
+        let (Some(&first), Some(&last)) = (log_times.first(), log_times.last()) else {
+            return Err(format!("{}: no events to place knots at", self.name));
+        };
+        if first >= last {
+            return Err(format!(
+                "{}: all events are at one time, so there is no range for the knots",
+                self.name
+            ));
+        }
+        let internal: Vec<f64> = match &self.fixed_internal {
+            Some(fixed) => {
+                if fixed.iter().any(|x| *x <= first || *x >= last) {
+                    return Err(format!(
+                        "{}: internal knots must lie strictly between the first and last event times ({} and {})",
+                        self.name,
+                        first.exp(),
+                        last.exp()
+                    ));
+                }
+                fixed.clone()
+            }
+            None => (1..=self.internal)
+                .map(|j| centile(&log_times, j as f64 / (self.internal + 1) as f64))
+                .collect(),
+        };
+        let mut knots = vec![first];
+        knots.extend(internal);
+        knots.push(last);
+        // Recorded as times, so the fitted family is exactly the one rebuilt from the file.
+        let times: Vec<f64> = knots.iter().map(|x| x.exp()).collect();
+        self.with_knot_times(&times)
+            .map(Some)
+            .map_err(|e| format!("{e} (tied event times leave too few distinct knots; use fewer)"))
+    }
+    fn with_settings(&self, settings: &FamilySettings) -> Result<&'static dyn Family, String> {
+        match settings {
+            FamilySettings {
+                scale: Some(scale),
+                knots: Some(knots),
+                cuts: None,
+            } if scale == self.scale.word() => self.with_knot_times(knots),
+            _ => Err(format!(
+                "family {} takes scale \"{}\" and its knots as settings",
+                self.name,
+                self.scale.word()
+            )),
+        }
+    }
+    fn with_options(&self, options: &FamilyOptions) -> Result<&'static dyn Family, String> {
+        let Some(times) = &options.knots else {
+            return super::by_name(self.name);
+        };
+        let k = self.internal;
+        if times.len() == k + 2 {
+            return self
+                .with_knot_times(times)
+                .map_err(|e| format!("--knots: {e}"));
+        }
+        if times.len() != k {
+            return Err(format!(
+                "--knots: {} takes {k} internal knots, or {} with the boundary knots; {} given",
+                self.name,
+                k + 2,
+                times.len()
+            ));
+        }
+        check_increasing(times).map_err(|e| format!("--knots: {e}"))?;
+        let key = FamilySettings {
+            scale: Some(format!("{} (internal knots only)", self.scale.word())),
+            knots: Some(times.clone()),
+            cuts: None,
+        };
+        let (scale, internal, name) = (self.scale, self.internal, self.name);
+        let fixed: Vec<f64> = times.iter().map(|t| t.ln()).collect();
+        Ok(intern(name, Some(key), || {
+            Box::new(Spline {
+                scale,
+                internal,
+                name,
+                knots: None,
+                fixed_internal: Some(fixed),
+            })
+        }))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::families::{by_name, configured, LogLogistic, LogNormal, Weibull};
+    use crate::fit::fit_family;
+    use crate::input::Record;
+
+    /// Invented records: Weibull(1.3, 15) times by inversion of a low-discrepancy sequence,
+    /// with a hazard bump after 10, censored at 35.
+    fn records(n: usize) -> Vec<Record> {
+        let mut r: Vec<Record> = (0..n)
+            .map(|i| {
+                let u = ((i as f64 + 0.5) * 0.618_033_988_749_895).fract();
+                let h = -(1.0 - u).ln();
+                let t = 15.0 * h.powf(1.0 / 1.3);
+                let t = if t > 10.0 { 10.0 + 0.6 * (t - 10.0) } else { t };
+                Record {
+                    time: t.min(35.0),
+                    event: t < 35.0,
+                }
+            })
+            .collect();
+        r.sort_by(|a, b| a.time.total_cmp(&b.time).then(b.event.cmp(&a.event)));
+        r
+    }
+
+    fn fitted(name: &str, data: &FitData) -> crate::fit::FamilyFit {
+        let family = by_name(name).unwrap().for_data(data).unwrap().unwrap();
+        fit_family(family, data, None)
+    }
+
+    #[test]
+    fn zero_knots_reproduce_weibull_loglogistic_lognormal() {
+        // Royston and Parmar (2002), section 2: with no internal knots the hazard, odds and
+        // normal scales are the Weibull, log-logistic and log-normal models.
+        let data = FitData::from_records(&records(400));
+        for (spline, plain) in [
+            ("spline-hazard-0", &Weibull as &dyn Family),
+            ("spline-odds-0", &LogLogistic),
+            ("spline-normal-0", &LogNormal),
+        ] {
+            let a = fitted(spline, &data);
+            let b = fit_family(plain, &data, None);
+            assert!(a.converged && b.converged, "{spline}: {:?}", a.message);
+            let (la, lb) = (a.loglik.unwrap(), b.loglik.unwrap());
+            assert!((la - lb).abs() < 1e-6, "{spline}: {la} vs {lb}");
+        }
+    }
+
+    #[test]
+    fn gradient_matches_differences_on_every_scale() {
+        let data = FitData::from_records(&records(150));
+        for name in ["spline-hazard-3", "spline-odds-2", "spline-normal-1"] {
+            let family = by_name(name).unwrap().for_data(&data).unwrap().unwrap();
+            let fit = fit_family(family, &data, None);
+            assert!(fit.converged, "{name}: {:?}", fit.message);
+            let theta: Vec<f64> = fit.estimates.iter().map(|x| x * 1.01 + 0.001).collect();
+            let (_, grad) = family.loglik_grad(&theta, &data);
+            for j in 0..theta.len() {
+                let h = 1e-6;
+                let mut up = theta.clone();
+                let mut down = theta.clone();
+                up[j] += h;
+                down[j] -= h;
+                let numeric = (family.loglik_grad(&up, &data).0
+                    - family.loglik_grad(&down, &data).0)
+                    / (2.0 * h);
+                assert!(
+                    (numeric - grad[j]).abs() < 1e-5 * grad[j].abs().max(1.0),
+                    "{name} {j}: {numeric} vs {}",
+                    grad[j]
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn knots_sit_at_centiles_of_event_log_times_and_round_trip() {
+        let recs = records(400);
+        let data = FitData::from_records(&recs);
+        let fit = fitted("spline-hazard-3", &data);
+        let knots = fit.settings.as_ref().unwrap().knots.clone().unwrap();
+        let mut logs: Vec<f64> = recs
+            .iter()
+            .filter(|r| r.event)
+            .map(|r| r.time.ln())
+            .collect();
+        logs.sort_by(f64::total_cmp);
+        // Centiles by linear interpolation between order statistics (common practice; the
+        // default of numpy.quantile), computed here directly.
+        let n = logs.len() as f64;
+        for (j, p) in [(1, 0.25), (2, 0.5), (3, 0.75)] {
+            let h = (n - 1.0) * p;
+            let lo = h.floor() as usize;
+            let expected = logs[lo] + (h - lo as f64) * (logs[lo + 1] - logs[lo]);
+            assert!((knots[j].ln() - expected).abs() < 1e-12, "knot {j}");
+        }
+        assert!((knots[0] - logs[0].exp()).abs() < 1e-12);
+        assert!((knots[4] - logs[logs.len() - 1].exp()).abs() < 1e-12 * knots[4]);
+        // The family rebuilt from the recorded settings is the very same instance.
+        let rebuilt = configured("spline-hazard-3", fit.settings.as_ref()).unwrap();
+        let original = by_name("spline-hazard-3")
+            .unwrap()
+            .for_data(&data)
+            .unwrap()
+            .unwrap();
+        assert!(std::ptr::addr_eq(rebuilt, original));
+        // And moves its knots with the time unit.
+        let params = fit.param_vector(rebuilt).unwrap();
+        let other = rebuilt.rescaled_family(12.0).unwrap();
+        let q = rebuilt.rescale_time(&params, 12.0);
+        for t in [0.5, 4.0, 20.0, 80.0] {
+            let (a, b) = (
+                rebuilt.log_survival(&params, t),
+                other.log_survival(&q, 12.0 * t),
+            );
+            assert!((a - b).abs() < 1e-12 * a.abs().max(1.0), "{t}: {a} vs {b}");
+        }
+    }
+
+    #[test]
+    fn non_monotone_survival_is_rejected_with_the_time() {
+        let data = FitData::from_records(&records(200));
+        let family = by_name("spline-hazard-1")
+            .unwrap()
+            .for_data(&data)
+            .unwrap()
+            .unwrap();
+        let knots = family.settings().unwrap().knots.unwrap();
+        let (lo, hi) = (knots[0].ln() - 2.0, knots[2].ln() + 2.0);
+        // The exact check agrees with a dense grid of differenced log survival, which falls
+        // (ln S decreasing in x) exactly where the spline increases.
+        let mut rejected = 0;
+        for g2 in [-4.0, -1.0, -0.2, -0.02, 0.0, 0.02, 0.2, 1.0, 4.0] {
+            let p = [-3.0, 1.0, g2];
+            let grid_ok = (0..4000).all(|i| {
+                let x = lo + (hi - lo) * i as f64 / 4000.0;
+                let before = family.log_survival(&p, (x - 1e-6).exp());
+                let after = family.log_survival(&p, (x + 1e-6).exp());
+                after < before
+            });
+            match family.check_params(&p) {
+                Ok(()) => assert!(grid_ok, "gamma2 = {g2} accepted but not monotone"),
+                Err(e) => {
+                    assert!(!grid_ok, "gamma2 = {g2} rejected but monotone: {e}");
+                    assert!(e.contains("survival would rise near t ="), "{e}");
+                    rejected += 1;
+                }
+            }
+        }
+        assert!(rejected > 0, "no parameter set was rejected");
+        assert!(family.check_params(&[-3.0, -0.5, 0.0]).is_err());
+        let bare = by_name("spline-odds-2").unwrap();
+        assert!(bare
+            .check_params(&[0.0; 4])
+            .unwrap_err()
+            .contains("no knots"));
+    }
+
+    #[test]
+    fn curve_functions_agree_with_each_other() {
+        let data = FitData::from_records(&records(300));
+        for name in ["spline-hazard-2", "spline-odds-3", "spline-normal-2"] {
+            let fit = fitted(name, &data);
+            let family = fit.family().unwrap();
+            let p = fit.param_vector(family).unwrap();
+            family.check_params(&p).unwrap();
+            for t in [0.3, 2.0, 9.0, 30.0, 200.0] {
+                let h = 1e-5 * t;
+                let numeric = (family.cumulative_hazard(&p, t + h)
+                    - family.cumulative_hazard(&p, t - h))
+                    / (2.0 * h);
+                let analytic = family.hazard(&p, t);
+                assert!((numeric - analytic).abs() < 1e-6 * analytic, "{name} {t}");
+                let s = family.survival(&p, t);
+                if s > 1e-6 && s < 1.0 - 1e-6 {
+                    let back = family.quantile(&p, 1.0 - s);
+                    assert!(
+                        (back - t).abs() < 1e-8 * t,
+                        "{name} quantile at {t}: {back}"
+                    );
+                }
+            }
+        }
+    }
+}
