@@ -41,6 +41,8 @@ def p_exit(d, t0, t1):
 
 curves = [
     ("lognormal", {"mu": 3.0, "sigma": 0.8}, 1.0, 60),
+    # Small sigma: z runs from about -3 to 10, into the far upper tail of the normal.
+    ("lognormal", {"mu": 1.0, "sigma": 0.3}, 1.0, 60),
     ("loglogistic", {"shape": 1.7, "scale": 24.0}, 1.0, 60),
     ("gompertz", {"shape": 0.03, "rate": 0.01}, 1.0, 60),
     ("weibull", {"shape": 0.7, "scale": 40.0}, 0.5, 60),

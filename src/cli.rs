@@ -29,6 +29,8 @@ pub enum Command {
     Tunnels(cmd::tunnels::TunnelsArgs),
     /// How many tunnel states are enough, and what the cycle length costs in life-years.
     Horizon(cmd::horizon::HorizonArgs),
+    /// Uncertainty draws of the tunnel table (multivariate normal or bootstrap) with a p_exit summary.
+    Draws(cmd::draws::DrawsArgs),
     /// Rebuild patient-level data from a digitised Kaplan–Meier figure (Guyot et al., 2012).
     Rebuild(cmd::rebuild::RebuildArgs),
 }
@@ -40,6 +42,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Demo(args) => cmd::demo::run(args),
         Command::Tunnels(args) => cmd::tunnels::run(args),
         Command::Horizon(args) => cmd::horizon::run(args),
+        Command::Draws(args) => cmd::draws::run(args),
         Command::Rebuild(args) => cmd::rebuild::run(args),
     }
 }

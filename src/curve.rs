@@ -43,6 +43,34 @@ pub trait Curve: Send + Sync {
     }
 }
 
+/// A shared curve is a curve (lets a command keep a handle on an adjusted curve it also boxes).
+impl<T: Curve + ?Sized> Curve for std::sync::Arc<T> {
+    fn log_survival(&self, t: f64) -> f64 {
+        (**self).log_survival(t)
+    }
+    fn hazard(&self, t: f64) -> f64 {
+        (**self).hazard(t)
+    }
+    fn time_unit(&self) -> TimeUnit {
+        (**self).time_unit()
+    }
+    fn survival(&self, t: f64) -> f64 {
+        (**self).survival(t)
+    }
+    fn exit_by_cause(&self, t0: f64, t1: f64) -> Option<Vec<(&'static str, f64)>> {
+        (**self).exit_by_cause(t0, t1)
+    }
+    fn cycle_columns(&self, t0: f64, t1: f64) -> Vec<(&'static str, f64)> {
+        (**self).cycle_columns(t0, t1)
+    }
+    fn describe(&self) -> String {
+        (**self).describe()
+    }
+    fn restricted_mean(&self, horizon: f64) -> f64 {
+        (**self).restricted_mean(horizon)
+    }
+}
+
 /// A fitted or published parametric curve: a family, its natural parameters, and their time unit.
 #[derive(Clone)]
 pub struct ParametricCurve {

@@ -60,17 +60,19 @@ pub fn tunnel_table(curve: &dyn Curve, cycle: Duration, count: usize) -> TunnelT
     let mut rows = Vec::with_capacity(count);
     let mut by_cause: Vec<(String, Vec<f64>)> = Vec::new();
     let mut log_s0 = curve.log_survival(0.0);
+    let mut surv_start = log_s0.exp();
     for k in 1..=count {
         let t_start = (k - 1) as f64 * cycle.value;
         let t_end = k as f64 * cycle.value;
         let log_s1 = curve.log_survival(t_end * to_curve);
         let p_exit = exit_probability(log_s0, log_s1);
+        let surv_end = log_s1.exp();
         rows.push(TunnelRow {
             tunnel: k,
             t_start,
             t_end,
-            surv_start: log_s0.exp(),
-            surv_end: log_s1.exp(),
+            surv_start,
+            surv_end,
             p_exit,
             p_next: 1.0 - p_exit,
         });
@@ -92,6 +94,7 @@ pub fn tunnel_table(curve: &dyn Curve, cycle: Duration, count: usize) -> TunnelT
             }
         }
         log_s0 = log_s1;
+        surv_start = surv_end;
     }
     TunnelTable {
         time_unit: unit,
@@ -329,8 +332,8 @@ mod tests {
             ("loglogistic", vec![120.0, 1.0]),
             ("gompertz", vec![1.5, 0.5]),
         ];
-        for family in crate::families::STANDARD {
-            let params = &extreme.iter().find(|(n, _)| *n == family.name()).unwrap().1;
+        for (name, params) in &extreme {
+            let family = crate::families::by_name(name).unwrap();
             let curve = ParametricCurve::new(family, params.clone(), TimeUnit::Months).unwrap();
             let table = tunnel_table(
                 &curve,

@@ -291,6 +291,11 @@ impl SummaryBuilder {
         }
     }
 
+    /// `p_exit` per tunnel (outer) and draw (inner, in the order added).
+    pub fn values(&self) -> &[Vec<f64>] {
+        &self.by_tunnel
+    }
+
     /// Mean and 2.5%/97.5% percentiles per tunnel.
     pub fn finish(mut self) -> Vec<SummaryRow> {
         self.point

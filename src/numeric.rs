@@ -47,7 +47,9 @@ pub fn normal_sf(z: f64) -> f64 {
 
 /// ln Q(z) = ln(1 - Φ(z)), accurate far in the upper tail (no ln(1 - Φ) cancellation).
 pub fn log_normal_sf(z: f64) -> f64 {
-    if z > 5.0 {
+    // erfc keeps its relative accuracy until it nears underflow (z ≈ 37); the continued
+    // fraction is needed only beyond, where it also converges in a few terms.
+    if z > 30.0 {
         -0.5 * z * z - LN_SQRT_2PI + mills_ratio_tail(z).ln()
     } else if z < -5.0 {
         // Q close to 1: ln(1 - Φ(z)) with Φ(z) = Q(-z) tiny.
@@ -239,6 +241,19 @@ fn gauss_kronrod(f: &impl Fn(f64) -> f64, a: f64, b: f64) -> (f64, f64) {
 
 /// Adaptive Gauss–Kronrod integral of `f` over [a, b] to absolute-or-relative tolerance `tol`.
 pub fn integrate(f: impl Fn(f64) -> f64, a: f64, b: f64, tol: f64) -> f64 {
+    integrate_with_floor(f, a, b, tol, 0.0)
+}
+
+/// As [`integrate`], but a piece is also accepted once its error estimate is within its share
+/// of `absolute` (for integrands that vanish at an end, where a purely relative test chases
+/// rounding noise).
+pub fn integrate_with_floor(
+    f: impl Fn(f64) -> f64,
+    a: f64,
+    b: f64,
+    tol: f64,
+    absolute: f64,
+) -> f64 {
     if b <= a {
         return 0.0;
     }
@@ -249,6 +264,7 @@ pub fn integrate(f: impl Fn(f64) -> f64, a: f64, b: f64, tol: f64) -> f64 {
         let width_share = (hi - lo) / (b - a);
         let scale = value.abs().max(1e-300);
         if error <= tol * width_share.max(1e-3) * scale.max(tol)
+            || error <= absolute * width_share
             || error <= 1e-15 * scale
             || pieces > 20_000
             || hi - lo < 1e-12 * (b - a)
@@ -329,8 +345,15 @@ mod tests {
             let expected = -0.5 * z * z - LN_SQRT_2PI - z.ln() + series.ln();
             assert!((log_normal_sf(z) - expected).abs() < 1e-9 * expected.abs());
         }
-        // Continuity across the switch point at z = 5.
-        assert!((log_normal_sf(5.0 + 1e-12) - log_normal_sf(5.0)).abs() < 1e-10);
+        // Continuity across the switch point at z = 30.
+        // Both forms agree where they meet.
+        for z in [6.0f64, 30.0] {
+            let tail = -0.5 * z * z - LN_SQRT_2PI + mills_ratio_tail(z).ln();
+            assert!(
+                (tail - normal_sf(z).ln()).abs() < 1e-13 * tail.abs(),
+                "z={z}"
+            );
+        }
     }
 
     #[test]

@@ -471,7 +471,7 @@ fn output_problems_are_refused_before_computing() {
     let d = dir.path();
     let mut a = vec!["tunnels"];
     a.extend(WEIBULL);
-    a.extend(["--cycle", "1 month", "--count", "5", "--out", "t.ods"]);
+    a.extend(["--cycle", "1 month", "--count", "5", "--out", "t.tsv"]);
     refuses(d, &a, "unknown output format");
     std::fs::write(d.join("t.csv"), "mine").unwrap();
     let mut a = vec!["tunnels"];

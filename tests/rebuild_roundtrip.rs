@@ -70,7 +70,14 @@ fn compare(truth: &[Record], rebuilt: &[Record], risk: &[RiskRow], time_error: f
 }
 
 fn assert_within_limits(label: &str, e: &Errors) {
-    eprintln!("{label}: {e:?}");
+    eprintln!(
+        "{label}: curve gap {:.4}, at risk off {}, events off {:.2}%, worst parameter off {:.2}% (scale-like {:.2}%)",
+        e.km_sup,
+        e.at_risk_max,
+        100.0 * e.events_rel,
+        100.0 * worst_param(e),
+        100.0 * worst_scale_param(e)
+    );
     assert!(e.km_sup <= 0.02, "{label}: KM off by {}", e.km_sup);
     assert!(
         e.at_risk_max <= 1,
@@ -134,6 +141,15 @@ fn gbsg2_arms_round_trip_within_the_limits() {
 /// Largest relative parameter difference of a comparison.
 fn worst_param(e: &Errors) -> f64 {
     e.params.iter().map(|p| p.2).fold(0.0, f64::max)
+}
+
+/// Largest relative difference among scale-like parameters (limit 5%).
+fn worst_scale_param(e: &Errors) -> f64 {
+    e.params
+        .iter()
+        .filter(|p| p.3 < 0.1)
+        .map(|p| p.2)
+        .fold(0.0, f64::max)
 }
 
 #[test]

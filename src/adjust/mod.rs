@@ -181,6 +181,8 @@ pub struct AdjustedCurve {
     pub warnings: Vec<String>,
     /// Adjustment settings as ordered key–value pairs for output metadata.
     pub metadata: Vec<(String, String)>,
+    /// The settings the curve was built with (to rebuild it on another base curve).
+    settings: Adjustments,
 }
 
 impl AdjustedCurve {
@@ -190,6 +192,16 @@ impl AdjustedCurve {
             Combined::Added(c) => c,
             Combined::Floored(c) => c,
         }
+    }
+
+    /// The same adjustments on another base curve (e.g. a parameter draw), reusing the life
+    /// table already read and checked.
+    pub fn rebuild(&self, base: ParametricCurve) -> Result<AdjustedCurve> {
+        build(
+            base,
+            &self.settings,
+            self.background().map(|b| b.table.clone()),
+        )
     }
 
     /// The background hazard, when there is one.
@@ -283,6 +295,9 @@ impl Curve for AdjustedCurve {
     fn describe(&self) -> String {
         self.inner().describe()
     }
+    fn restricted_mean(&self, horizon: f64) -> f64 {
+        self.inner().restricted_mean(horizon)
+    }
 }
 
 /// Checks `adjustments`, reads the life table if any, and builds the adjusted curve.
@@ -319,13 +334,13 @@ pub fn build(
         curve = match adjustments.waning {
             Some(w) => {
                 metadata.push(("waning".into(), w.to_string()));
-                Box::new(WaningCurve {
-                    base: curve,
+                Box::new(WaningCurve::new(
+                    curve,
                     ratio,
-                    start: w.start.in_unit(unit),
-                    end: w.end.in_unit(unit),
-                    label: w.to_string(),
-                })
+                    w.start.in_unit(unit),
+                    w.end.in_unit(unit),
+                    w.to_string(),
+                ))
             }
             None => Box::new(HazardRatioCurve { base: curve, ratio }),
         };
@@ -382,6 +397,7 @@ pub fn build(
         combined,
         warnings,
         metadata,
+        settings: adjustments.clone(),
     })
 }
 
@@ -474,6 +490,34 @@ mod tests {
         )
         .unwrap();
         assert!(quiet.warnings.is_empty());
+    }
+
+    #[test]
+    fn rebuild_on_a_draw_equals_a_fresh_build() {
+        // Rebuilding must give exactly what building from scratch gives (consistency, common practice).
+        let table =
+            lifetable::parse("life.csv", b"age,qx\n60,0.02\n61,0.03\n62,0.05\n", None).unwrap();
+        let settings = Adjustments {
+            hazard_ratio: Some(0.8),
+            waning: Some("3 months..1 year".parse().unwrap()),
+            background: Some(BackgroundSettings {
+                path: "life.csv".into(),
+                start_age: 60.5,
+                sex: None,
+                mode: BackgroundMode::Add,
+                beyond: BeyondTable::HoldLast,
+            }),
+            ..Default::default()
+        };
+        let adjusted = build(weibull(), &settings, Some(table.clone())).unwrap();
+        let draw = ParametricCurve::new(&Weibull, vec![1.1, 26.0], TimeUnit::Months).unwrap();
+        let rebuilt = adjusted.rebuild(draw.clone()).unwrap();
+        let fresh = build(draw, &settings, Some(table)).unwrap();
+        for t in [0.5, 6.0, 18.0, 40.0] {
+            assert_eq!(rebuilt.log_survival(t), fresh.log_survival(t));
+            assert_ne!(rebuilt.log_survival(t), adjusted.log_survival(t));
+        }
+        assert_eq!(rebuilt.metadata, fresh.metadata);
     }
 
     #[test]

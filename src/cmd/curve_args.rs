@@ -5,6 +5,9 @@
 //! Adding an option (e.g. an adjustment) is a field here and a step in [`CurveArgs::build`]
 //! that wraps [`BuiltCurve::curve`] and pushes a metadata line.
 
+use crate::adjust::background::BeyondTable;
+use crate::adjust::lifetable::Sex;
+use crate::adjust::{self, AdjustedCurve, Adjustments, BackgroundMode, BackgroundSettings, Waning};
 use crate::curve::{Curve, ParametricCurve};
 use crate::error::{Error, Result};
 use crate::export::number_text;
@@ -13,6 +16,7 @@ use crate::fit::{FamilyFit, FitFile};
 use crate::units::TimeUnit;
 use clap::Args;
 use std::path::PathBuf;
+use std::sync::Arc;
 
 /// Where the survival curve comes from: `--fit FIT.json --family NAME [--arm NAME]`, or
 /// `--family NAME --param NAME=VALUE … --time-unit UNIT` (parameters from a publication).
@@ -41,12 +45,67 @@ pub struct CurveArgs {
     /// Use a fit that the fitter marked as not converged (refused by default; recorded in the output).
     #[arg(long, help_heading = "Curve")]
     pub allow_unconverged: bool,
+    /// Hazard ratio X applied to the curve: cumulative hazard times X, survival S(t)^X.
+    #[arg(
+        long,
+        value_name = "X",
+        help_heading = "Adjustments",
+        allow_negative_numbers = true
+    )]
+    pub hazard_ratio: Option<String>,
+    /// Acceleration factor X applied to the curve: survival S(t/X) (X > 1 lengthens survival).
+    #[arg(
+        long,
+        value_name = "X",
+        help_heading = "Adjustments",
+        allow_negative_numbers = true
+    )]
+    pub acceleration_factor: Option<String>,
+    /// The log hazard ratio falls linearly to 0 between two durations since entry, e.g. "1 year..3 years".
+    #[arg(long, value_name = "START..END", help_heading = "Adjustments")]
+    pub waning: Option<String>,
+    /// Life table CSV (age plus qx, or qx_female and qx_male) for background mortality.
+    #[arg(
+        long,
+        value_name = "LIFETABLE.csv",
+        help_heading = "Background mortality"
+    )]
+    pub background: Option<PathBuf>,
+    /// Age in years at entry to the first tunnel (may be fractional, e.g. 63.5).
+    #[arg(
+        long,
+        value_name = "A",
+        help_heading = "Background mortality",
+        allow_negative_numbers = true
+    )]
+    pub start_age: Option<String>,
+    /// Column of a two-sex life table: female or male.
+    #[arg(long, value_name = "SEX", help_heading = "Background mortality")]
+    pub sex: Option<String>,
+    /// add: the curve is disease-specific, hazards add; floor: the curve is all-cause, its hazard is never below the background's [default: floor].
+    #[arg(long, value_name = "MODE", help_heading = "Background mortality")]
+    pub background_mode: Option<String>,
+    /// Past the table's last age: error, or hold-last (keep the last age's hazard) [default: error].
+    #[arg(long, value_name = "RULE", help_heading = "Background mortality")]
+    pub beyond_table: Option<String>,
+}
+
+/// Turns a parametric curve into the curve downstream code works on, applying the command's
+/// adjustments; built once (e.g. with a life table loaded) and applied to the point estimate and
+/// to every uncertainty draw alike.
+pub type Wrap = std::sync::Arc<dyn Fn(ParametricCurve) -> Box<dyn Curve> + Send + Sync>;
+
+/// The wrap of a command without adjustments: the parametric curve itself.
+pub fn no_adjustment() -> Wrap {
+    std::sync::Arc::new(|base: ParametricCurve| Box::new(base) as Box<dyn Curve>)
 }
 
 /// A curve ready for use, with what every output header says about it.
 pub struct BuiltCurve {
-    /// The curve downstream code works on (adjustments wrap it).
+    /// The curve downstream code works on: `wrap(base)`.
     pub curve: Box<dyn Curve>,
+    /// The adjustments, as a function of the parametric curve (used again for each draw).
+    pub wrap: Wrap,
     /// The parametric curve before any adjustment (for draws and parameter listings).
     pub base: ParametricCurve,
     /// The fit it came from, when it came from a fit file (covariance for draws).
@@ -55,6 +114,50 @@ pub struct BuiltCurve {
     pub metadata: Vec<(String, String)>,
     /// Warnings to print on stderr (also recorded in `metadata`).
     pub warnings: Vec<String>,
+    /// The adjusted curve, when any adjustment was asked for (`curve` is then this curve).
+    pub adjustment: Option<Arc<AdjustedCurve>>,
+}
+
+impl BuiltCurve {
+    /// Checks that the background life table covers the cohort up to `t_end` (curve's time
+    /// unit); call before computing with the last time the command will evaluate.
+    pub fn check_horizon(&self, t_end: f64) -> Result<()> {
+        match &self.adjustment {
+            Some(a) => a.check_horizon(t_end),
+            None => Ok(()),
+        }
+    }
+
+    /// Metadata lines on where a background-mortality floor binds among `count` cycles of
+    /// length `cycle` (curve's time unit); empty unless the floor mode is used.
+    pub fn floor_report(&self, cycle: f64, count: usize) -> Vec<(String, String)> {
+        match &self.adjustment {
+            Some(a) => a.floor_report(cycle, count),
+            None => Vec::new(),
+        }
+    }
+}
+
+/// One of a fixed set of words, case-insensitive, with a suggestion on a typo.
+fn choose<T: Copy>(option: &str, text: &str, choices: &[(&str, T)]) -> Result<T> {
+    let lower = text.trim().to_ascii_lowercase();
+    if let Some((_, value)) = choices.iter().find(|(name, _)| *name == lower) {
+        return Ok(*value);
+    }
+    let names: Vec<&str> = choices.iter().map(|(n, _)| *n).collect();
+    let hint = crate::units::nearest(&lower, &names)
+        .map(|n| format!(" (did you mean \"{n}\"?)"))
+        .unwrap_or_default();
+    Err(Error::Usage(format!(
+        "{option} {}: unknown value{hint}; choose one of {}",
+        text.trim(),
+        names.join(", ")
+    )))
+}
+
+/// A number given as an option value, with a one-line error naming the option.
+fn option_number(option: &str, text: &str) -> Result<f64> {
+    crate::input::parse_number(text).map_err(|e| Error::Usage(format!("{option}: {e}")))
 }
 
 /// `name=value, …` with full-precision values, in the family's parameter order.
@@ -98,10 +201,101 @@ impl CurveArgs {
         built
             .metadata
             .push(("parameter_time_unit".into(), built.base.unit.name().into()));
+        let adjustments = self.adjustments()?;
+        if !adjustments.is_empty() {
+            let adjusted = Arc::new(adjust::apply(built.base.clone(), &adjustments)?);
+            built.metadata.extend(adjusted.metadata.iter().cloned());
+            built.warnings.extend(adjusted.warnings.iter().cloned());
+            built.curve = Box::new(adjusted.clone());
+            built.adjustment = Some(adjusted);
+        }
         for w in &built.warnings {
             built.metadata.push(("warning".into(), w.clone()));
         }
         Ok(built)
+    }
+
+    /// The adjustment options, parsed and checked (the life table is read later, by `adjust::apply`).
+    pub fn adjustments(&self) -> Result<Adjustments> {
+        let hazard_ratio = match &self.hazard_ratio {
+            Some(x) => Some(option_number("--hazard-ratio", x)?),
+            None => None,
+        };
+        let acceleration_factor = match &self.acceleration_factor {
+            Some(x) => Some(option_number("--acceleration-factor", x)?),
+            None => None,
+        };
+        let waning = match &self.waning {
+            Some(w) => Some(
+                w.parse::<Waning>()
+                    .map_err(|e| Error::Usage(format!("--waning: {e}")))?,
+            ),
+            None => None,
+        };
+        let background = match (&self.background, &self.start_age) {
+            (Some(path), Some(age)) => Some(BackgroundSettings {
+                path: path.clone(),
+                start_age: option_number("--start-age", age)?,
+                sex: match &self.sex {
+                    Some(s) => Some(choose(
+                        "--sex",
+                        s,
+                        &[("female", Sex::Female), ("male", Sex::Male)],
+                    )?),
+                    None => None,
+                },
+                mode: match &self.background_mode {
+                    Some(m) => choose(
+                        "--background-mode",
+                        m,
+                        &[
+                            ("add", BackgroundMode::Add),
+                            ("floor", BackgroundMode::Floor),
+                        ],
+                    )?,
+                    None => BackgroundMode::Floor,
+                },
+                beyond: match &self.beyond_table {
+                    Some(b) => choose(
+                        "--beyond-table",
+                        b,
+                        &[
+                            ("error", BeyondTable::Error),
+                            ("hold-last", BeyondTable::HoldLast),
+                        ],
+                    )?,
+                    None => BeyondTable::Error,
+                },
+            }),
+            (Some(_), None) => {
+                return Err(Error::Usage(
+                    "--background needs --start-age (age in years at entry)".into(),
+                ))
+            }
+            (None, _) => {
+                for (given, name) in [
+                    (self.start_age.is_some(), "--start-age"),
+                    (self.sex.is_some(), "--sex"),
+                    (self.background_mode.is_some(), "--background-mode"),
+                    (self.beyond_table.is_some(), "--beyond-table"),
+                ] {
+                    if given {
+                        return Err(Error::Usage(format!(
+                            "{name} needs --background LIFETABLE.csv"
+                        )));
+                    }
+                }
+                None
+            }
+        };
+        let adjustments = Adjustments {
+            hazard_ratio,
+            acceleration_factor,
+            waning,
+            background,
+        };
+        adjustments.validate()?;
+        Ok(adjustments)
     }
 
     fn curve_from_fit(
@@ -164,12 +358,15 @@ impl CurveArgs {
         if let Some(arm) = &fit.arm {
             metadata.push(("arm".into(), arm.clone()));
         }
+        let wrap = no_adjustment();
         Ok(BuiltCurve {
-            curve: Box::new(base.clone()),
+            curve: wrap(base.clone()),
+            wrap,
             base,
             fit: Some(fit),
             metadata,
             warnings,
+            adjustment: None,
         })
     }
 
@@ -242,12 +439,15 @@ impl CurveArgs {
         let params: Vec<f64> = values.into_iter().flatten().collect();
         let base = ParametricCurve::new(family, params, unit)
             .map_err(|e| Error::Usage(format!("--param: {e}")))?;
+        let wrap = no_adjustment();
         Ok(BuiltCurve {
-            curve: Box::new(base.clone()),
+            curve: wrap(base.clone()),
+            wrap,
             base,
             fit: None,
             metadata: vec![("source".into(), "published parameters".into())],
             warnings: Vec::new(),
+            adjustment: None,
         })
     }
 }
@@ -264,6 +464,14 @@ mod tests {
             params: params.iter().map(|s| s.to_string()).collect(),
             time_unit: unit.map(String::from),
             allow_unconverged: false,
+            hazard_ratio: None,
+            acceleration_factor: None,
+            waning: None,
+            background: None,
+            start_age: None,
+            sex: None,
+            background_mode: None,
+            beyond_table: None,
         }
     }
 

@@ -149,6 +149,9 @@ pub fn run(args: HorizonArgs) -> Result<()> {
         }
     };
     let horizon = n as f64 * cycle.value;
+    let cycle_in_curve = cycle.in_unit(curve.time_unit());
+    built.check_horizon(n as f64 * cycle_in_curve)?;
+    let floor = built.floor_report(cycle_in_curve, n);
     let log_s = boundary_log_survival(curve, cycle, n);
     let truncation = truncation_table(&log_s, cycle.value);
     let suggested = suggested_count(&truncation, tolerance);
@@ -229,9 +232,13 @@ pub fn run(args: HorizonArgs) -> Result<()> {
         &rows,
     ));
 
+    for (key, value) in &floor {
+        text.push_str(&format!("{}: {value}\n", key.replace('_', " ")));
+    }
     if let Some(path) = &args.json {
         let mut metadata = vec![("tool_version".to_string(), crate::VERSION.to_string())];
         metadata.extend(built.metadata.iter().cloned());
+        metadata.extend(floor.iter().cloned());
         metadata.push(("horizon_rule".into(), horizon_note.clone()));
         metadata.push((
             "cycle".into(),

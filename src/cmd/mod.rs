@@ -2,6 +2,7 @@
 
 pub mod curve_args;
 pub mod demo;
+pub mod draws;
 pub mod fit;
 pub mod horizon;
 pub mod rebuild;

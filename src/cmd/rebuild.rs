@@ -16,7 +16,7 @@ use std::path::{Path, PathBuf};
 #[derive(Debug, Args)]
 #[command(after_help = concat!(
     "Example:\n  tunnelcast rebuild --curve data/demo_digitised.csv --at-risk data/demo_at_risk.csv \\\n",
-    "      --arm-col arm --out rebuilt.csv\n  tunnelcast fit rebuilt.csv --arm-col arm --time-unit months\n\n",
+    "      --arm-col arm --events veltranib=137,standard=155 --out rebuilt.csv\n  tunnelcast fit rebuilt.csv --arm-col arm --time-unit months\n\n",
     "Rebuilt data are an approximation: the order of events and censorings within each interval is \
 assumed, not known. Without a risk table the censoring pattern is guessed and the rebuilt data \
 are much less reliable.\n\n",
@@ -45,7 +45,7 @@ pub struct RebuildArgs {
     #[arg(long, value_name = "IPD.csv")]
     pub out: PathBuf,
     /// Column naming the arm in the points and risk-table files; each arm is rebuilt separately.
-    #[arg(long)]
+    #[arg(long, value_name = "NAME")]
     pub arm_col: Option<String>,
     /// Replace an existing output file.
     #[arg(long)]
@@ -407,6 +407,10 @@ pub fn run(args: RebuildArgs) -> Result<()> {
         "\nwrote {} (time in the figure's unit; pass it to `tunnelcast fit` with --time-unit)\n",
         args.out.display()
     ));
+    text.push_str(
+        "caution: rebuilt data approximate the trial's; when patients were censored within each \
+         interval is assumed, not known. See docs/rebuild.md.\n",
+    );
     output::print(&text);
     Ok(())
 }

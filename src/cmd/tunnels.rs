@@ -4,8 +4,8 @@
 use crate::cmd::curve_args::{parse_unit, CurveArgs};
 use crate::discretise::{count_until, tunnel_table, TunnelTable, MAX_COUNT};
 use crate::error::{Error, Result};
-use crate::export::tunnel::{tunnel_document, Layout};
-use crate::export::{exporter_for, number_text};
+use crate::export::tunnel::{long_table, matrix_table, tunnel_document, Layout};
+use crate::export::{exporter_for, number_text, Cell, Table};
 use crate::format::sig;
 use crate::output;
 use crate::units::{Duration, TimeUnit};
@@ -45,10 +45,10 @@ pub struct TunnelsArgs {
     /// Table layout.
     #[arg(long, value_enum, default_value = "long")]
     pub layout: Layout,
-    /// Write the table to this file (format from the extension: .csv, .json).
+    /// Write the table to this file (format from the extension: .csv, .json, .xlsx).
     #[arg(long, value_name = "FILE")]
     pub out: Option<PathBuf>,
-    /// Output format, overriding the extension (csv, json).
+    /// Output format, overriding the extension (csv, json, xlsx).
     #[arg(long, value_name = "FORMAT", requires = "out")]
     pub format: Option<String>,
     /// Replace an existing output file.
@@ -63,7 +63,7 @@ pub fn parse_duration(option: &str, text: &str) -> Result<Duration> {
 }
 
 /// Parses `--count`: a whole number from 1 to [`MAX_COUNT`].
-fn parse_count(text: &str) -> Result<usize> {
+pub fn parse_count(text: &str) -> Result<usize> {
     match text.trim().parse::<usize>() {
         Ok(n) if (1..=MAX_COUNT).contains(&n) => Ok(n),
         Ok(0) => Err(Error::Usage(
@@ -101,6 +101,16 @@ pub fn header(
     metadata
 }
 
+/// A time with up to 6 significant digits and no trailing zeros (`1`, `30.4375`, `4.33333`).
+fn time_text(t: f64) -> String {
+    let text = sig(t, 6);
+    if text.contains('.') && !text.contains('e') {
+        text.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        text
+    }
+}
+
 /// The aligned text shown on standard output.
 pub fn render_text(table: &TunnelTable, layout: Layout) -> String {
     let unit = table.time_unit;
@@ -132,8 +142,8 @@ pub fn render_text(table: &TunnelTable, layout: Layout) -> String {
                 .map(|(i, r)| {
                     let mut row = vec![
                         r.tunnel.to_string(),
-                        sig(r.t_start, 6),
-                        sig(r.t_end, 6),
+                        time_text(r.t_start),
+                        time_text(r.t_end),
                         sig(r.surv_start, 6),
                         sig(r.surv_end, 6),
                         sig(r.p_exit, 6),
@@ -177,6 +187,99 @@ pub fn render_text(table: &TunnelTable, layout: Layout) -> String {
     out
 }
 
+/// The extra tables of a several-table format (XLSX): the other layout, the parameters and
+/// settings, and the comparison of the fits of the same arm when the curve came from a fit file.
+fn workbook_tables(
+    table: &TunnelTable,
+    layout: Layout,
+    built: &crate::cmd::curve_args::BuiltCurve,
+    curve: &CurveArgs,
+) -> Result<Vec<Table>> {
+    let other = match layout {
+        Layout::Long => matrix_table(table),
+        Layout::Matrix => long_table(table),
+    };
+    let text = |s: &str| Cell::Text(s.to_string());
+    let family = built.base.family;
+    let mut rows = vec![vec![text("family"), text(family.name()), Cell::Missing]];
+    for (name, value) in family.param_names().iter().zip(&built.base.params) {
+        rows.push(vec![
+            text(name),
+            Cell::Number(*value),
+            text(built.base.unit.name()),
+        ]);
+    }
+    rows.push(vec![
+        text("cycle"),
+        Cell::Number(table.cycle),
+        text(table.time_unit.name()),
+    ]);
+    rows.push(vec![
+        text("count"),
+        Cell::Int(table.rows.len() as i64),
+        text("tunnel states"),
+    ]);
+    rows.push(vec![
+        text("curve"),
+        Cell::Text(table.curve.clone()),
+        Cell::Missing,
+    ]);
+    let mut tables = vec![
+        other,
+        Table {
+            name: "parameters".into(),
+            columns: vec!["item".into(), "value".into(), "unit".into()],
+            rows,
+        },
+    ];
+    if let (Some(path), Some(fit)) = (&curve.fit, &built.fit) {
+        let file = crate::fit::FitFile::load(path)?;
+        let number = |x: Option<f64>| x.map_or(Cell::Missing, Cell::Number);
+        let rows = file
+            .fits
+            .iter()
+            .filter(|f| f.arm == fit.arm)
+            .map(|f| {
+                let params: Vec<String> = f
+                    .params
+                    .iter()
+                    .map(|(n, v)| format!("{n}={}", number_text(*v)))
+                    .collect();
+                vec![
+                    Cell::Text(f.family.clone()),
+                    f.arm.clone().map_or(Cell::Missing, Cell::Text),
+                    Cell::Text(if f.converged { "yes" } else { "no" }.into()),
+                    number(f.loglik),
+                    number(f.aic),
+                    number(f.bic),
+                    number(f.delta_aic),
+                    number(f.median),
+                    Cell::Text(params.join(", ")),
+                ]
+            })
+            .collect();
+        tables.push(Table {
+            name: "fit_comparison".into(),
+            columns: [
+                "family",
+                "arm",
+                "converged",
+                "loglik",
+                "aic",
+                "bic",
+                "delta_aic",
+                &format!("median ({})", file.data.time_unit),
+                "parameters",
+            ]
+            .iter()
+            .map(|s| s.to_string())
+            .collect(),
+            rows,
+        });
+    }
+    Ok(tables)
+}
+
 /// Runs `tunnels`.
 pub fn run(args: TunnelsArgs) -> Result<()> {
     let cycle = parse_duration("--cycle", &args.cycle)?;
@@ -208,14 +311,21 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
         value: cycle.in_unit(table_unit),
         unit: table_unit,
     };
+    let cycle_in_curve = cycle.in_unit(built.curve.time_unit());
+    built.check_horizon(count as f64 * cycle_in_curve)?;
     let table = tunnel_table(built.curve.as_ref(), cycle_in_table, count);
+    let mut metadata = built.metadata.clone();
+    let floor = built.floor_report(cycle_in_curve, count);
+    metadata.extend(floor.iter().cloned());
     match exporter {
         Some((path, exporter)) => {
-            let document = tunnel_document(
-                &table,
-                args.layout,
-                header(&table, &built.metadata, args.layout),
-            );
+            let mut document =
+                tunnel_document(&table, args.layout, header(&table, &metadata, args.layout));
+            if exporter.holds_several_tables() {
+                document
+                    .tables
+                    .extend(workbook_tables(&table, args.layout, &built, &args.curve)?);
+            }
             let bytes = exporter.render(&document)?;
             output::write_atomic(path, &bytes)?;
             output::print(&format!(
@@ -228,7 +338,13 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
                 exporter.extension()
             ));
         }
-        None => output::print(&render_text(&table, args.layout)),
+        None => {
+            let mut text = render_text(&table, args.layout);
+            for (key, value) in &floor {
+                text.push_str(&format!("{}: {value}\n", key.replace('_', " ")));
+            }
+            output::print(&text)
+        }
     }
     Ok(())
 }

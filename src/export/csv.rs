@@ -2,7 +2,7 @@
 //! line each), then the document's first table with a header row. Numbers are written in
 //! their shortest round-trip form, so reading the file back gives the same `f64`s.
 
-use super::{number_text, Cell, Document, Exporter};
+use super::{push_number_text, Cell, Document, Exporter};
 use crate::error::{Error, Result};
 
 /// The CSV format (`.csv`).
@@ -28,24 +28,51 @@ impl Exporter for Csv {
             .from_writer(out);
         let fail = |e: csv::Error| Error::Computation(format!("cannot render CSV: {e}"));
         writer.write_record(&table.columns).map_err(fail)?;
-        for row in &table.rows {
-            writer
-                .write_record(row.iter().map(cell_text))
-                .map_err(fail)?;
-        }
+        write_rows(&mut writer, &table.rows).map_err(fail)?;
         writer
             .into_inner()
             .map_err(|e| Error::Computation(format!("cannot render CSV: {e}")))
     }
+
+    fn render_more_rows(&self, rows: &[Vec<Cell>]) -> Option<Result<Vec<u8>>> {
+        let mut writer = csv::WriterBuilder::new()
+            .terminator(csv::Terminator::Any(b'\n'))
+            .from_writer(Vec::new());
+        let fail = |e: csv::Error| Error::Computation(format!("cannot render CSV: {e}"));
+        let result = (|| {
+            write_rows(&mut writer, rows).map_err(fail)?;
+            writer
+                .into_inner()
+                .map_err(|e| Error::Computation(format!("cannot render CSV: {e}")))
+        })();
+        Some(result)
+    }
 }
 
-/// Text of one cell: numbers at full precision, missing and non-finite values empty.
-fn cell_text(cell: &Cell) -> String {
+/// Writes rows field by field through one reused buffer (no allocation per cell).
+fn write_rows(writer: &mut csv::Writer<Vec<u8>>, rows: &[Vec<Cell>]) -> csv::Result<()> {
+    let mut text = String::with_capacity(32);
+    for row in rows {
+        for cell in row {
+            text.clear();
+            cell_text(&mut text, cell);
+            writer.write_field(&text)?;
+        }
+        writer.write_record(std::iter::empty::<&[u8]>())?;
+    }
+    Ok(())
+}
+
+/// Appends the text of one cell: numbers at full precision, missing and non-finite values empty.
+fn cell_text(out: &mut String, cell: &Cell) {
+    use std::fmt::Write as _;
     match cell {
-        Cell::Int(i) => i.to_string(),
-        Cell::Number(x) => number_text(*x),
-        Cell::Text(s) => s.clone(),
-        Cell::Missing => String::new(),
+        Cell::Int(i) => {
+            let _ = write!(out, "{i}");
+        }
+        Cell::Number(x) => push_number_text(out, *x),
+        Cell::Text(s) => out.push_str(s),
+        Cell::Missing => {}
     }
 }
 
@@ -80,5 +107,24 @@ mod tests {
         assert_eq!(rows[0].get(2), Some("a,b"));
         assert_eq!(rows[1].get(1).unwrap().parse::<f64>().unwrap(), 1e-310);
         assert_eq!(rows[1].get(2), Some(""));
+    }
+
+    #[test]
+    fn rows_rendered_in_pieces_equal_rows_rendered_whole() {
+        let row = |i: i64| vec![Cell::Int(i), Cell::Number(i as f64 / 7.0)];
+        let whole = Document {
+            metadata: vec![("k".into(), "v".into())],
+            tables: vec![Table {
+                name: "t".into(),
+                columns: vec!["a".into(), "b".into()],
+                rows: (0..5).map(row).collect(),
+            }],
+        };
+        let mut first = whole.clone();
+        first.tables[0].rows.truncate(2);
+        let mut pieces = Csv.render(&first).unwrap();
+        let more: Vec<Vec<Cell>> = (2..5).map(row).collect();
+        pieces.extend(Csv.render_more_rows(&more).unwrap().unwrap());
+        assert_eq!(pieces, Csv.render(&whole).unwrap());
     }
 }

@@ -39,11 +39,24 @@ pub struct Document {
 }
 
 /// Turns a document into the bytes of one file format.
-pub trait Exporter {
+pub trait Exporter: Send + Sync {
     /// File extension this exporter writes, without the dot.
     fn extension(&self) -> &'static str;
     /// The file's bytes.
     fn render(&self, document: &Document) -> Result<Vec<u8>>;
+
+    /// For formats that can be written in pieces (CSV): the bytes of more rows of the main
+    /// table, to append after [`Exporter::render`] of a document holding the first rows. Lets
+    /// very long tables (uncertainty draws) stream to disk. `None` for formats rendered whole.
+    fn render_more_rows(&self, _rows: &[Vec<Cell>]) -> Option<Result<Vec<u8>>> {
+        None
+    }
+
+    /// Whether the format holds several tables (XLSX sheets); single-table formats get only
+    /// the main table, so commands add extra tables (matrix, parameters) only where they fit.
+    fn holds_several_tables(&self) -> bool {
+        false
+    }
 }
 
 pub mod csv;
@@ -106,14 +119,35 @@ pub fn known_formats() -> Vec<&'static str> {
 /// A real number in its shortest form that reads back to the same `f64` (plain notation for
 /// ordinary magnitudes, exponent notation for very small or large ones); empty when not finite.
 pub fn number_text(x: f64) -> String {
+    let mut out = String::new();
+    push_number_text(&mut out, x);
+    out
+}
+
+/// Appends [`number_text`] of `x` to `out` without allocating; the digits come from `ryu`
+/// (shortest round-trip, several times faster than `format!`, which matters for millions of
+/// draws), laid out as `format!("{x}")` / `format!("{x:e}")` would lay them out (where two
+/// shortest forms exist, the last digit may differ from `format!`'s; both read back exactly).
+pub fn push_number_text(out: &mut String, x: f64) {
+    use std::fmt::Write as _;
     if !x.is_finite() {
-        return String::new();
+        return;
     }
     let a = x.abs();
-    if a == 0.0 || (1e-5..1e16).contains(&a) {
-        format!("{x}")
-    } else {
-        format!("{x:e}")
+    let mut buffer = ryu::Buffer::new();
+    let digits = buffer.format_finite(x);
+    let plain = a == 0.0 || (1e-5..1e16).contains(&a);
+    match (plain, digits.contains('e')) {
+        // ryu writes whole numbers with a trailing ".0"; `{x}` does not.
+        (true, false) => out.push_str(digits.strip_suffix(".0").unwrap_or(digits)),
+        (false, true) => out.push_str(digits),
+        // Layouts the two disagree on fall back to the standard library.
+        (true, true) => {
+            let _ = write!(out, "{x}");
+        }
+        (false, false) => {
+            let _ = write!(out, "{x:e}");
+        }
     }
 }
 
@@ -137,7 +171,34 @@ mod tests {
             assert_eq!(text.parse::<f64>().unwrap(), x, "{text}");
         }
         assert_eq!(number_text(0.25), "0.25");
+        assert_eq!(number_text(1.0), "1");
+        assert_eq!(number_text(-0.0), "-0");
         assert_eq!(number_text(f64::NAN), "");
+    }
+
+    proptest::proptest! {
+        #[test]
+        fn fast_number_text_lays_out_like_the_standard_library(bits in proptest::num::u64::ANY, scale in -320i32..320) {
+            // Reference: the standard library's shortest round-trip formatting (`{}` and `{:e}`).
+            // Both give the shortest digits that read back exactly; where two such strings
+            // exist (a tie in the last digit) they may pick different ones, so the check is:
+            // exact read-back, the same length and the same notation.
+            for x in [f64::from_bits(bits), (bits as f64 / u64::MAX as f64) * 10f64.powi(scale)] {
+                let got = number_text(x);
+                if !x.is_finite() {
+                    proptest::prop_assert_eq!(got, "");
+                    continue;
+                }
+                let expected = if x == 0.0 || (1e-5..1e16).contains(&x.abs()) {
+                    format!("{x}")
+                } else {
+                    format!("{x:e}")
+                };
+                proptest::prop_assert_eq!(got.parse::<f64>().unwrap().to_bits(), x.to_bits());
+                proptest::prop_assert_eq!(got.len(), expected.len(), "{} vs {}", got, expected);
+                proptest::prop_assert_eq!(got.contains('e'), expected.contains('e'));
+            }
+        }
     }
 
     #[test]

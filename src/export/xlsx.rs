@@ -136,6 +136,10 @@ impl Exporter for Xlsx {
         "xlsx"
     }
 
+    fn holds_several_tables(&self) -> bool {
+        true
+    }
+
     fn render(&self, document: &Document) -> Result<Vec<u8>> {
         let mut workbook = Workbook::new();
         let header = Format::new().set_bold();

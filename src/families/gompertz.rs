@@ -3,7 +3,7 @@
 
 use super::{check_finite, check_positive, Family};
 use crate::fit::{sum_terms, FitData};
-use crate::numeric::{expm1_over_x, expm1_over_x_derivative, ln1p_over_x};
+use crate::numeric::{expm1_over_x, ln1p_over_x};
 
 /// Exponentially changing hazard; proportional-hazards. Shape → 0 is the exponential.
 pub struct Gompertz;
@@ -90,12 +90,63 @@ impl Family for Gompertz {
         let rate = ln_rate.exp();
         let (ll, g) = sum_terms::<2>(data, |t, _ln_t, d, n| {
             let x = shape * t;
-            let cum = rate * t * expm1_over_x(x);
+            let (ratio, ratio_derivative) = expm1_over_x_and_derivative(x);
+            let cum = rate * t * ratio;
             let ll = d * (ln_rate + x) - n * cum;
-            let g_shape = d * t - n * rate * t * t * expm1_over_x_derivative(x);
+            let g_shape = d * t - n * rate * t * t * ratio_derivative;
             let g_rate = d - n * cum;
             (ll, [g_shape, g_rate])
         });
         (ll, g.to_vec())
+    }
+}
+
+/// Taylor coefficients 1/(k+1)! of (e^x - 1)/x, k = 0..13; with |x| < 0.1 the remainder is
+/// below 1e-26.
+const EXPM1_OVER_X_SERIES: [f64; 14] = {
+    let mut c = [0.0; 14];
+    let mut factorial = 1.0;
+    let mut k = 0;
+    while k < 14 {
+        factorial *= (k + 1) as f64;
+        c[k] = 1.0 / factorial;
+        k += 1;
+    }
+    c
+};
+
+/// (e^x - 1)/x and its derivative in one go for the likelihood loop: a Horner series near 0
+/// (no cancellation), one exponential elsewhere.
+fn expm1_over_x_and_derivative(x: f64) -> (f64, f64) {
+    if x.abs() < 0.1 {
+        let c = &EXPM1_OVER_X_SERIES;
+        let mut value = c[13];
+        let mut slope = 13.0 * c[13];
+        for k in (1..13).rev() {
+            value = value * x + c[k];
+            slope = slope * x + k as f64 * c[k];
+        }
+        (value * x + c[0], slope)
+    } else {
+        let e = x.exp();
+        ((e - 1.0) / x, (e * (x - 1.0) + 1.0) / (x * x))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::numeric::expm1_over_x_derivative;
+
+    #[test]
+    fn combined_ratio_and_derivative_match_the_separate_forms() {
+        for &x in &[
+            -30.0, -0.5, -0.1, -0.0999, -1e-4, 0.0, 1e-7, 0.05, 0.0999, 0.1, 2.0, 30.0,
+        ] {
+            let (value, slope) = expm1_over_x_and_derivative(x);
+            let (a, b) = (expm1_over_x(x), expm1_over_x_derivative(x));
+            assert!((value - a).abs() <= 4e-15 * a.abs(), "{x}: {value} vs {a}");
+            assert!((slope - b).abs() <= 1e-13 * b.abs(), "{x}: {slope} vs {b}");
+        }
     }
 }

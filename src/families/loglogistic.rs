@@ -2,7 +2,7 @@
 
 use super::{check_positive, Family};
 use crate::fit::{sum_terms, FitData};
-use crate::numeric::{logistic, softplus};
+use crate::numeric::softplus;
 
 /// Hazard rising then falling for shape > 1; accelerated-failure-time (proportional odds).
 pub struct LogLogistic;
@@ -70,13 +70,40 @@ impl Family for LogLogistic {
         let ln_scale = theta[1];
         let (ll, g) = sum_terms::<2>(data, |_t, ln_t, d, n| {
             let u = shape * (ln_t - ln_scale);
-            let sp = softplus(u);
-            let sig = logistic(u);
+            let (sp, sig) = softplus_and_logistic(u);
             let ll = d * (ln_shape - ln_t + u - sp) - n * sp;
             let g_shape = d * (1.0 + u * (1.0 - sig)) - n * sig * u;
             let g_scale = shape * (n * sig - d * (1.0 - sig));
             (ll, [g_shape, g_scale])
         });
         (ll, g.to_vec())
+    }
+}
+
+/// softplus(u) = ln(1 + e^u) and its derivative, the logistic 1/(1 + e^-u), from one
+/// exponential (the likelihood loop's cost is its transcendental calls).
+fn softplus_and_logistic(u: f64) -> (f64, f64) {
+    let e = (-u.abs()).exp();
+    let sp = u.max(0.0) + e.ln_1p();
+    let sig = if u >= 0.0 {
+        1.0 / (1.0 + e)
+    } else {
+        e / (1.0 + e)
+    };
+    (sp, sig)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::numeric::logistic;
+
+    #[test]
+    fn combined_softplus_and_logistic_match_the_separate_forms() {
+        for &u in &[-800.0, -40.0, -3.0, -1e-9, 0.0, 1e-9, 2.5, 35.0, 800.0] {
+            let (sp, sig) = softplus_and_logistic(u);
+            assert!((sp - softplus(u)).abs() <= 1e-15 * softplus(u).abs().max(1e-300));
+            assert!((sig - logistic(u)).abs() <= 1e-15 * logistic(u).max(1e-300));
+        }
     }
 }

@@ -3,7 +3,9 @@
 
 use super::{check_finite, check_positive, Family};
 use crate::fit::{sum_terms, FitData};
-use crate::numeric::{inverse_mills, log_normal_sf, normal_quantile, LN_SQRT_2PI};
+use crate::numeric::{
+    inverse_mills, log_normal_sf, normal_pdf, normal_quantile, normal_sf, LN_SQRT_2PI,
+};
 
 /// Hazard rising then falling; accelerated-failure-time.
 pub struct LogNormal;
@@ -83,13 +85,41 @@ impl Family for LogNormal {
                 g_sigma += d * (z * z - 1.0);
             }
             if c > 0.0 {
-                let lambda = inverse_mills(z);
-                ll += c * log_normal_sf(z);
+                let (log_q, lambda) = log_sf_and_inverse_mills(z);
+                ll += c * log_q;
                 g_mu += c * lambda / sigma;
                 g_sigma += c * lambda * z;
             }
             (ll, [g_mu, g_sigma])
         });
         (ll, g.to_vec())
+    }
+}
+
+/// ln Q(z) and the inverse Mills ratio φ(z)/Q(z) from one complementary error function in
+/// the central range (the censored terms of the likelihood need both); the tails use the
+/// shared guarded forms.
+fn log_sf_and_inverse_mills(z: f64) -> (f64, f64) {
+    if (-5.0..=5.0).contains(&z) {
+        let q = normal_sf(z);
+        (q.ln(), normal_pdf(z) / q)
+    } else {
+        (log_normal_sf(z), inverse_mills(z))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn combined_tail_terms_match_the_separate_forms() {
+        for &z in &[
+            -30.0, -5.0, -4.99, -1.0, 0.0, 0.7, 4.99, 5.0, 5.01, 12.0, 40.0,
+        ] {
+            let (log_q, lambda) = log_sf_and_inverse_mills(z);
+            assert!((log_q - log_normal_sf(z)).abs() <= 1e-14 * log_normal_sf(z).abs().max(1e-300));
+            assert!((lambda - inverse_mills(z)).abs() <= 1e-14 * inverse_mills(z));
+        }
     }
 }

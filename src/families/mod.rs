@@ -15,6 +15,7 @@ use crate::fit::FitData;
 use serde::{Deserialize, Serialize};
 use std::sync::Mutex;
 
+mod cure;
 mod exponential;
 mod gengamma;
 mod gompertz;
@@ -24,6 +25,7 @@ mod lognormal;
 mod piecewise;
 mod weibull;
 
+pub use cure::{Cure, CURE_LOGLOGISTIC, CURE_LOGNORMAL, CURE_WEIBULL};
 pub use exponential::Exponential;
 pub use gengamma::GenGamma;
 pub use gompertz::Gompertz;
@@ -233,7 +235,12 @@ pub static STANDARD: [&dyn Family; 5] =
 /// Every family the tool knows.
 pub fn all() -> Vec<&'static dyn Family> {
     let mut families = STANDARD.to_vec();
-    families.push(&GenGamma);
+    families.extend([
+        &GenGamma as &dyn Family,
+        &CURE_WEIBULL,
+        &CURE_LOGNORMAL,
+        &CURE_LOGLOGISTIC,
+    ]);
     families
 }
 
@@ -366,6 +373,9 @@ pub(crate) mod tests {
             "lognormal" => vec![vec![3.0, 0.5], vec![-1.0, 2.0]],
             "loglogistic" => vec![vec![0.8, 20.0], vec![3.5, 1.5]],
             "gompertz" => vec![vec![0.05, 0.01], vec![-0.3, 0.2], vec![1e-12, 0.4]],
+            "cure-weibull" => vec![vec![1.5, 10.0, 0.3], vec![0.7, 3.0, 0.02]],
+            "cure-lognormal" => vec![vec![2.0, 0.8, 0.25]],
+            "cure-loglogistic" => vec![vec![2.2, 6.0, 0.4]],
             "gengamma" => vec![
                 vec![1.0, 0.5, 1.0],
                 vec![3.0, 1.2, -0.7],

@@ -152,6 +152,11 @@ fn pass(
 /// at time 0 when only the number of patients is known). `total_events` is used in the last
 /// interval. Errors only when `total_events` cannot be met.
 pub fn rebuild(points: &[Point], risk: &[RiskRow], total_events: Option<u64>) -> Result<Rebuilt> {
+    if points.len() < 2 || risk.is_empty() || risk[0].time != 0.0 {
+        return Err(Error::Computation(
+            "rebuild needs at least two cleaned points and a risk table starting at time 0".into(),
+        ));
+    }
     let last_time = points.last().map(|p| p.time).unwrap_or(0.0);
     let mut records = Vec::new();
     let mut intervals = Vec::new();
@@ -447,5 +452,84 @@ mod tests {
         let n5 = 100 - before;
         let after_drop = n5 - ((n5 as f64) / 2.0).round() as u64;
         assert_eq!(after_drop - (c - before), 30);
+    }
+}
+
+#[cfg(test)]
+mod properties {
+    use super::*;
+    use proptest::prelude::*;
+
+    /// A valid cleaned curve from positive gaps and drops, and a valid risk table on it.
+    fn inputs() -> impl Strategy<Value = (Vec<Point>, Vec<RiskRow>, u64)> {
+        (
+            prop::collection::vec((0.01f64..5.0, 0.0f64..0.2), 1..60),
+            prop::collection::vec((0.0f64..1.0, 0.0f64..1.0), 0..6),
+            1u64..500,
+        )
+            .prop_map(|(steps, table, n)| {
+                let mut points = vec![Point {
+                    time: 0.0,
+                    survival: 1.0,
+                }];
+                let (mut t, mut s) = (0.0, 1.0);
+                for (gap, drop) in steps {
+                    t += gap;
+                    points.push(Point {
+                        time: t,
+                        survival: s,
+                    });
+                    s *= 1.0 - drop;
+                    points.push(Point {
+                        time: t,
+                        survival: s,
+                    });
+                }
+                let mut risk = vec![RiskRow {
+                    time: 0.0,
+                    at_risk: n,
+                    line: 0,
+                }];
+                let mut fractions: Vec<(f64, f64)> = table;
+                fractions.sort_by(|a, b| a.0.total_cmp(&b.0));
+                for (at, keep) in fractions {
+                    let time = (at * t * 1000.0).round() / 1000.0;
+                    let last = *risk.last().unwrap();
+                    if time > last.time && time <= t {
+                        risk.push(RiskRow {
+                            time,
+                            at_risk: (last.at_risk as f64 * keep).floor() as u64,
+                            line: 0,
+                        });
+                    }
+                }
+                (points, risk, n)
+            })
+    }
+
+    proptest! {
+        #[test]
+        fn every_patient_is_rebuilt_once_at_a_positive_time(
+            (points, risk, n) in inputs(),
+            share in prop::option::of(0.0f64..1.0),
+        ) {
+            let last = points.last().unwrap().time;
+            let drop = 1.0 - points.last().unwrap().survival;
+            let total = share.map(|f| (f * drop * n as f64).round() as u64);
+            let rebuilt = rebuild(&points, &risk, total);
+            // A total below the events the table forces is refused; nothing else may fail.
+            let rebuilt = match rebuilt {
+                Ok(r) => r,
+                Err(e) => {
+                    prop_assert!(total.is_some(), "{e}");
+                    return Ok(());
+                }
+            };
+            prop_assert_eq!(rebuilt.records.len() as u64, n);
+            prop_assert!(rebuilt.records.iter().all(|r| r.time > 0.0 && r.time <= last));
+            let events: u64 = rebuilt.intervals.iter().map(|i| i.events).sum();
+            prop_assert_eq!(events, rebuilt.events());
+            prop_assert!(rebuilt.records.windows(2).all(|w| w[0].time <= w[1].time));
+        }
     }
 }

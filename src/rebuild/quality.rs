@@ -97,3 +97,62 @@ pub fn assess(
         events_given,
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn record(time: f64, event: bool) -> Record {
+        Record { time, event }
+    }
+
+    #[test]
+    fn points_are_compared_with_the_closer_side_of_a_step() {
+        // Hand-made: 4 patients, events at 2 and 4 → S = 0.75 on [2, 4), 0.5 from 4.
+        let records = vec![
+            record(2.0, true),
+            record(3.0, false),
+            record(4.0, true),
+            record(6.0, false),
+        ];
+        let points = [
+            Point {
+                time: 0.0,
+                survival: 1.0,
+            },
+            // Top and bottom corners of the drop at 2: each matches its own side exactly.
+            Point {
+                time: 2.0,
+                survival: 1.0,
+            },
+            Point {
+                time: 2.0,
+                survival: 0.75,
+            },
+            // 0.02 below the flat part at 3.
+            Point {
+                time: 3.0,
+                survival: 0.73,
+            },
+        ];
+        let risk = [
+            RiskRow {
+                time: 0.0,
+                at_risk: 4,
+                line: 2,
+            },
+            RiskRow {
+                time: 3.0,
+                at_risk: 3,
+                line: 3,
+            },
+        ];
+        let q = assess(&points, &risk, &records, Some(2));
+        assert!((q.max_abs_diff - 0.02).abs() < 1e-12);
+        assert_eq!(q.max_abs_at, 3.0);
+        assert!((q.mean_abs_diff - 0.005).abs() < 1e-12);
+        // At time 3: patients with time ≥ 3 are the censoring at 3 and the two later ones.
+        assert_eq!(q.at_risk[1].rebuilt, 3);
+        assert_eq!((q.patients, q.events), (4, 2));
+    }
+}

@@ -61,6 +61,8 @@ pub struct RiskTable {
     pub arm: Option<String>,
     /// Rows with their file lines.
     pub rows: Vec<RiskRow>,
+    /// 1-based column of `time` in the file, for messages.
+    pub time_column: usize,
 }
 
 /// A numeric table read from CSV: named columns, optional arm column, rows with line numbers.
@@ -471,7 +473,11 @@ pub fn read_risk_tables(file: &str, bytes: &[u8], arm_col: Option<&str>) -> Resu
                 "the number at risk at time 0 is 0; there are no patients to rebuild",
             ));
         }
-        tables.push(RiskTable { arm, rows: out });
+        tables.push(RiskTable {
+            arm,
+            rows: out,
+            time_column: time_idx + 1,
+        });
     }
     Ok(tables)
 }
@@ -488,7 +494,7 @@ pub fn check_risk_within_curve(
             return Err(Error::at(
                 file,
                 row.line,
-                1,
+                table.time_column,
                 "time",
                 format!(
                     "risk-table time {} is beyond the last digitised time {last}{}; digitise the curve up to the last table time or drop the row",
@@ -544,5 +550,19 @@ mod tests {
             .unwrap_err()
             .to_string();
         assert!(err.starts_with("r.csv line 4 column 2"), "{err}");
+    }
+
+    proptest::proptest! {
+        #[test]
+        fn arbitrary_files_never_panic(
+            rows in proptest::collection::vec(("[-0-9.e]{0,6}", "[-0-9.%]{0,6}", "[ab]?"), 0..30)
+        ) {
+            let mut text = String::from("time,survival,at_risk,arm\n");
+            for (a, b, c) in &rows {
+                text.push_str(&format!("{a},{b},{b},{c}\n"));
+            }
+            let _ = read_curves("c.csv", text.as_bytes(), Some("arm"));
+            let _ = read_risk_tables("r.csv", text.as_bytes(), None);
+        }
     }
 }

@@ -1,0 +1,678 @@
+//! `tunnelcast draws`: uncertainty draws of a tunnel table for probabilistic sensitivity
+//! analysis, written in the long or wide layout with a per-tunnel summary of `p_exit`.
+//!
+//! Order of work: every option and output path is checked, the curve is built, all random
+//! numbers are drawn, and only then are the tables computed (in parallel, in chunks) and
+//! written, the long CSV streamed to a temporary file renamed into place at the end.
+
+use crate::cmd::curve_args::{BuiltCurve, CurveArgs};
+use crate::cmd::tunnels::{header, parse_count, parse_duration};
+use crate::curve::{Curve, ParametricCurve};
+use crate::discretise::{count_until, tunnel_table, TunnelTable};
+use crate::draws::{self, Bootstrap, CurveBuilder, Sampler, SummaryBuilder, SummaryRow};
+use crate::error::{Error, Result};
+use crate::export::tunnel::{long_table, Layout};
+use crate::export::{exporter_for, number_text, xlsx, Cell, Document, Exporter, Table};
+use crate::families::Family;
+use crate::fit::FitFile;
+use crate::format::sig;
+use crate::input::{self, InputOptions, Record};
+use crate::output;
+use crate::progress::LongRun;
+use crate::units::{Duration, TimeUnit};
+use clap::{Args, ValueEnum};
+use rayon::prelude::*;
+use std::path::{Path, PathBuf};
+
+/// Layout of the draws file.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum DrawLayout {
+    /// One row per draw and tunnel: `draw`, then the long-layout columns of `tunnels`.
+    Long,
+    /// One row per tunnel (`tunnel`, `t_start`, `t_end`), then one `p_exit` column per draw.
+    Wide,
+}
+
+impl DrawLayout {
+    /// Name as written on the command line and in headers.
+    pub fn name(self) -> &'static str {
+        match self {
+            DrawLayout::Long => "long",
+            DrawLayout::Wide => "wide",
+        }
+    }
+}
+
+/// Options of `draws`.
+#[derive(Debug, Args)]
+#[command(after_help = concat!(
+    "Examples:\n",
+    "  tunnelcast draws --fit fit.json --family weibull --arm active --cycle \"1 month\" --count 120 --draws 1000 --seed 42 --out draws.csv --summary-out summary.csv\n",
+    "  tunnelcast draws --fit fit.json --family lognormal --arm active --cycle \"1 month\" --count 60 --draws 200 --layout wide --out draws.xlsx\n",
+    "  tunnelcast draws --fit fit.json --family weibull --arm active --cycle \"1 month\" --count 60 --draws 500 --bootstrap --arm-col arm --out boot.csv\n\n",
+    "Draws come from the multivariate normal approximation of the estimates on the estimation scale \
+(logs of positive parameters), using the fit file's covariance; --bootstrap resamples subjects and \
+refits instead. The same seed and tool version give an identical file, whatever the number of threads.\n\n",
+    "Caution: extrapolated survival is an assumption, not an observation. Check every extrapolation \
+against clinical opinion and external data. tunnelcast does not replace local HTA guidance or qualified review."
+))]
+pub struct DrawsArgs {
+    #[command(flatten)]
+    pub curve: CurveArgs,
+    /// Cycle length, e.g. "1 month", "28 days", "0.25 years".
+    #[arg(long, value_name = "DURATION")]
+    pub cycle: String,
+    /// Number of tunnel states (the last repeats its own probability for every later cycle).
+    #[arg(
+        long,
+        value_name = "N",
+        conflicts_with = "until",
+        required_unless_present = "until"
+    )]
+    pub count: Option<String>,
+    /// Enough tunnel states to reach this time since entry (rounded up to whole cycles).
+    #[arg(long, value_name = "DURATION")]
+    pub until: Option<String>,
+    /// Time unit of t_start and t_end (default: the cycle's unit).
+    #[arg(long, value_name = "UNIT")]
+    pub table_unit: Option<String>,
+    /// Number of draws (bootstrap: number of resamples).
+    #[arg(long, value_name = "N", default_value = "1000")]
+    pub draws: String,
+    /// Seed of the random number generator (recorded in every output).
+    #[arg(long, value_name = "S", default_value_t = 1)]
+    pub seed: u64,
+    /// Layout of the draws file.
+    #[arg(long, value_enum, default_value = "long")]
+    pub layout: DrawLayout,
+    /// Write the draws to this file (format from the extension: .csv, .json, .xlsx).
+    #[arg(long, value_name = "FILE")]
+    pub out: Option<PathBuf>,
+    /// Output format of --out, overriding the extension (csv, json, xlsx).
+    #[arg(long, value_name = "FORMAT", requires = "out")]
+    pub format: Option<String>,
+    /// Write the per-tunnel summary (mean, 2.5% and 97.5% percentiles of p_exit) to this file.
+    #[arg(long, value_name = "FILE")]
+    pub summary_out: Option<PathBuf>,
+    /// Replace existing output files.
+    #[arg(long)]
+    pub force: bool,
+    /// No progress bar.
+    #[arg(long)]
+    pub quiet: bool,
+    /// Nonparametric bootstrap: resample subjects with replacement and refit the family.
+    #[arg(long, help_heading = "Bootstrap")]
+    pub bootstrap: bool,
+    /// Data file to resample (default: the file recorded in the fit file, looked up as written
+    /// and then beside the fit file; its SHA-256 must match the one recorded).
+    #[arg(long, value_name = "DATA.csv", help_heading = "Bootstrap")]
+    pub data: Option<PathBuf>,
+    /// Time column of the data file.
+    #[arg(
+        long,
+        value_name = "NAME",
+        default_value = "time",
+        help_heading = "Bootstrap"
+    )]
+    pub time_col: String,
+    /// Event column of the data file (1 = event, 0 = censored).
+    #[arg(
+        long,
+        value_name = "NAME",
+        default_value = "event",
+        help_heading = "Bootstrap"
+    )]
+    pub event_col: String,
+    /// Arm column of the data file (needed when the fit is for one arm).
+    #[arg(long, value_name = "NAME", help_heading = "Bootstrap")]
+    pub arm_col: Option<String>,
+}
+
+/// Parses `--draws`: a whole number, at least 1.
+fn parse_draws(text: &str) -> Result<usize> {
+    match text.trim().parse::<usize>() {
+        Ok(0) => Err(Error::Usage(
+            "--draws 0: at least one draw is needed".into(),
+        )),
+        Ok(n) => Ok(n),
+        Err(_) => Err(Error::Usage(format!(
+            "--draws {}: not a whole number of draws (1 or more)",
+            text.trim()
+        ))),
+    }
+}
+
+/// An output file with its format, checked before any computation.
+struct Target {
+    path: PathBuf,
+    exporter: Box<dyn Exporter>,
+}
+
+fn target(path: &Path, format: Option<&str>, force: bool) -> Result<Target> {
+    let exporter = exporter_for(path, format)?;
+    output::check_writable(path, force)?;
+    Ok(Target {
+        path: path.to_path_buf(),
+        exporter,
+    })
+}
+
+/// Column names of the long layout of draws: `draw`, then the tunnel table's long columns.
+fn long_columns(point: &TunnelTable) -> Vec<String> {
+    let mut columns = vec!["draw".to_string()];
+    columns.extend(long_table(point).columns);
+    columns
+}
+
+/// Rows of one draw in the long layout (`draw` is 1-based).
+fn long_rows(draw: usize, table: &TunnelTable) -> Vec<Vec<Cell>> {
+    long_table(table)
+        .rows
+        .into_iter()
+        .map(|row| {
+            let mut cells = Vec::with_capacity(row.len() + 1);
+            cells.push(Cell::Int(draw as i64));
+            cells.extend(row);
+            cells
+        })
+        .collect()
+}
+
+/// The wide layout from `p_exit` per tunnel (in draw order).
+fn wide_table(point: &TunnelTable, by_tunnel: &[Vec<f64>]) -> Table {
+    let draws = by_tunnel.first().map_or(0, Vec::len);
+    let mut columns: Vec<String> = ["tunnel", "t_start", "t_end"]
+        .iter()
+        .map(|s| s.to_string())
+        .collect();
+    columns.extend((1..=draws).map(|d| format!("draw_{d}")));
+    let rows = point
+        .rows
+        .iter()
+        .zip(by_tunnel)
+        .map(|(r, values)| {
+            let mut cells = vec![
+                Cell::Int(r.tunnel as i64),
+                Cell::Number(r.t_start),
+                Cell::Number(r.t_end),
+            ];
+            cells.extend(values.iter().map(|p| Cell::Number(*p)));
+            cells
+        })
+        .collect();
+    Table {
+        name: "draws_wide".into(),
+        columns,
+        rows,
+    }
+}
+
+/// The summary table: point estimate, mean and 2.5%/97.5% percentiles of `p_exit` per tunnel.
+fn summary_table(rows: &[SummaryRow]) -> Table {
+    Table {
+        name: "summary".into(),
+        columns: [
+            "tunnel",
+            "t_start",
+            "t_end",
+            "p_exit_point",
+            "p_exit_mean",
+            "p_exit_pct2_5",
+            "p_exit_pct97_5",
+        ]
+        .iter()
+        .map(|s| s.to_string())
+        .collect(),
+        rows: rows
+            .iter()
+            .map(|r| {
+                vec![
+                    Cell::Int(r.tunnel as i64),
+                    Cell::Number(r.t_start),
+                    Cell::Number(r.t_end),
+                    Cell::Number(r.point),
+                    Cell::Number(r.mean),
+                    Cell::Number(r.lower),
+                    Cell::Number(r.upper),
+                ]
+            })
+            .collect(),
+    }
+}
+
+/// The drawn natural parameters, one row per draw.
+fn parameter_table(family: &dyn Family, params: &[Vec<f64>]) -> Table {
+    let mut columns = vec!["draw".to_string()];
+    columns.extend(family.param_names().iter().map(|s| s.to_string()));
+    Table {
+        name: "parameters".into(),
+        columns,
+        rows: params
+            .iter()
+            .enumerate()
+            .map(|(i, p)| {
+                let mut row = vec![Cell::Int(i as i64 + 1)];
+                row.extend(p.iter().map(|x| Cell::Number(*x)));
+                row
+            })
+            .collect(),
+    }
+}
+
+/// The aligned summary printed on standard output.
+fn render_summary(point: &TunnelTable, rows: &[SummaryRow], draws: usize) -> String {
+    let unit = point.time_unit;
+    let mut out = format!(
+        "curve: {}\ncycle: {} {unit}; {} tunnel states; {draws} draws; times in {unit}\n",
+        point.curve,
+        number_text(point.cycle),
+        point.rows.len()
+    );
+    let text: Vec<Vec<String>> = rows
+        .iter()
+        .map(|r| {
+            vec![
+                r.tunnel.to_string(),
+                sig(r.t_start, 6),
+                sig(r.t_end, 6),
+                sig(r.point, 5),
+                sig(r.mean, 5),
+                sig(r.lower, 5),
+                sig(r.upper, 5),
+            ]
+        })
+        .collect();
+    out.push_str(&crate::format::table_aligned(
+        &[
+            "tunnel",
+            &format!("t_start ({unit})"),
+            &format!("t_end ({unit})"),
+            "p_exit (point)",
+            "mean",
+            "2.5%",
+            "97.5%",
+        ],
+        &text,
+        0,
+    ));
+    out
+}
+
+/// Finds the data file to resample: `--data`, else the fit file's record of it (as written,
+/// then beside the fit file); its SHA-256 must match the fit file's.
+fn bootstrap_records(
+    args: &DrawsArgs,
+    fit_path: &Path,
+    file: &FitFile,
+    arm: Option<&str>,
+) -> Result<(String, Vec<Record>)> {
+    let recorded = PathBuf::from(&file.data.file);
+    let path = match &args.data {
+        Some(p) => p.clone(),
+        None => {
+            let beside = fit_path
+                .parent()
+                .map(|d| d.join(&recorded))
+                .unwrap_or_else(|| recorded.clone());
+            if recorded.is_file() {
+                recorded
+            } else if beside.is_file() {
+                beside
+            } else {
+                return Err(Error::input(
+                    &fit_path.display().to_string(),
+                    format!(
+                        "--bootstrap needs the fitted data file {}, which is neither in the current folder nor beside the fit file; give it with --data",
+                        file.data.file
+                    ),
+                ));
+            }
+        }
+    };
+    let name = path.display().to_string();
+    let bytes =
+        std::fs::read(&path).map_err(|e| Error::input(&name, format!("cannot read: {e}")))?;
+    if input::sha256_hex(&bytes) != file.data.sha256 {
+        return Err(Error::input(
+            &name,
+            "differs from the data the fit file was made from (SHA-256 does not match); bootstrap the file that was fitted",
+        ));
+    }
+    if arm.is_some() && args.arm_col.is_none() {
+        return Err(Error::Usage(
+            "--bootstrap of one arm needs --arm-col (the arm column of the data file)".into(),
+        ));
+    }
+    let options = InputOptions {
+        time_col: args.time_col.clone(),
+        event_col: args.event_col.clone(),
+        arm_col: args.arm_col.clone(),
+        delimiter: None,
+        zero_time: file.data.zero_time,
+    };
+    let data = input::parse(&name, &bytes, &options)?;
+    let records = data
+        .arms
+        .into_iter()
+        .find(|a| a.arm.as_deref() == arm)
+        .map(|a| a.records)
+        .ok_or_else(|| {
+            Error::input(&name, format!("has no arm \"{}\"", arm.unwrap_or_default()))
+        })?;
+    Ok((name, records))
+}
+
+/// Ordered metadata lines of an output file.
+type Metadata = Vec<(String, String)>;
+
+/// Parameter sets for the draws and the metadata lines saying how they were made.
+fn draw_parameters(
+    args: &DrawsArgs,
+    built: &BuiltCurve,
+    n: usize,
+    run: &LongRun,
+) -> Result<(Vec<Vec<f64>>, Metadata)> {
+    let family = built.base.family;
+    let fit_path = args.curve.fit.as_deref().ok_or_else(|| {
+        Error::Usage(
+            "draws need --fit FIT.json: published parameters (--param) carry no covariance to draw from"
+                .into(),
+        )
+    })?;
+    let fit_name = fit_path.display().to_string();
+    let fit = built
+        .fit
+        .as_ref()
+        .ok_or_else(|| Error::input(&fit_name, "no fit for this family"))?;
+    if !args.bootstrap {
+        let sampler = Sampler::from_fit(family, fit).map_err(|e| Error::input(&fit_name, e))?;
+        let params = sampler.draw_natural(n, args.seed);
+        let metadata = vec![
+            (
+                "method".to_string(),
+                "multivariate normal on the estimation scale (estimates and covariance from the fit file), transformed back to natural parameters".to_string(),
+            ),
+            ("estimation_names".to_string(), family.estimation_names().join(", ")),
+        ];
+        return Ok((params, metadata));
+    }
+    let file = FitFile::load(fit_path)?;
+    let (data_name, records) = bootstrap_records(args, fit_path, &file, fit.arm.as_deref())?;
+    let Bootstrap { params, failed } =
+        draws::bootstrap(family, &records, n, args.seed, &run.control())?;
+    if params.is_empty() {
+        return Err(Error::Computation(format!(
+            "every one of the {n} bootstrap refits of {} failed (first: {})",
+            family.name(),
+            failed.first().map(|f| f.1.as_str()).unwrap_or("")
+        )));
+    }
+    if !failed.is_empty() {
+        eprintln!(
+            "warning: {} of {n} bootstrap refits failed and were left out (first: resample {}: {})",
+            failed.len(),
+            failed[0].0,
+            failed[0].1
+        );
+    }
+    let mut metadata = vec![
+        (
+            "method".to_string(),
+            "nonparametric bootstrap: subjects resampled with replacement, family refitted by maximum likelihood".to_string(),
+        ),
+        ("bootstrap_data_file".to_string(), data_name),
+        ("bootstrap_resamples".to_string(), n.to_string()),
+        ("bootstrap_failed".to_string(), failed.len().to_string()),
+    ];
+    if !failed.is_empty() {
+        let list: Vec<String> = failed.iter().map(|(i, _)| i.to_string()).collect();
+        metadata.push(("bootstrap_failed_resamples".to_string(), list.join(" ")));
+    }
+    Ok((params, metadata))
+}
+
+/// Runs `draws`.
+pub fn run(args: DrawsArgs) -> Result<()> {
+    let cycle = parse_duration("--cycle", &args.cycle)?;
+    let table_unit: TimeUnit = match &args.table_unit {
+        Some(u) => crate::cmd::curve_args::parse_unit("--table-unit", u)?,
+        None => cycle.unit,
+    };
+    let count = match (&args.count, &args.until) {
+        (Some(c), _) => parse_count(c)?,
+        (None, Some(u)) => {
+            let until = parse_duration("--until", u)?;
+            count_until(cycle, until).map_err(Error::Usage)?
+        }
+        (None, None) => return Err(Error::Usage("give --count N or --until DURATION".into())),
+    };
+    let n = parse_draws(&args.draws)?;
+    if args.data.is_some() && !args.bootstrap {
+        return Err(Error::Usage("--data is used only with --bootstrap".into()));
+    }
+    let out = match &args.out {
+        Some(p) => Some(target(p, args.format.as_deref(), args.force)?),
+        None => None,
+    };
+    let summary_out = match &args.summary_out {
+        Some(p) => Some(target(p, None, args.force)?),
+        None => None,
+    };
+    if let (Some(a), Some(b)) = (&out, &summary_out) {
+        if a.path == b.path {
+            return Err(Error::Usage(
+                "--out and --summary-out name the same file".into(),
+            ));
+        }
+    }
+    for t in out.iter() {
+        if t.exporter.extension() == "xlsx" {
+            match args.layout {
+                DrawLayout::Long => xlsx::check_fits("draws", n * count, 8)?,
+                DrawLayout::Wide => xlsx::check_fits("draws_wide", count, 3 + n)?,
+            }
+        }
+    }
+    let built = args.curve.build()?;
+    for w in &built.warnings {
+        eprintln!("warning: {w}");
+    }
+    let cycle_in_table = Duration {
+        value: cycle.in_unit(table_unit),
+        unit: table_unit,
+    };
+    let point = tunnel_table(built.curve.as_ref(), cycle_in_table, count);
+
+    let family = built.base.family;
+    let unit = built.base.unit;
+    let wrap = built.wrap.clone();
+    let build = move |p: &[f64]| -> std::result::Result<Box<dyn Curve>, String> {
+        Ok(wrap(ParametricCurve::new(family, p.to_vec(), unit)?))
+    };
+
+    let label = if args.bootstrap { "refits" } else { "draws" };
+    let run = LongRun::start(n as u64, label, args.quiet)?;
+    let (params, method) = draw_parameters(&args, &built, n, &run)?;
+    drop(run);
+
+    let mut metadata = header(&point, &built.metadata, Layout::Long);
+    for (key, value) in metadata.iter_mut() {
+        if key == "layout" {
+            *value = args.layout.name().to_string();
+        }
+    }
+    let caution = metadata.pop();
+    metadata.extend(method);
+    metadata.extend([
+        ("draws".to_string(), params.len().to_string()),
+        ("seed".to_string(), args.seed.to_string()),
+        ("generator".to_string(), draws::GENERATOR.to_string()),
+    ]);
+    if args.layout == DrawLayout::Wide {
+        metadata.push((
+            "wide_layout".to_string(),
+            "one row per tunnel; column draw_d holds p_exit of draw d".to_string(),
+        ));
+    }
+    metadata.extend(caution);
+
+    let run = LongRun::start(params.len() as u64, "tables", args.quiet)?;
+    let mut summary = SummaryBuilder::new(point.clone());
+    let streaming = out
+        .as_ref()
+        .filter(|t| args.layout == DrawLayout::Long && t.exporter.render_more_rows(&[]).is_some());
+    match streaming {
+        Some(t) => write_streaming(
+            t,
+            &point,
+            &metadata,
+            &params,
+            &build,
+            cycle_in_table,
+            &mut summary,
+            &run,
+        )?,
+        None => {
+            let mut long = Vec::new();
+            let keep_long = out.is_some() && args.layout == DrawLayout::Long;
+            draws::tables_in_chunks(
+                &params,
+                &build,
+                cycle_in_table,
+                count,
+                &run.control(),
+                |first, tables| {
+                    for (i, table) in tables.iter().enumerate() {
+                        summary.add(table);
+                        if keep_long {
+                            long.extend(long_rows(first + i + 1, table));
+                        }
+                    }
+                    Ok(())
+                },
+            )?;
+            if let Some(e) = run.interrupted() {
+                return Err(e);
+            }
+            if let Some(t) = &out {
+                let main = match args.layout {
+                    DrawLayout::Long => Table {
+                        name: "draws".into(),
+                        columns: long_columns(&point),
+                        rows: long,
+                    },
+                    DrawLayout::Wide => wide_table(&point, summary.values()),
+                };
+                let mut tables = vec![main];
+                if t.exporter.holds_several_tables() || t.exporter.extension() == "json" {
+                    tables.push(summary_table(&summary.clone().finish()));
+                    tables.push(parameter_table(family, &params));
+                }
+                let document = Document {
+                    metadata: metadata.clone(),
+                    tables,
+                };
+                let bytes = t.exporter.render(&document)?;
+                if let Some(e) = run.interrupted() {
+                    return Err(e);
+                }
+                output::write_atomic(&t.path, &bytes)?;
+            }
+        }
+    }
+    drop(run);
+    let rows = summary.finish();
+    if let Some(t) = &summary_out {
+        let mut summary_metadata = metadata.clone();
+        summary_metadata.retain(|(k, _)| k != "layout" && k != "wide_layout");
+        let document = Document {
+            metadata: summary_metadata,
+            tables: vec![summary_table(&rows)],
+        };
+        output::write_atomic(&t.path, &t.exporter.render(&document)?)?;
+    }
+    let mut text = render_summary(&point, &rows, params.len());
+    for t in out.iter().chain(summary_out.iter()) {
+        text.push_str(&format!("wrote {}\n", t.path.display()));
+    }
+    output::print(&text);
+    Ok(())
+}
+
+/// Writes the long layout chunk by chunk: the first chunk through [`Exporter::render`] (header
+/// block and column names), the others through [`Exporter::render_more_rows`], each draw's rows
+/// rendered in parallel and written in draw order.
+#[allow(clippy::too_many_arguments)]
+fn write_streaming(
+    target: &Target,
+    point: &TunnelTable,
+    metadata: &[(String, String)],
+    params: &[Vec<f64>],
+    build: &CurveBuilder<'_>,
+    cycle: Duration,
+    summary: &mut SummaryBuilder,
+    run: &LongRun,
+) -> Result<()> {
+    let columns = long_columns(point);
+    let count = point.rows.len();
+    output::write_atomic_with(&target.path, |file| {
+        let io = |e: std::io::Error| Error::output(&target.path, format!("cannot write: {e}"));
+        draws::tables_in_chunks(
+            params,
+            build,
+            cycle,
+            count,
+            &run.control(),
+            |first, tables| {
+                let pieces: Vec<Result<Vec<u8>>> = tables
+                    .par_iter()
+                    .enumerate()
+                    .map(|(i, table)| {
+                        let draw = first + i + 1;
+                        let rows = long_rows(draw, table);
+                        if draw == 1 {
+                            target.exporter.render(&Document {
+                                metadata: metadata.to_vec(),
+                                tables: vec![Table {
+                                    name: "draws".into(),
+                                    columns: columns.clone(),
+                                    rows,
+                                }],
+                            })
+                        } else {
+                            target
+                                .exporter
+                                .render_more_rows(&rows)
+                                .unwrap_or_else(|| Ok(Vec::new()))
+                        }
+                    })
+                    .collect();
+                for (table, piece) in tables.iter().zip(pieces) {
+                    summary.add(table);
+                    file.write_all(&piece?).map_err(io)?;
+                }
+                Ok(())
+            },
+        )?;
+        match run.interrupted() {
+            Some(e) => Err(e),
+            None => Ok(()),
+        }
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn draws_count_must_be_a_positive_whole_number() {
+        assert_eq!(parse_draws("25").unwrap(), 25);
+        assert!(parse_draws("0")
+            .unwrap_err()
+            .to_string()
+            .contains("at least one"));
+        assert!(parse_draws("2.5").is_err());
+        assert!(parse_draws("-3").is_err());
+    }
+}
