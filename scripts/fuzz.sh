@@ -10,7 +10,7 @@
 set -uo pipefail
 cd "$(dirname "$0")/../fuzz"
 SECONDS_EACH=${FUZZ_SECONDS:-60}
-ALL_TARGETS="time_to_event_csv duration fit_small"
+ALL_TARGETS="time_to_event_csv duration life_table digitised fit_small"
 TARGETS=${*:-$ALL_TARGETS}
 
 if ! cargo +nightly --version >/dev/null 2>&1; then

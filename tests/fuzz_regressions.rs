@@ -48,6 +48,18 @@ fn duration_corpus_and_regressions_keep_the_invariants() {
 }
 
 #[test]
+fn life_table_corpus_and_regressions_keep_the_invariants() {
+    let n = replay("life_table", invariants::life_table);
+    assert!(n >= 10, "only {n} inputs: is the corpus committed?");
+}
+
+#[test]
+fn digitised_corpus_and_regressions_keep_the_invariants() {
+    let n = replay("digitised", invariants::digitised);
+    assert!(n >= 10, "only {n} inputs: is the corpus committed?");
+}
+
+#[test]
 fn fit_small_seeds_and_regressions_keep_the_invariants() {
     // Seeds and crash cases only: the minimised fit corpus is large and each input runs five fits.
     let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fuzz");

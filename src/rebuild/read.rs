@@ -189,7 +189,7 @@ fn split_arms(rows: Vec<Row>) -> Vec<(Option<String>, Vec<Row>)> {
 /// " (arm X)" for messages, empty without arms.
 fn arm_note(arm: &Option<String>) -> String {
     arm.as_ref()
-        .map(|a| format!(" (arm \"{a}\")"))
+        .map(|a| format!(" (arm \"{}\")", crate::format::shown(a)))
         .unwrap_or_default()
 }
 

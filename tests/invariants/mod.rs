@@ -115,3 +115,71 @@ pub fn check_fit(fit: &FamilyFit) {
         assert!(fit.message.is_some(), "{} without a reason", fit.family);
     }
 }
+
+/// Runs the life-table loader (first byte: no sex, female or male) and checks: accepted →
+/// at least one age, every qx in [0, 1] and finite, qx = 1 only at the last age; rejected →
+/// a clean error.
+pub fn life_table(bytes: &[u8]) {
+    use tunnelcast::adjust::lifetable::{parse, Sex};
+    let Some((&selector, body)) = bytes.split_first() else {
+        return;
+    };
+    let sex = match selector % 3 {
+        1 => Some(Sex::Female),
+        2 => Some(Sex::Male),
+        _ => None,
+    };
+    match parse("fuzz.csv", body, sex) {
+        Ok(table) => {
+            assert!(!table.qx.is_empty());
+            assert!(table.qx.iter().all(|q| (0.0..=1.0).contains(q)));
+            let last = table.qx.len() - 1;
+            assert!(table.qx[..last].iter().all(|&q| q < 1.0));
+            assert!(table.end_age().is_finite());
+        }
+        Err(e) => check_error(&e),
+    }
+}
+
+/// Runs the digitised-curve and risk-table readers of `rebuild` (first byte: arm column or not)
+/// and checks: accepted curves start at (0, 1), times ascend, survival never rises and stays in
+/// [0, 1]; accepted risk tables start at time 0, times ascend, numbers at risk never rise.
+pub fn digitised(bytes: &[u8]) {
+    use tunnelcast::rebuild::{read_curves, read_risk_tables};
+    let Some((&selector, body)) = bytes.split_first() else {
+        return;
+    };
+    let arm = (selector & 1 == 1).then_some("arm");
+    match read_curves("fuzz.csv", body, arm) {
+        Ok(curves) => {
+            assert!(!curves.is_empty());
+            for curve in &curves {
+                let p = &curve.points;
+                assert!(!p.is_empty());
+                assert_eq!((p[0].time, p[0].survival), (0.0, 1.0));
+                for pair in p.windows(2) {
+                    assert!(pair[0].time <= pair[1].time, "{pair:?}");
+                    assert!(pair[1].survival <= pair[0].survival, "{pair:?}");
+                }
+                assert!(p
+                    .iter()
+                    .all(|q| q.time.is_finite() && (0.0..=1.0).contains(&q.survival)));
+            }
+        }
+        Err(e) => check_error(&e),
+    }
+    match read_risk_tables("fuzz.csv", body, arm) {
+        Ok(tables) => {
+            for table in &tables {
+                let rows = &table.rows;
+                assert!(!rows.is_empty());
+                assert_eq!(rows[0].time, 0.0);
+                for pair in rows.windows(2) {
+                    assert!(pair[0].time < pair[1].time, "{pair:?}");
+                    assert!(pair[1].at_risk <= pair[0].at_risk, "{pair:?}");
+                }
+            }
+        }
+        Err(e) => check_error(&e),
+    }
+}
