@@ -6,6 +6,8 @@
 //! parsed into [`Analysis`], which later code trusts. Relative paths resolve against the
 //! folder of the analysis file. See `docs/report.md` for every key.
 
+use crate::adjust::Adjustments;
+use crate::cmd::curve_args::CurveArgs;
 use crate::error::{Error, Result};
 use crate::families::{self, Family};
 use crate::units::{Duration, TimeUnit};
@@ -52,6 +54,28 @@ struct RawOutput {
     formats: Option<Spanned<Vec<String>>>,
 }
 
+/// `[adjust]`: the adjustments of the chosen curve, as the curve options of the other commands.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawAdjust {
+    hazard_ratio: Option<f64>,
+    acceleration_factor: Option<f64>,
+    waning: Option<String>,
+    background: Option<String>,
+    start_age: Option<f64>,
+    sex: Option<String>,
+    background_mode: Option<String>,
+    beyond_table: Option<String>,
+}
+
+/// `[draws]`: parameter draws of the chosen curve for the uncertainty summary.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawDraws {
+    count: Spanned<i64>,
+    seed: Option<u64>,
+}
+
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
 struct RawAnalysis {
@@ -60,7 +84,21 @@ struct RawAnalysis {
     fit: Option<RawFit>,
     tunnels: RawTunnels,
     output: Option<RawOutput>,
+    adjust: Option<Spanned<RawAdjust>>,
+    draws: Option<Spanned<RawDraws>>,
 }
+
+/// `[draws]` settings: how many parameter draws and the seed of the random stream.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct DrawSettings {
+    /// Number of draws.
+    pub count: usize,
+    /// Seed (required, so a re-run is identical).
+    pub seed: u64,
+}
+
+/// Largest `[draws] count` accepted (the run stays quick and the summary stable).
+pub const MAX_DRAWS: usize = 100_000;
 
 /// Which fitted family is carried forward to the tunnel table.
 #[derive(Clone, Copy)]
@@ -158,6 +196,12 @@ pub struct Analysis {
     pub folder: Option<PathBuf>,
     /// Table formats (extensions), default `csv` and `json`.
     pub formats: Vec<String>,
+    /// Adjustments of the chosen curve from `[adjust]` (default: none).
+    pub adjustments: Adjustments,
+    /// Where `[adjust]` is written, for errors found when the adjustments are applied.
+    pub adjust_place: Place,
+    /// Uncertainty draws from `[draws]`, if any.
+    pub draws: Option<DrawSettings>,
 }
 
 impl std::fmt::Debug for Analysis {
@@ -205,6 +249,50 @@ fn explain(message: &str) -> String {
         "unknown key \"{key}\"{hint}; valid keys here: {}",
         valid.join(", ")
     )
+}
+
+/// The `[adjust]` table as [`Adjustments`], checked by the same code as the curve options of
+/// the other commands; errors name the analysis file keys instead of the options.
+fn adjustments(file: &str, place: Place, raw: &RawAdjust, base: &Path) -> Result<Adjustments> {
+    let args = CurveArgs {
+        fit: None,
+        family: String::new(),
+        arm: None,
+        params: Vec::new(),
+        time_unit: None,
+        allow_unconverged: false,
+        hazard_ratio: raw.hazard_ratio.map(|x| x.to_string()),
+        acceleration_factor: raw.acceleration_factor.map(|x| x.to_string()),
+        waning: raw.waning.clone(),
+        background: raw.background.as_ref().map(|b| base.join(b)),
+        start_age: raw.start_age.map(|x| x.to_string()),
+        sex: raw.sex.clone(),
+        background_mode: raw.background_mode.clone(),
+        beyond_table: raw.beyond_table.clone(),
+    };
+    args.adjustments().map_err(|e| {
+        let mut message = match e {
+            Error::Usage(m) => m,
+            other => other.to_string(),
+        };
+        for key in [
+            "hazard-ratio",
+            "acceleration-factor",
+            "waning",
+            "background-mode",
+            "background",
+            "start-age",
+            "sex",
+            "beyond-table",
+        ] {
+            message = message.replace(&format!("--{key}"), &key.replace('-', "_"));
+        }
+        error_at(
+            file,
+            place,
+            format!("[adjust] {}", message.replace(" LIFETABLE.csv", "")),
+        )
+    })
 }
 
 impl Analysis {
@@ -389,6 +477,39 @@ impl Analysis {
             }
         };
 
+        let (adjustments, adjust_place) = match &raw.adjust {
+            None => (Adjustments::default(), Place { line: 1, column: 1 }),
+            Some(adj) => {
+                let place = at(adj.span());
+                (adjustments(file, place, adj.get_ref(), base)?, place)
+            }
+        };
+        let draws = match &raw.draws {
+            None => None,
+            Some(d) => {
+                let r = d.get_ref();
+                let count = *r.count.get_ref();
+                if !(1..=MAX_DRAWS as i64).contains(&count) {
+                    return Err(bad(
+                        r.count.span(),
+                        format!(
+                            "[draws] count: {count} is not a whole number from 1 to {MAX_DRAWS}"
+                        ),
+                    ));
+                }
+                let Some(seed) = r.seed else {
+                    return Err(bad(
+                        d.span(),
+                        "[draws] needs seed = N (a whole number), so that a re-run gives the same draws".into(),
+                    ));
+                };
+                Some(DrawSettings {
+                    count: count as usize,
+                    seed,
+                })
+            }
+        };
+
         Ok(Analysis {
             file: file.to_string(),
             text: text.to_string(),
@@ -412,6 +533,9 @@ impl Analysis {
             discount,
             folder: output.folder.map(|f| base.join(f)),
             formats,
+            adjustments,
+            adjust_place,
+            draws,
         })
     }
 
@@ -498,5 +622,63 @@ count = 24
             .unwrap_err()
             .to_string();
         assert!(msg.contains("not among the fitted families"), "{msg}");
+    }
+
+    const ADJUST: &str = r#"
+[adjust]
+hazard_ratio = 0.6
+waning = "3 years..6 years"
+background = "life.csv"
+start_age = 62
+sex = "male"
+background_mode = "add"
+beyond_table = "hold-last"
+[draws]
+count = 50
+seed = 7
+"#;
+
+    #[test]
+    fn reads_adjust_and_draws() {
+        let text = format!("{GOOD}{ADJUST}");
+        let a = Analysis::parse("a.toml", &text, Path::new("/x")).unwrap();
+        let adj = &a.adjustments;
+        assert_eq!(adj.hazard_ratio, Some(0.6));
+        assert_eq!(adj.acceleration_factor, None);
+        let w = adj.waning.unwrap();
+        assert_eq!((w.start.value, w.end.value), (3.0, 6.0));
+        let b = adj.background.as_ref().unwrap();
+        assert_eq!(b.path, PathBuf::from("/x/life.csv"));
+        assert_eq!(b.start_age, 62.0);
+        assert_eq!(b.sex, Some(crate::adjust::lifetable::Sex::Male));
+        assert_eq!(b.mode, crate::adjust::BackgroundMode::Add);
+        assert_eq!(b.beyond, crate::adjust::background::BeyondTable::HoldLast);
+        assert_eq!(a.draws, Some(DrawSettings { count: 50, seed: 7 }));
+        let plain = Analysis::parse("a.toml", GOOD, Path::new("/x")).unwrap();
+        assert!(plain.adjustments.is_empty() && plain.draws.is_none());
+    }
+
+    #[test]
+    fn adjust_and_draws_errors_are_one_line_and_name_the_key() {
+        let parse = |t: String| {
+            Analysis::parse("a.toml", &format!("{GOOD}{t}"), Path::new("."))
+                .unwrap_err()
+                .to_string()
+        };
+        let msg = parse(ADJUST.replace("hazard_ratio", "hazard_raito"));
+        assert!(msg.contains("did you mean \"hazard_ratio\""), "{msg}");
+        assert!(msg.starts_with("a.toml line 16 column 1"), "{msg}");
+        let msg = parse(ADJUST.replace("background_mode = \"add\"", "background_mode = \"ad\""));
+        assert!(
+            msg.contains("[adjust] background_mode") && msg.contains("\"add\""),
+            "{msg}"
+        );
+        let msg = parse(ADJUST.replace("start_age = 62\n", ""));
+        assert!(msg.contains("needs start_age"), "{msg}");
+        let msg = parse(ADJUST.replace("seed = 7\n", ""));
+        assert!(msg.contains("[draws] needs seed"), "{msg}");
+        let msg = parse(ADJUST.replace("count = 50", "count = 0"));
+        assert!(msg.contains("[draws] count"), "{msg}");
+        assert_eq!(msg.lines().count(), 1);
     }
 }

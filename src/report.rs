@@ -432,8 +432,35 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
     h.push_str("</section>\n");
 
     // Adjustments and draws.
-    h.push_str("<section id=\"adjustments\">\n<h2>Adjustments</h2>\n<p>None: the chosen curve is used as fitted (no hazard ratio, acceleration factor or background mortality was requested).</p>\n</section>\n");
-    h.push_str("<section id=\"draws\">\n<h2>Uncertainty draws</h2>\n<p>None requested in this analysis, so no random numbers were used.</p>\n</section>\n");
+    h.push_str("<section id=\"adjustments\">\n<h2>Adjustments</h2>\n");
+    match &result.adjusted {
+        None => h.push_str("<p>None: the chosen curve is used as fitted (no hazard ratio, acceleration factor or background mortality was requested).</p>\n"),
+        Some(adjusted) => {
+            h.push_str("<p>The tunnel table, the truncation and the within-cycle checks use the chosen curve with these adjustments (<code>[adjust]</code> of the analysis file):</p>\n<dl>\n");
+            for (k, v) in &crate::cmd::run::adjusted_metadata(adjusted) {
+                h.push_str(&format!("<dt>{}</dt><dd><code>{}</code></dd>\n", escape(k), escape(v)));
+            }
+            h.push_str("</dl>\n");
+            for w in &adjusted.warnings {
+                h.push_str(&format!("<p class=\"warning\">Warning: {}</p>\n", escape(w)));
+            }
+        }
+    }
+    h.push_str("</section>\n");
+    h.push_str("<section id=\"draws\">\n<h2>Uncertainty draws</h2>\n");
+    match (a.draws, result.draws_document()) {
+        (Some(d), Some(doc)) => {
+            h.push_str(&format!(
+                "<p>{} parameter draws of the chosen fit (multivariate normal on the estimation scale, from the fit's estimates and covariance; seed {}), each taken through the same adjustments to a tunnel table. p_exit per tunnel: the point estimate, the mean of the draws and their 2.5% and 97.5% percentiles (also in <code>draws_summary.*</code>).</p>\n",
+                d.count, d.seed
+            ));
+            h.push_str(&html_table("table-draws", &doc.tables[0], |_| true));
+        }
+        _ => {
+            h.push_str("<p>None requested in this analysis, so no random numbers were used.</p>\n")
+        }
+    }
+    h.push_str("</section>\n");
 
     // Caution.
     h.push_str(&format!(
@@ -450,7 +477,18 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
         ("data file", a.data_name.clone()),
         ("data SHA-256", result.data.sha256.clone()),
         ("analysis file SHA-256", analysis_sha),
-        ("seed", "none (no random draws)".to_string()),
+        (
+            "seed",
+            match a.draws {
+                Some(d) => format!(
+                    "{} ({} draws; {})",
+                    d.seed,
+                    d.count,
+                    crate::draws::GENERATOR
+                ),
+                None => "none (no random draws)".to_string(),
+            },
+        ),
         ("date", date.to_string()),
     ] {
         h.push_str(&format!(

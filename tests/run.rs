@@ -8,10 +8,12 @@ use std::path::Path;
 
 const DATA: &str = include_str!("../data/demo_trial.csv");
 const ANALYSIS: &str = include_str!("../data/demo_analysis.toml");
+const LIFETABLE: &str = include_str!("../data/demo_lifetable.csv");
 
 /// Writes the demo analysis and its data into `dir` (with `edit` applied to the analysis).
 fn setup(dir: &Path, edit: impl Fn(&str) -> String) {
     std::fs::write(dir.join("demo_trial.csv"), DATA).unwrap();
+    std::fs::write(dir.join("demo_lifetable.csv"), LIFETABLE).unwrap();
     std::fs::write(dir.join("analysis.toml"), edit(ANALYSIS)).unwrap();
 }
 
@@ -110,7 +112,12 @@ fn run_writes_every_output_and_the_report_matches_the_json() {
     // No temporary folder left beside the output.
     assert_eq!(
         listing(dir.path()),
-        vec!["analysis.toml", "demo_trial.csv", "out"]
+        vec![
+            "analysis.toml",
+            "demo_lifetable.csv",
+            "demo_trial.csv",
+            "out"
+        ]
     );
 
     let html = std::fs::read_to_string(out.join("report.html")).unwrap();
@@ -207,7 +214,7 @@ fn run_writes_every_output_and_the_report_matches_the_json() {
     let best = fits
         .fits
         .iter()
-        .filter(|f| f.arm.as_deref() == Some("veltranib") && f.converged)
+        .filter(|f| f.arm.as_deref() == Some("standard-care") && f.converged)
         .min_by(|a, b| a.aic.unwrap().total_cmp(&b.aic.unwrap()))
         .unwrap();
     assert_eq!(tunnels.metadata["family"], best.family);
@@ -247,6 +254,7 @@ fn rerun_writes_byte_identical_tables_and_needs_force() {
         "tunnels.json",
         "truncation.csv",
         "within_cycle.json",
+        "draws_summary.csv",
     ] {
         assert_eq!(
             std::fs::read(dir.path().join("a").join(name)).unwrap(),
@@ -301,6 +309,9 @@ fn bad_analysis_files_give_one_line_errors_and_no_folder() {
     );
     assert!(e.starts_with("error: analysis.toml line 18 column "), "{e}");
     let e = fails(|a| a.replace("tolerance =", "tolerence ="), None);
+    // [adjust] keys are checked the same way.
+    let a = fails(|a| a.replace("start_age =", "start_aeg ="), None);
+    assert!(a.contains("did you mean \"start_age\""), "{a}");
     assert!(
         e.contains("line 21 column 1") && e.contains("did you mean \"tolerance\""),
         "{e}"
@@ -311,7 +322,7 @@ fn bad_analysis_files_give_one_line_errors_and_no_folder() {
         "{e}"
     );
     let e = fails(
-        |a| a.replace("arm = \"veltranib\"", "arm = \"placebo\""),
+        |a| a.replace("arm = \"standard-care\"", "arm = \"placebo\""),
         None,
     );
     assert!(e.contains("no arm \"placebo\""), "{e}");
@@ -321,7 +332,7 @@ fn bad_analysis_files_give_one_line_errors_and_no_folder() {
 fn a_chosen_family_that_failed_to_fit_is_an_error() {
     // Six events at nearly the same time: the log-normal's sigma runs to its boundary (the
     // fitter reports it as not converged).
-    let data = "time,event,arm\n2,1,veltranib\n2,1,veltranib\n2,1,veltranib\n2,1,veltranib\n2,1,veltranib\n2.001,1,veltranib\n";
+    let data = "time,event,arm\n2,1,standard-care\n2,1,standard-care\n2,1,standard-care\n2,1,standard-care\n2,1,standard-care\n2.001,1,standard-care\n";
     let e = fails(
         |a| a.replace("choose = \"best-aic\"", "choose = \"lognormal\""),
         Some(data),
@@ -352,4 +363,139 @@ fn demo_runs_in_a_fresh_folder_and_replaces_only_its_own_output() {
         .assert()
         .code(2);
     assert_eq!(listing(&dir.path().join("mine")), vec!["notes.txt"]);
+}
+
+/// The demo's `[adjust]` (hazard ratio with waning, background mortality added) and `[draws]`:
+/// the cause columns add up to p_exit, and the draws summary equals what the library gives
+/// for the same fit, adjustments and seed, computed here without the `run` code.
+#[test]
+fn adjustments_and_draws_of_the_analysis_file_reach_the_outputs() {
+    use tunnelcast::adjust::{self, background::BeyondTable, lifetable::Sex};
+    use tunnelcast::adjust::{Adjustments, BackgroundMode, BackgroundSettings};
+    use tunnelcast::curve::{Curve, ParametricCurve};
+    use tunnelcast::draws::{self, Sampler, SummaryBuilder};
+    use tunnelcast::units::Duration;
+
+    let dir = tempfile::tempdir().unwrap();
+    setup(dir.path(), |a| {
+        a.replace("count = 200", "count = 20")
+            .replace("horizon = \"20 years\"", "horizon = \"10 years\"")
+    });
+    tunnelcast(dir.path())
+        .args(["run", "analysis.toml", "--out", "a"])
+        .assert()
+        .success();
+    let out = dir.path().join("a");
+    let tunnels = read_table(&out.join("tunnels.json"));
+    assert_eq!(tunnels.metadata["hazard_ratio"], "0.6");
+    assert_eq!(tunnels.metadata["background_mode"], "add");
+    assert_eq!(tunnels.metadata["seed"], "20261202");
+    let col = |name: &str| {
+        tunnels.tables[0]
+            .columns
+            .iter()
+            .position(|c| c == name)
+            .unwrap_or_else(|| panic!("no column {name}"))
+    };
+    let (p, d, b) = (
+        col("p_exit"),
+        col("p_exit_disease"),
+        col("p_exit_background"),
+    );
+    for row in &tunnels.tables[0].rows {
+        let x = |i: usize| row[i].as_f64().unwrap();
+        // Identity: the two causes of exit partition the exits (common practice).
+        assert!((x(d) + x(b) - x(p)).abs() < 1e-12, "{row:?}");
+        assert!(x(b) > 0.0);
+    }
+
+    // The same draws through the library.
+    let fits = tunnelcast::fit::FitFile::load(&out.join("fit.json")).unwrap();
+    let fit = fits.find("weibull", Some("standard-care")).unwrap().clone();
+    assert_eq!(tunnels.metadata["family"], "weibull");
+    let family = fit.family().unwrap();
+    let base = ParametricCurve::new(
+        family,
+        fit.param_vector(family).unwrap(),
+        tunnelcast::units::TimeUnit::Months,
+    )
+    .unwrap();
+    let settings = Adjustments {
+        hazard_ratio: Some(0.6),
+        acceleration_factor: None,
+        waning: Some("3 years..6 years".parse().unwrap()),
+        background: Some(BackgroundSettings {
+            path: dir.path().join("demo_lifetable.csv"),
+            start_age: 62.0,
+            sex: Some(Sex::Female),
+            mode: BackgroundMode::Add,
+            beyond: BeyondTable::Error,
+        }),
+    };
+    let adjusted = adjust::apply(base, &settings).unwrap();
+    let cycle: Duration = "1 month".parse().unwrap();
+    let count = tunnels.tables[0].rows.len();
+    let point = tunnelcast::discretise::tunnel_table(&adjusted, cycle, count);
+    let params = Sampler::from_fit(family, &fit)
+        .unwrap()
+        .draw_natural(20, 20261202);
+    let build = |p: &[f64]| -> Result<Box<dyn Curve>, String> {
+        let base = ParametricCurve::new(family, p.to_vec(), tunnelcast::units::TimeUnit::Months)?;
+        Ok(Box::new(adjusted.rebuild(base).map_err(|e| e.to_string())?))
+    };
+    let mut summary = SummaryBuilder::new(point);
+    draws::tables_in_chunks(
+        &params,
+        &build,
+        cycle,
+        count,
+        &draws::Control::none(),
+        |_, ts| {
+            ts.iter().for_each(|t| summary.add(t));
+            Ok(())
+        },
+    )
+    .unwrap();
+    let expected = summary.finish();
+    let written = read_table(&out.join("draws_summary.json"));
+    assert_eq!(written.metadata["draws"], "20");
+    assert_eq!(written.tables[0].rows.len(), expected.len());
+    for (row, e) in written.tables[0].rows.iter().zip(&expected) {
+        let x = |i: usize| row[i].as_f64().unwrap();
+        for (got, want) in [
+            (x(3), e.point),
+            (x(4), e.mean),
+            (x(5), e.lower),
+            (x(6), e.upper),
+        ] {
+            assert!((got - want).abs() <= 1e-12 * want.abs(), "{got} vs {want}");
+        }
+        assert!(e.lower < e.mean && e.mean < e.upper);
+    }
+    assert!(out.join("draws_summary.csv").is_file());
+
+    // The report shows both sections.
+    let html = std::fs::read_to_string(out.join("report.html")).unwrap();
+    let doc = roxmltree::Document::parse_with_options(
+        &html,
+        roxmltree::ParsingOptions {
+            allow_dtd: true,
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    let section = |id: &str| {
+        let node = doc
+            .descendants()
+            .find(|n| n.has_tag_name("section") && n.attribute("id") == Some(id))
+            .unwrap();
+        node.descendants()
+            .filter_map(|n| n.text())
+            .collect::<String>()
+    };
+    assert!(!section("adjustments").contains("None:"));
+    assert!(section("adjustments").contains("hazard_ratio"));
+    assert!(!section("draws").contains("None requested"));
+    assert_eq!(html_rows(&doc, "table-draws").len(), expected.len());
+    assert!(section("reproducibility").contains("20261202"));
 }

@@ -26,6 +26,9 @@ pub struct DemoArgs {
 /// The bundled invented trial data, compiled into the binary so the demo runs anywhere.
 pub const DEMO_TRIAL: &str = include_str!("../../data/demo_trial.csv");
 
+/// The bundled invented life table (background mortality of the demo).
+pub const DEMO_LIFETABLE: &str = include_str!("../../data/demo_lifetable.csv");
+
 /// The bundled analysis file.
 pub const DEMO_ANALYSIS: &str = include_str!("../../data/demo_analysis.toml");
 
@@ -49,7 +52,12 @@ pub fn run(args: DemoArgs) -> Result<()> {
         other => other,
     })?;
     let analysis = Analysis::parse("data/demo_analysis.toml", DEMO_ANALYSIS, Path::new("data"))?;
-    let text = crate::cmd::run::execute(analysis, DEMO_TRIAL.as_bytes(), &args.out)?;
+    let text = crate::cmd::run::execute(
+        analysis,
+        DEMO_TRIAL.as_bytes(),
+        Some(DEMO_LIFETABLE.as_bytes()),
+        &args.out,
+    )?;
     output::print(&format!(
         "tunnelcast demo: an invented trial (Veltranib against standard care; see data/README.md)\n\n{text}"
     ));

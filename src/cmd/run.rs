@@ -3,9 +3,11 @@
 //! writes the fit JSON, the tables in every requested format, the plots and `report.html`
 //! into a temporary folder that is renamed into place only when everything succeeded.
 
+use crate::adjust::{lifetable, AdjustedCurve};
 use crate::analysis::{Analysis, Choice, Count};
 use crate::curve::{Curve, ParametricCurve};
 use crate::discretise::{count_until, tunnel_table, TunnelTable};
+use crate::draws::{Sampler, SummaryBuilder, SummaryRow};
 use crate::error::{Error, Result};
 use crate::export::tunnel::{long_table, Layout};
 use crate::export::{exporter_for, number_text, Cell, Document, Table};
@@ -20,6 +22,7 @@ use crate::output::{self, StagedFolder};
 use crate::plot::{self, HorizonPlot, TunnelMarker, TunnelPlot};
 use clap::Args;
 use std::path::{Path, PathBuf};
+use std::sync::Arc;
 
 /// Options of `run`.
 #[derive(Debug, Args)]
@@ -54,6 +57,11 @@ pub struct RunResult {
     pub chosen_by: String,
     /// The chosen curve in the data's time unit.
     pub curve: ParametricCurve,
+    /// The chosen curve with the `[adjust]` adjustments, when any were asked for; the
+    /// tunnel table and the checks then use this curve.
+    pub adjusted: Option<Arc<AdjustedCurve>>,
+    /// Summary of the `[draws]` parameter draws (mean and 2.5%/97.5% of p_exit per tunnel).
+    pub draws: Option<Vec<SummaryRow>>,
     /// The tunnel table.
     pub tunnels: TunnelTable,
     /// How the count was set.
@@ -103,9 +111,66 @@ impl RunResult {
                 ),
             ),
             ("time_unit".into(), self.tunnels.time_unit.name().into()),
-            ("caution".into(), crate::CAUTION.into()),
         ]);
+        if let Some(adjusted) = &self.adjusted {
+            m.extend(adjusted_metadata(adjusted));
+            for w in &adjusted.warnings {
+                m.push(("warning".into(), w.clone()));
+            }
+        }
+        if let Some(d) = &a.draws {
+            m.extend([
+                ("draws".into(), d.count.to_string()),
+                ("seed".into(), d.seed.to_string()),
+                ("generator".into(), crate::draws::GENERATOR.to_string()),
+            ]);
+        }
+        m.push(("caution".into(), crate::CAUTION.into()));
         m
+    }
+
+    /// The curve the tunnel table is computed from: the adjusted curve, else the fitted one.
+    pub fn table_curve(&self) -> &dyn Curve {
+        match &self.adjusted {
+            Some(a) => a.as_ref(),
+            None => &self.curve,
+        }
+    }
+
+    /// The draws summary as exported, when `[draws]` was given.
+    pub fn draws_document(&self) -> Option<Document> {
+        let rows = self.draws.as_ref()?;
+        let metadata = self.metadata();
+        let columns = [
+            "tunnel",
+            "t_start",
+            "t_end",
+            "p_exit",
+            "mean",
+            "lower_2_5",
+            "upper_97_5",
+        ];
+        Some(Document {
+            metadata,
+            tables: vec![Table {
+                name: "draws_summary".into(),
+                columns: columns.map(String::from).to_vec(),
+                rows: rows
+                    .iter()
+                    .map(|r| {
+                        vec![
+                            Cell::Int(r.tunnel as i64),
+                            Cell::Number(r.t_start),
+                            Cell::Number(r.t_end),
+                            Cell::Number(r.point),
+                            Cell::Number(r.mean),
+                            Cell::Number(r.lower),
+                            Cell::Number(r.upper),
+                        ]
+                    })
+                    .collect(),
+            }],
+        })
     }
 
     /// The tunnel table as exported (long layout).
@@ -205,6 +270,19 @@ impl RunResult {
     }
 }
 
+/// The adjustment settings for outputs, the life table named by its file name (so that the
+/// outputs do not depend on the working folder).
+pub fn adjusted_metadata(adjusted: &AdjustedCurve) -> Vec<(String, String)> {
+    adjusted
+        .metadata
+        .iter()
+        .map(|(k, v)| match k.as_str() {
+            "background_table" => (k.clone(), file_name(v)),
+            _ => (k.clone(), v.clone()),
+        })
+        .collect()
+}
+
 /// The last path component of a file name as given (so outputs do not depend on the working folder).
 fn file_name(path: &str) -> String {
     Path::new(path)
@@ -213,8 +291,14 @@ fn file_name(path: &str) -> String {
         .unwrap_or_else(|| path.to_string())
 }
 
-/// Runs the analysis on the data file's bytes; nothing is written.
-pub fn compute(analysis: Analysis, data_bytes: &[u8]) -> Result<RunResult> {
+/// Runs the analysis on the data file's bytes; nothing is written. `lifetable_bytes`, when
+/// given, are the contents of `[adjust] background` (the demo's compiled-in table); otherwise
+/// the life table is read from its path.
+pub fn compute(
+    analysis: Analysis,
+    data_bytes: &[u8],
+    lifetable_bytes: Option<&[u8]>,
+) -> Result<RunResult> {
     let options = InputOptions {
         time_col: analysis.time_column.clone(),
         event_col: analysis.event_column.clone(),
@@ -304,6 +388,31 @@ pub fn compute(analysis: Analysis, data_bytes: &[u8]) -> Result<RunResult> {
     let curve = ParametricCurve::new(family, params, analysis.time_unit)
         .map_err(|e| Error::Computation(format!("the {} fit: {e}", family.name())))?;
 
+    let adjusted = if analysis.adjustments.is_empty() {
+        None
+    } else {
+        let settings = &analysis.adjustments;
+        settings.validate()?;
+        let table = match (&settings.background, lifetable_bytes) {
+            (None, _) => None,
+            (Some(b), None) => Some(lifetable::load(&b.path, b.sex)?),
+            (Some(b), Some(bytes)) => Some(lifetable::parse(
+                &b.path.display().to_string(),
+                bytes,
+                b.sex,
+            )?),
+        };
+        Some(Arc::new(crate::adjust::build(
+            curve.clone(),
+            settings,
+            table,
+        )?))
+    };
+    let table_curve: &dyn Curve = match &adjusted {
+        Some(a) => a.as_ref(),
+        None => &curve,
+    };
+
     let cycle = analysis.cycle;
     let (horizon_cycles, horizon_rule) = match analysis.horizon {
         Some(h) => {
@@ -323,7 +432,7 @@ pub fn compute(analysis: Analysis, data_bytes: &[u8]) -> Result<RunResult> {
             (n, format!("horizon = {h}"))
         }
         None => {
-            let (n, by_threshold) = default_horizon(&curve, cycle);
+            let (n, by_threshold) = default_horizon(table_curve, cycle);
             let why = if by_threshold {
                 format!("default: survival first falls below {DEFAULT_HORIZON_SURVIVAL}")
             } else {
@@ -332,7 +441,7 @@ pub fn compute(analysis: Analysis, data_bytes: &[u8]) -> Result<RunResult> {
             (n, why)
         }
     };
-    let log_s = boundary_log_survival(&curve, cycle, horizon_cycles);
+    let log_s = boundary_log_survival(table_curve, cycle, horizon_cycles);
     let truncation = truncation_table(&log_s, cycle.value);
     let suggested = suggested_count(&truncation, analysis.tolerance);
     let p_exit: Vec<f64> = truncation.iter().map(|r| r.p_exit_last).collect();
@@ -341,8 +450,44 @@ pub fn compute(analysis: Analysis, data_bytes: &[u8]) -> Result<RunResult> {
         Count::Auto => (suggested, "auto: the suggested count".to_string()),
         Count::Fixed(n) => (n, "fixed in the analysis file".to_string()),
     };
-    let tunnels = tunnel_table(&curve, cycle, count);
-    let within_cycle = within_cycle_table(&curve, cycle, horizon_cycles, analysis.discount);
+    if let Some(a) = &adjusted {
+        let last = horizon_cycles.max(count) as f64 * cycle.in_unit(curve.unit);
+        a.check_horizon(last)
+            .map_err(|e| analysis.error_at(analysis.adjust_place, format!("[adjust] {e}")))?;
+    }
+    let tunnels = tunnel_table(table_curve, cycle, count);
+    let within_cycle = within_cycle_table(table_curve, cycle, horizon_cycles, analysis.discount);
+    let draws = match analysis.draws {
+        None => None,
+        Some(settings) => {
+            let sampler = Sampler::from_fit(family, &chosen).map_err(|e| {
+                Error::Computation(format!("[draws]: the {} fit: {e}", family.name()))
+            })?;
+            let params = sampler.draw_natural(settings.count, settings.seed);
+            let unit = curve.unit;
+            let adjusted = adjusted.clone();
+            let build = move |p: &[f64]| -> std::result::Result<Box<dyn Curve>, String> {
+                let base = ParametricCurve::new(family, p.to_vec(), unit)?;
+                Ok(match &adjusted {
+                    Some(a) => Box::new(a.rebuild(base).map_err(|e| e.to_string())?),
+                    None => Box::new(base),
+                })
+            };
+            let mut summary = SummaryBuilder::new(tunnels.clone());
+            crate::draws::tables_in_chunks(
+                &params,
+                &build,
+                cycle,
+                count,
+                &crate::draws::Control::none(),
+                |_, tables| {
+                    tables.iter().for_each(|t| summary.add(t));
+                    Ok(())
+                },
+            )?;
+            Some(summary.finish())
+        }
+    };
     Ok(RunResult {
         analysis,
         data,
@@ -350,6 +495,8 @@ pub fn compute(analysis: Analysis, data_bytes: &[u8]) -> Result<RunResult> {
         chosen,
         chosen_by,
         curve,
+        adjusted,
+        draws,
         tunnels,
         count_rule,
         horizon_cycles,
@@ -369,11 +516,14 @@ pub fn render_files(result: &RunResult, date: &str) -> Result<Vec<(String, Vec<u
         .map_err(|e| Error::Computation(format!("cannot render JSON: {e}")))?;
     fit_json.push(b'\n');
     files.push(("fit.json".into(), fit_json));
-    let documents = [
+    let mut documents = vec![
         ("tunnels", result.tunnel_document()),
         ("truncation", result.truncation_document()),
         ("within_cycle", result.within_cycle_document()),
     ];
+    if let Some(d) = result.draws_document() {
+        documents.push(("draws_summary", d));
+    }
     for format in &result.analysis.formats {
         for (stem, document) in &documents {
             let name = format!("{stem}.{format}");
@@ -457,8 +607,13 @@ pub fn summary(result: &RunResult, folder: &Path) -> String {
 }
 
 /// Computes and writes an analysis into `folder` (checked beforehand), all or nothing.
-pub fn execute(analysis: Analysis, data_bytes: &[u8], folder: &Path) -> Result<String> {
-    let result = compute(analysis, data_bytes)?;
+pub fn execute(
+    analysis: Analysis,
+    data_bytes: &[u8],
+    lifetable_bytes: Option<&[u8]>,
+    folder: &Path,
+) -> Result<String> {
+    let result = compute(analysis, data_bytes, lifetable_bytes)?;
     let files = render_files(&result, &crate::report::utc_now())?;
     let staged = StagedFolder::new(folder)?;
     for (name, bytes) in &files {
@@ -493,7 +648,7 @@ pub fn run(args: RunArgs) -> Result<()> {
             ),
         )
     })?;
-    let text = execute(analysis, &data_bytes, &folder)?;
+    let text = execute(analysis, &data_bytes, None, &folder)?;
     output::print(&text);
     Ok(())
 }
