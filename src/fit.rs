@@ -576,7 +576,8 @@ fn failed_fit(family: &dyn Family, arm: Option<&str>, why: String) -> FamilyFit 
     }
 }
 
-/// Sorts fits by AIC (converged first) and sets ΔAIC against the best converged fit.
+/// Sorts fits by AIC (converged first) and sets ΔAIC against the best converged fit; a fit
+/// that did not converge gets no ΔAIC (its AIC is not a maximum, so a difference would mislead).
 pub fn rank_by_aic(fits: &mut [FamilyFit]) {
     let key = |f: &FamilyFit| (!f.converged, f.aic.unwrap_or(f64::INFINITY));
     fits.sort_by(|a, b| {
@@ -591,7 +592,7 @@ pub fn rank_by_aic(fits: &mut [FamilyFit]) {
         .fold(f64::INFINITY, f64::min);
     for f in fits.iter_mut() {
         f.delta_aic = match (f.aic, best.is_finite()) {
-            (Some(aic), true) => Some(aic - best),
+            (Some(aic), true) if f.converged => Some(aic - best),
             _ => None,
         };
     }
@@ -874,6 +875,11 @@ mod tests {
         assert_eq!(fits[0].delta_aic, Some(0.0));
         for fit in &fits[1..] {
             assert!(!fit.converged, "{} converged", fit.family);
+            assert_eq!(
+                fit.delta_aic, None,
+                "{}: ΔAIC for a fit that did not converge",
+                fit.family
+            );
             let message = fit.message.as_deref().unwrap_or_default();
             assert!(!message.is_empty(), "{}: no reason given", fit.family);
         }
