@@ -58,17 +58,22 @@ impl FitData {
                 events[last] += 1.0;
             }
         }
+        Self::from_collapsed(time, events, total, None)
+    }
+
+    /// Builds the sums and the Kaplan–Meier points from collapsed columns; `km_points` is
+    /// reused when given (a subsample keeps its parent's starting-value points).
+    fn from_collapsed(
+        time: Vec<f64>,
+        events: Vec<f64>,
+        total: Vec<f64>,
+        km_points: Option<Vec<(f64, f64)>>,
+    ) -> FitData {
         let ln_time = time.iter().map(|t| t.ln()).collect();
-        let n_subjects = records.len() as f64;
+        let n_subjects = total.iter().sum();
         let n_events = events.iter().sum();
         let total_time = time.iter().zip(&total).map(|(t, n)| t * n).sum();
-        let km = KaplanMeier::from_records(records);
-        let km_points = km
-            .steps
-            .iter()
-            .filter(|s| s.events > 0 && s.survival > 0.0 && s.survival < 1.0)
-            .map(|s| (s.time.ln(), s.survival))
-            .collect();
+        let km_points = km_points.unwrap_or_else(|| km_points_for_starts(&time, &events, &total));
         FitData {
             time,
             ln_time,
@@ -79,6 +84,34 @@ impl FitData {
             total_time,
             km_points,
         }
+    }
+
+    /// A systematic subsample of about `size` distinct times (every k-th, from the middle of
+    /// the first stride): it keeps the shape of the data, so its maximum is a close start for
+    /// the full data and its information, scaled by the size ratio, a close curvature.
+    pub fn subsample(&self, size: usize) -> FitData {
+        let stride = self.time.len().div_ceil(size.max(1)).max(1);
+        let pick = |v: &[f64]| -> Vec<f64> {
+            v.iter().skip(stride / 2).step_by(stride).copied().collect()
+        };
+        let mut sub = Self::from_collapsed(
+            pick(&self.time),
+            pick(&self.events),
+            pick(&self.total),
+            Some(self.km_points.clone()),
+        );
+        if sub.n_events == 0.0 {
+            // Keep the subsample fittable: every family needs an event.
+            if let Some(i) = self.events.iter().position(|&d| d > 0.0) {
+                sub = Self::from_collapsed(
+                    vec![self.time[i]],
+                    vec![self.events[i]],
+                    vec![self.total[i]],
+                    Some(self.km_points.clone()),
+                );
+            }
+        }
+        sub
     }
 
     /// Least-squares line `transform(S) = slope·ln t + intercept` through the Kaplan–Meier
@@ -123,6 +156,31 @@ impl FitData {
         };
         (mean, sd)
     }
+}
+
+/// Most Kaplan–Meier points kept for starting values; more add time, not better starts.
+const MAX_KM_POINTS: usize = 2_000;
+
+/// Kaplan–Meier (ln t, S) at event times with 0 < S < 1, thinned evenly to at most
+/// [`MAX_KM_POINTS`]; only the product-limit estimate is needed here, not its interval.
+fn km_points_for_starts(time: &[f64], events: &[f64], total: &[f64]) -> Vec<(f64, f64)> {
+    let mut at_risk: f64 = total.iter().sum();
+    let mut survival = 1.0;
+    let mut points = Vec::new();
+    for i in 0..time.len() {
+        if events[i] > 0.0 {
+            survival *= 1.0 - events[i] / at_risk;
+            if survival > 0.0 && survival < 1.0 {
+                points.push((time[i].ln(), survival));
+            }
+        }
+        at_risk -= total[i];
+    }
+    if points.len() > MAX_KM_POINTS {
+        let stride = points.len().div_ceil(MAX_KM_POINTS);
+        points = points.into_iter().step_by(stride).collect();
+    }
+    points
 }
 
 /// Records per chunk of the parallel likelihood sum; the chunking is fixed so that sums are
@@ -308,17 +366,53 @@ fn max_abs(v: &[f64]) -> f64 {
     v.iter().fold(0.0, |m, x| m.max(x.abs()))
 }
 
+/// A point on the estimation scale with its log-likelihood and gradient, so that no
+/// evaluation over the data is repeated.
+#[derive(Debug, Clone)]
+struct Point {
+    theta: Vec<f64>,
+    loglik: f64,
+    grad: Vec<f64>,
+}
+
+fn evaluate(family: &dyn Family, data: &FitData, theta: Vec<f64>) -> Point {
+    let (loglik, grad) = family.loglik_grad(&theta, data);
+    Point {
+        theta,
+        loglik,
+        grad,
+    }
+}
+
+fn identity(k: usize) -> Vec<Vec<f64>> {
+    (0..k)
+        .map(|i| (0..k).map(|j| if i == j { 1.0 } else { 0.0 }).collect())
+        .collect()
+}
+
 /// BFGS from one start; returns the best point found (or the start when the solver fails).
+/// The first inverse Hessian is the inverse information per subject at the start when that
+/// is positive definite, so that badly scaled parameters (a Gompertz shape per day beside a
+/// log rate) do not cost the line search dozens of evaluations.
 fn bfgs(objective: Objective<'_>, start: Vec<f64>) -> Vec<f64> {
     let k = start.len();
-    let identity: Vec<Vec<f64>> = (0..k)
-        .map(|i| (0..k).map(|j| if i == j { 1.0 } else { 0.0 }).collect())
-        .collect();
-    let solver = match BFGS::new(MoreThuenteLineSearch::new()).with_tolerance_grad(1e-10) {
+    let n = objective.data.n_subjects;
+    let inv_hessian =
+        invert_positive_definite(&information(objective.family, &start, objective.data))
+            .filter(|c| c.iter().flatten().all(|x| x.is_finite()))
+            .map(|c| {
+                c.into_iter()
+                    .map(|row| row.into_iter().map(|x| x * n).collect())
+                    .collect()
+            })
+            .unwrap_or_else(|| identity(k));
+    let solver = match BFGS::new(MoreThuenteLineSearch::new()).with_tolerance_grad(1e-9) {
         Ok(s) => s,
         Err(_) => return start,
     };
-    let solver = match solver.with_tolerance_cost(0.0) {
+    // The Newton polish that follows does the last digits; BFGS stops once the mean
+    // log-likelihood no longer moves in the 13th digit.
+    let solver = match solver.with_tolerance_cost(1e-13) {
         Ok(s) => s,
         Err(_) => return start,
     };
@@ -326,8 +420,8 @@ fn bfgs(objective: Objective<'_>, start: Vec<f64>) -> Vec<f64> {
         .configure(|state| {
             state
                 .param(start.clone())
-                .inv_hessian(identity)
-                .max_iters(300)
+                .inv_hessian(inv_hessian)
+                .max_iters(200)
         })
         .run();
     match run {
@@ -336,71 +430,199 @@ fn bfgs(objective: Objective<'_>, start: Vec<f64>) -> Vec<f64> {
     }
 }
 
-/// Newton steps with step halving on the differenced Hessian, from a point near the optimum.
-fn newton_polish(family: &dyn Family, data: &FitData, mut theta: Vec<f64>) -> Vec<f64> {
-    let (mut ll, _) = family.loglik_grad(&theta, data);
-    for _ in 0..30 {
-        let (_, grad) = family.loglik_grad(&theta, data);
-        if max_abs(&grad) / data.n_subjects < 1e-12 {
+/// Largest number of Newton iterations.
+const MAX_NEWTON: usize = 50;
+
+/// Newton stops once the largest gradient component per subject is this small, a thousand
+/// times inside [`GRADIENT_TOLERANCE`], so that the convergence test never sits on its edge.
+const NEWTON_GRADIENT_TOLERANCE: f64 = 1e-3 * GRADIENT_TOLERANCE;
+
+/// Newton iterations with step halving from a point near the optimum. The curvature is the
+/// differenced observed information at each iterate, or, when `fixed_covariance` is given,
+/// that inverse information throughout (one evaluation over the data per iteration, as used
+/// on large data with a subsample's curvature). Stops when the gradient is well inside the
+/// convergence tolerance or a step no longer gains: with a Newton decrement (expected gain in
+/// log-likelihood, doubled) below rounding of the log-likelihood, a full step that does not
+/// gain in log-likelihood nor shrink the gradient ends the search without halving.
+fn newton(
+    family: &dyn Family,
+    data: &FitData,
+    mut point: Point,
+    fixed_covariance: Option<&[Vec<f64>]>,
+) -> Point {
+    for _ in 0..MAX_NEWTON {
+        if !point.loglik.is_finite() || point.grad.iter().any(|g| !g.is_finite()) {
             break;
         }
-        let info = information(family, &theta, data);
-        let Some(cov) = invert_positive_definite(&info) else {
+        if max_abs(&point.grad) / data.n_subjects < NEWTON_GRADIENT_TOLERANCE {
             break;
+        }
+        let covariance = match fixed_covariance {
+            Some(c) => c.to_vec(),
+            None => match invert_positive_definite(&information(family, &point.theta, data)) {
+                Some(c) => c,
+                None => break,
+            },
         };
-        let step: Vec<f64> = cov
+        let step: Vec<f64> = covariance
             .iter()
-            .map(|row| row.iter().zip(&grad).map(|(c, g)| c * g).sum())
+            .map(|row| row.iter().zip(&point.grad).map(|(c, g)| c * g).sum())
             .collect();
+        let decrement: f64 = step.iter().zip(&point.grad).map(|(s, g)| s * g).sum();
+        if decrement.is_nan() || decrement <= 0.0 {
+            break;
+        }
+        // Below rounding of the log-likelihood, progress is judged by the gradient instead
+        // (its size in the metric of the covariance), which still carries information there.
+        let near_floor = decrement < 1e-9 * point.loglik.abs().max(1.0);
+        let metric = |g: &[f64]| -> f64 {
+            covariance
+                .iter()
+                .zip(g)
+                .map(|(row, gi)| gi * row.iter().zip(g).map(|(c, gj)| c * gj).sum::<f64>())
+                .sum()
+        };
         let mut scale = 1.0;
-        let mut improved = false;
-        for _ in 0..30 {
-            let trial: Vec<f64> = theta
+        let mut accepted = None;
+        for _ in 0..40 {
+            let theta: Vec<f64> = point
+                .theta
                 .iter()
                 .zip(&step)
                 .map(|(t, s)| t + scale * s)
                 .collect();
-            let (trial_ll, trial_grad) = family.loglik_grad(&trial, data);
-            // At the optimum the log-likelihood is flat to rounding, so a step that shrinks the
-            // gradient without lowering the log-likelihood beyond rounding also counts.
-            let flat = trial_ll >= ll - 1e-13 * ll.abs() && max_abs(&trial_grad) < max_abs(&grad);
-            if trial_ll.is_finite() && (trial_ll >= ll || flat) {
-                theta = trial;
-                ll = trial_ll;
-                improved = true;
+            let trial = evaluate(family, data, theta);
+            let gains = trial.loglik > point.loglik
+                || (near_floor
+                    && trial.loglik >= point.loglik - 1e-13 * point.loglik.abs()
+                    && trial.grad.iter().all(|g| g.is_finite())
+                    && metric(&trial.grad) < decrement);
+            if trial.loglik.is_finite() && gains {
+                accepted = Some(trial);
+                break;
+            }
+            // Near the optimum a full step that does not gain is rounding, not overshoot.
+            if near_floor {
                 break;
             }
             scale *= 0.5;
         }
-        if !improved || max_abs(&step) * scale < 1e-13 {
-            break;
+        match accepted {
+            Some(trial) => point = trial,
+            None => break,
         }
     }
-    theta
+    point
+}
+
+/// Distinct times above which a family is fitted first to a subsample (see [`FitData::subsample`]).
+const SUBSAMPLE_ABOVE: usize = 60_000;
+
+/// Distinct times in that subsample.
+const SUBSAMPLE_SIZE: usize = 20_000;
+
+/// Distinct times in the smaller subsample on which every start is tried.
+const COARSE_SIZE: usize = 2_000;
+
+/// The best of the family's starts: closed form where there is one, else BFGS then Newton
+/// from each data-driven start. `None` when no start gives a finite log-likelihood.
+fn maximise_from_starts(family: &dyn Family, data: &FitData) -> Option<Point> {
+    let mut best: Option<Point> = None;
+    let mut consider = |point: Point| {
+        if point.loglik.is_finite() && best.as_ref().is_none_or(|b| point.loglik > b.loglik) {
+            best = Some(point);
+        }
+    };
+    if let Some(theta) = family.closed_form_mle(data) {
+        consider(evaluate(family, data, theta));
+        return best;
+    }
+    for start in family.start_values(data) {
+        if start.iter().any(|x| !x.is_finite()) {
+            continue;
+        }
+        let objective = Objective { family, data };
+        let theta = bfgs(objective, start);
+        let point = evaluate(family, data, theta);
+        consider(newton(family, data, point, None));
+    }
+    best
+}
+
+/// Maximum on large data: the family is fitted to a subsample with every start, then the
+/// full-data maximum is reached by Newton steps that reuse the subsample's information scaled
+/// to the full size (each step one pass over the data instead of 2k + 1). Falls back to the
+/// full search when the subsample gives no usable curvature.
+fn maximise_large(family: &dyn Family, data: &FitData) -> Option<(Point, Option<Vec<f64>>)> {
+    // Every start on a small subsample finds the basin; Newton on a larger one sharpens the
+    // estimate and gives the curvature used on the full data.
+    let coarse = maximise_from_starts(family, &data.subsample(COARSE_SIZE))?;
+    let sub = data.subsample(SUBSAMPLE_SIZE);
+    let sub_best = newton(family, &sub, evaluate(family, &sub, coarse.theta), None);
+    let ratio = data.n_subjects / sub.n_subjects;
+    let Some(sub_covariance) =
+        invert_positive_definite(&information(family, &sub_best.theta, &sub))
+    else {
+        return maximise_from_starts(family, data).map(|p| (p, None));
+    };
+    let covariance: Vec<Vec<f64>> = sub_covariance
+        .into_iter()
+        .map(|row| row.into_iter().map(|x| x / ratio).collect())
+        .collect();
+    let start = evaluate(family, data, sub_best.theta);
+    if !start.loglik.is_finite() {
+        return maximise_from_starts(family, data).map(|p| (p, None));
+    }
+    let best = newton(family, data, start, Some(&covariance));
+    // Difference steps of a thousandth of a standard error: small against the curvature's
+    // change, large against the rounding of a sum over the data.
+    let steps = (0..covariance.len())
+        .map(|j| 1e-3 * covariance[j][j].sqrt())
+        .collect();
+    Some((best, Some(steps)))
+}
+
+/// Observed information at an evaluated point by forward differences of the gradient with
+/// the given steps: k passes over the data instead of the 2k of central differences, for
+/// large data where the steps can be scaled to the standard errors.
+fn information_forward(
+    family: &dyn Family,
+    data: &FitData,
+    point: &Point,
+    steps: &[f64],
+) -> Vec<Vec<f64>> {
+    let k = point.theta.len();
+    let mut h = vec![vec![0.0; k]; k];
+    for j in 0..k {
+        let mut up = point.theta.clone();
+        up[j] += steps[j];
+        let (_, grad) = family.loglik_grad(&up, data);
+        for i in 0..k {
+            h[i][j] = -(grad[i] - point.grad[i]) / steps[j];
+        }
+    }
+    for i in 0..k {
+        for j in 0..i {
+            let avg = 0.5 * (h[i][j] + h[j][i]);
+            h[i][j] = avg;
+            h[j][i] = avg;
+        }
+    }
+    h
 }
 
 /// Fits one family to collapsed data; never panics, reports failure in the result.
 pub fn fit_family(family: &dyn Family, data: &FitData, arm: Option<&str>) -> FamilyFit {
     let k = family.param_names().len();
-    let mut best: Option<(f64, Vec<f64>)> = None;
-    let mut consider = |theta: Vec<f64>| {
-        let (ll, _) = family.loglik_grad(&theta, data);
-        if ll.is_finite() && best.as_ref().is_none_or(|(b, _)| ll > *b) {
-            best = Some((ll, theta));
-        }
-    };
-    if let Some(theta) = family.closed_form_mle(data) {
-        consider(theta);
-    } else {
-        for start in family.start_values(data) {
-            if start.iter().any(|x| !x.is_finite()) {
-                continue;
+    let (best, forward_steps) =
+        if data.time.len() > SUBSAMPLE_ABOVE && family.closed_form_mle(data).is_none() {
+            match maximise_large(family, data) {
+                Some((point, steps)) => (Some(point), steps),
+                None => (None, None),
             }
-            let objective = Objective { family, data };
-            let theta = bfgs(objective, start);
-            consider(newton_polish(family, data, theta));
-        }
-    }
+        } else {
+            (maximise_from_starts(family, data), None)
+        };
     let names: Vec<String> = family
         .estimation_names()
         .iter()
@@ -423,15 +645,23 @@ pub fn fit_family(family: &dyn Family, data: &FitData, arm: Option<&str>) -> Fam
         message: None,
         settings: family.settings(),
     };
-    let Some((ll, theta)) = best else {
+    let Some(best) = best else {
         fit.message = Some("no starting point gave a finite log-likelihood".into());
         return fit;
     };
+    let info = match &forward_steps {
+        Some(steps) => information_forward(family, data, &best, steps),
+        None => information(family, &best.theta, data),
+    };
+    let Point {
+        theta,
+        loglik: ll,
+        grad,
+    } = best;
     let params = family.to_natural(&theta);
     for (name, value) in family.param_names().iter().zip(&params) {
         fit.params.insert(name.to_string(), *value);
     }
-    let (_, grad) = family.loglik_grad(&theta, data);
     let gmax = max_abs(&grad);
     fit.gradient_max = Some(gmax);
     fit.loglik = Some(ll);
@@ -440,7 +670,7 @@ pub fn fit_family(family: &dyn Family, data: &FitData, arm: Option<&str>) -> Fam
     fit.estimates = theta.clone();
     let median = family.median(&params);
     fit.median = median.is_finite().then_some(median);
-    let covariance = invert_positive_definite(&information(family, &theta, data));
+    let covariance = invert_positive_definite(&info);
     let params_ok = family.check_params(&params).is_ok();
     let gradient_ok = gmax / data.n_subjects < GRADIENT_TOLERANCE;
     match &covariance {

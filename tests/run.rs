@@ -330,9 +330,10 @@ fn bad_analysis_files_give_one_line_errors_and_no_folder() {
 
 #[test]
 fn a_chosen_family_that_failed_to_fit_is_an_error() {
-    // Six events at nearly the same time: the log-normal's sigma runs to its boundary (the
-    // fitter reports it as not converged).
-    let data = "time,event,arm\n2,1,standard-care\n2,1,standard-care\n2,1,standard-care\n2,1,standard-care\n2,1,standard-care\n2.001,1,standard-care\n";
+    // Six events at the same time: the log-normal's sigma runs to its boundary (the fitter
+    // reports it as not converged). With two distinct times its MLE would be finite (sigma =
+    // the standard deviation of the log times), so the times must all tie.
+    let data = "time,event,arm\n2,1,standard-care\n2,1,standard-care\n2,1,standard-care\n2,1,standard-care\n2,1,standard-care\n2,1,standard-care\n";
     let e = fails(
         |a| a.replace("choose = \"best-aic\"", "choose = \"lognormal\""),
         Some(data),
