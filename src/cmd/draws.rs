@@ -208,7 +208,7 @@ fn wide_table(point: &TunnelTable, by_tunnel: &[Vec<f64>]) -> Table {
 }
 
 /// The summary table: point estimate, mean and 2.5%/97.5% percentiles of `p_exit` per tunnel.
-fn summary_table(rows: &[SummaryRow]) -> Table {
+pub(crate) fn summary_table(rows: &[SummaryRow]) -> Table {
     Table {
         name: "summary".into(),
         columns: [

@@ -140,36 +140,12 @@ impl RunResult {
     /// The draws summary as exported, when `[draws]` was given.
     pub fn draws_document(&self) -> Option<Document> {
         let rows = self.draws.as_ref()?;
-        let metadata = self.metadata();
-        let columns = [
-            "tunnel",
-            "t_start",
-            "t_end",
-            "p_exit",
-            "mean",
-            "lower_2_5",
-            "upper_97_5",
-        ];
+        // The same columns as `tunnelcast draws --summary-out`, so both files read alike.
+        let mut table = crate::cmd::draws::summary_table(rows);
+        table.name = "draws_summary".into();
         Some(Document {
-            metadata,
-            tables: vec![Table {
-                name: "draws_summary".into(),
-                columns: columns.map(String::from).to_vec(),
-                rows: rows
-                    .iter()
-                    .map(|r| {
-                        vec![
-                            Cell::Int(r.tunnel as i64),
-                            Cell::Number(r.t_start),
-                            Cell::Number(r.t_end),
-                            Cell::Number(r.point),
-                            Cell::Number(r.mean),
-                            Cell::Number(r.lower),
-                            Cell::Number(r.upper),
-                        ]
-                    })
-                    .collect(),
-            }],
+            metadata: self.metadata(),
+            tables: vec![table],
         })
     }
 
