@@ -1024,6 +1024,33 @@ pub fn fit_dataset(
     }
 }
 
+/// Test support: asserts that `family`'s analytic gradient at `theta` matches central
+/// differences of its log-likelihood (step 1e-6) within `tolerance`, relative to max(1, |g|).
+#[cfg(test)]
+pub(crate) fn assert_gradient_matches_differences(
+    family: &dyn Family,
+    theta: &[f64],
+    data: &FitData,
+    tolerance: f64,
+) {
+    let (_, grad) = family.loglik_grad(theta, data);
+    for j in 0..theta.len() {
+        let h = 1e-6;
+        let mut up = theta.to_vec();
+        let mut down = theta.to_vec();
+        up[j] += h;
+        down[j] -= h;
+        let numeric =
+            (family.loglik_grad(&up, data).0 - family.loglik_grad(&down, data).0) / (2.0 * h);
+        assert!(
+            (numeric - grad[j]).abs() < tolerance * grad[j].abs().max(1.0),
+            "{} {j}: {numeric} vs {}",
+            family.name(),
+            grad[j]
+        );
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -1072,22 +1099,7 @@ mod tests {
         ];
         for (name, theta) in points {
             let family = families::by_name(name).unwrap();
-            let (_, grad) = family.loglik_grad(&theta, &data);
-            for j in 0..theta.len() {
-                let h = 1e-6;
-                let mut up = theta.clone();
-                let mut down = theta.clone();
-                up[j] += h;
-                down[j] -= h;
-                let numeric = (family.loglik_grad(&up, &data).0
-                    - family.loglik_grad(&down, &data).0)
-                    / (2.0 * h);
-                assert!(
-                    (numeric - grad[j]).abs() < 1e-6 * grad[j].abs().max(1.0),
-                    "{name} {j}: {numeric} vs {}",
-                    grad[j]
-                );
-            }
+            assert_gradient_matches_differences(family, &theta, &data, 1e-6);
         }
     }
 

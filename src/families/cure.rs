@@ -244,23 +244,7 @@ mod tests {
             (&CURE_LOGNORMAL, vec![2.0, -0.1, -1.2]),
             (&CURE_LOGLOGISTIC, vec![0.5, 2.4, 0.4]),
         ] {
-            let (_, grad) = family.loglik_grad(&theta, &data);
-            for j in 0..3 {
-                let h = 1e-6;
-                let mut up = theta.clone();
-                let mut down = theta.clone();
-                up[j] += h;
-                down[j] -= h;
-                let numeric = (family.loglik_grad(&up, &data).0
-                    - family.loglik_grad(&down, &data).0)
-                    / (2.0 * h);
-                assert!(
-                    (numeric - grad[j]).abs() < 1e-6 * grad[j].abs().max(1.0),
-                    "{} {j}: {numeric} vs {}",
-                    family.name(),
-                    grad[j]
-                );
-            }
+            crate::fit::assert_gradient_matches_differences(family, &theta, &data, 1e-6);
         }
     }
 

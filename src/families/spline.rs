@@ -517,22 +517,7 @@ mod tests {
             let fit = fit_family(family, &data, None);
             assert!(fit.converged, "{name}: {:?}", fit.message);
             let theta: Vec<f64> = fit.estimates.iter().map(|x| x * 1.01 + 0.001).collect();
-            let (_, grad) = family.loglik_grad(&theta, &data);
-            for j in 0..theta.len() {
-                let h = 1e-6;
-                let mut up = theta.clone();
-                let mut down = theta.clone();
-                up[j] += h;
-                down[j] -= h;
-                let numeric = (family.loglik_grad(&up, &data).0
-                    - family.loglik_grad(&down, &data).0)
-                    / (2.0 * h);
-                assert!(
-                    (numeric - grad[j]).abs() < 1e-5 * grad[j].abs().max(1.0),
-                    "{name} {j}: {numeric} vs {}",
-                    grad[j]
-                );
-            }
+            crate::fit::assert_gradient_matches_differences(family, &theta, &data, 1e-5);
         }
     }
 
