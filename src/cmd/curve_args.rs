@@ -556,6 +556,31 @@ mod tests {
         }
     }
 
+    #[test]
+    fn published_spline_knots_are_durations_in_the_parameter_unit() {
+        // A month is a twelfth of 365.25 days, a year 365.25 days (interface, common practice).
+        let mut args = published(
+            "spline-odds-1",
+            &["gamma0=-2", "gamma1=1.1", "gamma2=0.001"],
+            Some("months"),
+        );
+        args.knots = Some("30.4375 days,1 year,3 years".into());
+        let built = args.build().unwrap();
+        let knots = built.base.family.settings().unwrap().knots.unwrap();
+        assert_eq!(knots, vec![1.0, 12.0, 36.0]);
+        let mut args = published(
+            "piecewise",
+            &["rate[0,0.5)=0.1", "rate[0.5,inf)=0.2"],
+            Some("years"),
+        );
+        args.cuts = Some("6 months".into());
+        let built = args.build().unwrap();
+        assert_eq!(built.base.params, vec![0.1, 0.2]);
+        // S(1 year) = exp(-(0.1·0.5 + 0.2·0.5)) by the piecewise-constant hazard.
+        let s = built.curve.log_survival(1.0);
+        assert!((s + 0.15).abs() < 1e-15, "{s}");
+    }
+
     fn error(args: CurveArgs) -> String {
         args.build().err().expect("should fail").to_string()
     }
