@@ -378,7 +378,7 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
         "<p>{} tunnel states of {} {} ({}). Tunnel k covers [(k−1)·cycle, k·cycle) since entry; p_exit = 1 − S(t_end)/S(t_start), with no half-cycle shift; the last tunnel repeats its own probability. Times in {}.</p>\n",
         t.rows.len(),
         crate::export::number_text(t.cycle),
-        t.time_unit,
+        t.time_unit.name_for(t.cycle),
         escape(&result.count_rule),
         t.time_unit
     ));
@@ -401,7 +401,7 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
     h.push_str(&format!(
         "<p>Horizon of the checks: {n} cycles = {} {} ({}). A chain cut at K tunnels repeats tunnel K's probability for every later cycle. <b>Suggested count: {}</b> (smallest K with max_surv_gap and ly_rel_error both ≤ {}); p_exit stable from tunnel {} (changes by at most the tolerance, relative, from one tunnel to the next). Selected rows are shown; <span class=\"file\">truncation.*</span> hold every count.</p>\n",
         crate::export::number_text(n as f64 * t.cycle),
-        t.time_unit,
+        t.time_unit.name_for(n as f64 * t.cycle),
         escape(&result.horizon_rule),
         result.suggested_count,
         a.tolerance,

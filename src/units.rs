@@ -44,6 +44,16 @@ impl TimeUnit {
         }
     }
 
+    /// The unit's name to follow `value`: singular for exactly 1 ("1 month"), else plural.
+    pub fn name_for(self, value: f64) -> &'static str {
+        let plural = self.name();
+        if value == 1.0 {
+            &plural[..plural.len() - 1]
+        } else {
+            plural
+        }
+    }
+
     /// Factor c such that a time of 1 in `self` equals c in `to` (t_to = c · t_self).
     pub fn factor_to(self, to: TimeUnit) -> f64 {
         if self == to {
@@ -110,7 +120,7 @@ impl Duration {
 
 impl fmt::Display for Duration {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "{} {}", self.value, self.unit)
+        write!(f, "{} {}", self.value, self.unit.name_for(self.value))
     }
 }
 
@@ -208,6 +218,22 @@ mod tests {
         assert_eq!(d.in_unit(TimeUnit::Months), 6.0);
         let d: Duration = "1e1 days".parse().unwrap();
         assert_eq!(d.value, 10.0);
+    }
+
+    #[test]
+    fn durations_print_singular_for_one_and_read_back() {
+        // English usage (common practice): "1 month", "0.5 months", "3 weeks".
+        for (text, shown) in [
+            ("1 month", "1 month"),
+            ("1 years", "1 year"),
+            ("0.5 month", "0.5 months"),
+            ("3 week", "3 weeks"),
+            ("1 days", "1 day"),
+        ] {
+            let d: Duration = text.parse().unwrap();
+            assert_eq!(d.to_string(), shown);
+            assert_eq!(shown.parse::<Duration>().unwrap(), d);
+        }
     }
 
     #[test]

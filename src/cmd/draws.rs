@@ -242,9 +242,10 @@ fn parameter_table(family: &dyn Family, params: &[Vec<f64>]) -> Table {
 fn render_summary(point: &TunnelTable, rows: &[SummaryRow], draws: usize) -> String {
     let unit = point.time_unit;
     let mut out = format!(
-        "curve: {}\ncycle: {} {unit}; {} tunnel states; {draws} draws; times in {unit}\n",
+        "curve: {}\ncycle: {} {}; {} tunnel states; {draws} draws; times in {unit}\n",
         point.curve,
         number_text(point.cycle),
+        unit.name_for(point.cycle),
         point.rows.len()
     );
     let text: Vec<Vec<String>> = rows

@@ -160,10 +160,12 @@ pub fn run(args: HorizonArgs) -> Result<()> {
     let within = within_cycle_table(curve, cycle, n, discount);
 
     let mut text = format!(
-        "curve: {}\ncycle: {} {unit}; horizon: {} {unit} = {n} cycles ({horizon_note}); times and life-years in {unit}\n\n",
+        "curve: {}\ncycle: {} {}; horizon: {} {} = {n} cycles ({horizon_note}); times and life-years in {unit}\n\n",
         curve.describe(),
         number_text(cycle.value),
+        unit.name_for(cycle.value),
         number_text(horizon),
+        unit.name_for(horizon),
     );
     text.push_str(&format!(
         "Truncation (chain cut at K tunnels, the last repeating its probability; tolerance {tolerance}):\n"
@@ -197,8 +199,9 @@ pub fn run(args: HorizonArgs) -> Result<()> {
          stable_count: {stable} (first tunnel after which p_exit changes by ≤ {tolerance} relative from one tunnel to the next)\n\n"
     ));
     text.push_str(&format!(
-        "Within-cycle life-years to {} {unit} from survival at cycle boundaries; discounted at {} a year as (1 + r)^(-t) at each boundary:\n",
+        "Within-cycle life-years to {} {} from survival at cycle boundaries; discounted at {} a year as (1 + r)^(-t) at each boundary:\n",
         number_text(horizon),
+        unit.name_for(horizon),
         discount
     ));
     let rows: Vec<Vec<String>> = within
@@ -242,7 +245,11 @@ pub fn run(args: HorizonArgs) -> Result<()> {
         metadata.push(("horizon_rule".into(), horizon_note.clone()));
         metadata.push((
             "cycle".into(),
-            format!("{} {unit}", number_text(cycle.value)),
+            format!(
+                "{} {}",
+                number_text(cycle.value),
+                unit.name_for(cycle.value)
+            ),
         ));
         metadata.push(("caution".into(), crate::CAUTION.into()));
         let report = HorizonReport {

@@ -566,9 +566,10 @@ pub fn summary(result: &RunResult, folder: &Path) -> String {
         result.chosen_by
     ));
     text.push_str(&format!(
-        "tunnel table: {} tunnel states of {} {unit} ({}); suggested count {}, p_exit stable from tunnel {} (tolerance {})\n",
+        "tunnel table: {} tunnel states of {} {} ({}); suggested count {}, p_exit stable from tunnel {} (tolerance {})\n",
         result.tunnels.rows.len(),
         number_text(result.tunnels.cycle),
+        unit.name_for(result.tunnels.cycle),
         result.count_rule,
         result.suggested_count,
         result.stable_count,

@@ -89,7 +89,7 @@ pub fn header(
     let mut metadata = vec![("tool_version".to_string(), crate::VERSION.to_string())];
     metadata.extend(curve_metadata.iter().cloned());
     metadata.extend([
-        ("cycle".to_string(), format!("{} {}", number_text(table.cycle), table.time_unit)),
+        ("cycle".to_string(), format!("{} {}", number_text(table.cycle), table.time_unit.name_for(table.cycle))),
         ("time_unit".to_string(), table.time_unit.name().to_string()),
         ("count".to_string(), table.rows.len().to_string()),
         ("layout".to_string(), layout.name().to_string()),
@@ -116,9 +116,10 @@ fn time_text(t: f64) -> String {
 pub fn render_text(table: &TunnelTable, layout: Layout) -> String {
     let unit = table.time_unit;
     let mut out = format!(
-        "curve: {}\ncycle: {} {unit}; {} tunnel states; times in {unit}\n",
+        "curve: {}\ncycle: {} {}; {} tunnel states; times in {unit}\n",
         table.curve,
         number_text(table.cycle),
+        unit.name_for(table.cycle),
         table.rows.len()
     );
     match layout {
