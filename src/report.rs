@@ -186,8 +186,14 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
     // Data summary.
     h.push_str("<section id=\"data\">\n<h2>Data</h2>\n");
     h.push_str(&format!(
-        "<p>{} subjects, {} events; time unit: {unit}. Kaplan–Meier median with a 95% interval from the log-log band.</p>\n",
-        fits.data.n, fits.data.events
+        "<p>{} subjects, {} events{}; time unit: {unit}. Kaplan–Meier median with a 95% interval from the log-log band.</p>\n",
+        fits.data.n,
+        fits.data.events,
+        if result.rebuild.is_some() {
+            " (rebuilt from a digitised Kaplan–Meier figure, not the trial's own data: see Rebuilt data below)"
+        } else {
+            ""
+        }
     ));
     let show = |x: Option<f64>| x.map(|v| sig(v, 4)).unwrap_or_else(|| "not reached".into());
     let rows: Vec<Vec<String>> = fits

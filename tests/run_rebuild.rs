@@ -318,3 +318,37 @@ fn an_error_in_the_digitised_points_names_the_curve_file_row() {
     );
     assert!(!dir.path().join("out").exists());
 }
+
+#[test]
+fn events_by_arm_without_an_arm_column_name_the_keys() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(
+        dir.path().join("curve.csv"),
+        "time,survival\n0,1\n5,0.8\n12,0.6\n25,0.4\n",
+    )
+    .unwrap();
+    std::fs::write(
+        dir.path().join("risk.csv"),
+        "time,at_risk\n0,100\n10,60\n20,30\n",
+    )
+    .unwrap();
+    std::fs::write(
+        dir.path().join("analysis.toml"),
+        "[data]\ncurve = \"curve.csv\"\nat_risk = \"risk.csv\"\nevents = { a = 50 }\n[tunnels]\ncycle = \"1 month\"\n",
+    )
+    .unwrap();
+    let out = tunnelcast(dir.path())
+        .args(["run", "analysis.toml", "--out", "out"])
+        .assert()
+        .code(2)
+        .get_output()
+        .clone();
+    let stderr = String::from_utf8(out.stderr).unwrap();
+    assert_eq!(stderr.lines().count(), 1, "{stderr}");
+    assert!(
+        stderr.starts_with("error: analysis.toml line 4 column 10: [data] events a=50"),
+        "{stderr}"
+    );
+    assert!(stderr.contains("[data] arm_column not given"), "{stderr}");
+    assert!(!dir.path().join("out").exists());
+}

@@ -461,7 +461,10 @@ pub fn rebuild_data(analysis: &Analysis, source: &CurveSource) -> Result<Rebuild
             } else {
                 source.curve.place
             };
-            analysis.error_at(place, m)
+            analysis.error_at(
+                place,
+                m.replace("--arm-col not given", "[data] arm_column not given"),
+            )
         }
         other => other,
     })
