@@ -323,6 +323,8 @@ fn adjustments(file: &str, place: Place, raw: &RawAdjust, base: &Path) -> Result
         arm: None,
         params: Vec::new(),
         time_unit: None,
+        cuts: None,
+        knots: None,
         allow_unconverged: false,
         hazard_ratio: raw.hazard_ratio.map(|x| x.to_string()),
         acceleration_factor: raw.acceleration_factor.map(|x| x.to_string()),

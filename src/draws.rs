@@ -236,17 +236,20 @@ pub fn tables_in_chunks(
     Ok(())
 }
 
-/// Percentile `p` (0–1) of sorted values by linear interpolation between order statistics,
-/// h = (n - 1)·p (Hyndman and Fan, 1996, definition 7). NaN for no values.
-pub fn percentile_sorted(sorted: &[f64], p: f64) -> f64 {
-    match sorted.len() {
+/// Percentile `p` (0–1) by linear interpolation between order statistics, h = (n - 1)·p
+/// (Hyndman and Fan, 1996, definition 7), found by selection rather than a full sort (the
+/// values are reordered). NaN for no values.
+pub fn percentile(values: &mut [f64], p: f64) -> f64 {
+    match values.len() {
         0 => f64::NAN,
-        1 => sorted[0],
+        1 => values[0],
         n => {
             let h = (n - 1) as f64 * p.clamp(0.0, 1.0);
-            let lo = h.floor() as usize;
-            let hi = (lo + 1).min(n - 1);
-            sorted[lo] + (h - lo as f64) * (sorted[hi] - sorted[lo])
+            let lo = (h.floor() as usize).min(n - 1);
+            let (_, low, above) = values.select_nth_unstable_by(lo, f64::total_cmp);
+            let low = *low;
+            let high = above.iter().copied().min_by(f64::total_cmp).unwrap_or(low);
+            low + (h - lo as f64) * (high - low)
         }
     }
 }
@@ -300,10 +303,9 @@ impl SummaryBuilder {
     pub fn finish(mut self) -> Vec<SummaryRow> {
         self.point
             .rows
-            .iter()
-            .zip(self.by_tunnel.iter_mut())
+            .par_iter()
+            .zip(self.by_tunnel.par_iter_mut())
             .map(|(row, values)| {
-                values.sort_by(f64::total_cmp);
                 let mean = values.iter().sum::<f64>() / values.len() as f64;
                 SummaryRow {
                     tunnel: row.tunnel,
@@ -311,8 +313,8 @@ impl SummaryBuilder {
                     t_end: row.t_end,
                     point: row.p_exit,
                     mean,
-                    lower: percentile_sorted(values, 0.025),
-                    upper: percentile_sorted(values, 0.975),
+                    lower: percentile(values, 0.025),
+                    upper: percentile(values, 0.975),
                 }
             })
             .collect()
@@ -486,15 +488,19 @@ mod tests {
 
     #[test]
     fn percentiles_follow_linear_interpolation_between_order_statistics() {
-        // Hyndman and Fan (1996), definition 7: h = (n-1)p, worked by hand for 1..=5 and 1..=10.
-        let five = [1.0, 2.0, 3.0, 4.0, 5.0];
-        assert_eq!(percentile_sorted(&five, 0.5), 3.0);
-        assert!((percentile_sorted(&five, 0.025) - 1.1).abs() < 1e-15);
-        assert!((percentile_sorted(&five, 0.975) - 4.9).abs() < 1e-15);
-        let ten: Vec<f64> = (1..=10).map(f64::from).collect();
-        assert!((percentile_sorted(&ten, 0.025) - 1.225).abs() < 1e-15);
-        assert!((percentile_sorted(&ten, 0.975) - 9.775).abs() < 1e-15);
-        assert!(percentile_sorted(&[], 0.5).is_nan());
+        // Hyndman and Fan (1996), definition 7: h = (n-1)p, worked by hand for 1..=5 and 1..=10,
+        // given in scrambled order (the selection must not depend on it).
+        let mut five = [4.0, 1.0, 5.0, 3.0, 2.0];
+        assert_eq!(percentile(&mut five, 0.5), 3.0);
+        assert!((percentile(&mut five, 0.025) - 1.1).abs() < 1e-15);
+        assert!((percentile(&mut five, 0.975) - 4.9).abs() < 1e-15);
+        assert_eq!(percentile(&mut five, 1.0), 5.0);
+        assert_eq!(percentile(&mut five, 0.0), 1.0);
+        let mut ten: Vec<f64> = (1..=10).map(|i| f64::from((i * 7) % 10 + 1)).collect();
+        assert!((percentile(&mut ten, 0.025) - 1.225).abs() < 1e-15);
+        assert!((percentile(&mut ten, 0.975) - 9.775).abs() < 1e-15);
+        assert!(percentile(&mut [], 0.5).is_nan());
+        assert_eq!(percentile(&mut [2.5], 0.3), 2.5);
     }
 
     #[test]

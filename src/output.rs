@@ -49,7 +49,7 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
 /// too large to hold in memory.
 pub fn write_atomic_with(
     path: &Path,
-    fill: impl FnOnce(&mut dyn Write) -> Result<()>,
+    fill: impl FnOnce(&mut (dyn Write + Send)) -> Result<()>,
 ) -> Result<()> {
     let parent = parent_dir(path);
     let name = path

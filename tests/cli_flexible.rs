@@ -182,3 +182,247 @@ fn spline_knots_are_recorded_settable_and_reused() {
     let stderr = String::from_utf8(out.get_output().stderr.clone()).unwrap();
     assert!(stderr.contains("takes 2 internal knots"), "{stderr}");
 }
+
+#[derive(serde::Deserialize)]
+#[serde(deny_unknown_fields)]
+struct TableDoc {
+    metadata: std::collections::BTreeMap<String, String>,
+    tables: Vec<TableJson>,
+}
+
+#[derive(serde::Deserialize)]
+#[serde(deny_unknown_fields)]
+struct TableJson {
+    #[allow(dead_code)]
+    name: String,
+    columns: Vec<String>,
+    rows: Vec<Vec<serde_json::Value>>,
+}
+
+fn read_table(dir: &std::path::Path, name: &str) -> TableDoc {
+    serde_json::from_slice(&std::fs::read(dir.join(name)).unwrap()).unwrap()
+}
+
+/// Runs `tunnels` from the fit file and from the same values given as published parameters
+/// (`--param` plus `extra`, i.e. `--cuts` or `--knots`), and checks the two tables agree.
+fn published_table_equals_fitted(dir: &std::path::Path, family: &str, extra: [&str; 2]) {
+    let file: FitFile =
+        serde_json::from_slice(&std::fs::read(dir.join("fit.json")).unwrap()).unwrap();
+    let fit = file.fits.iter().find(|f| f.family == family).unwrap();
+    let table = ["--cycle", "1 month", "--count", "30", "--force"];
+    tunnelcast(dir)
+        .args(["tunnels", "--fit", "fit.json", "--family", family])
+        .args(table)
+        .args(["--out", "from_fit.json"])
+        .assert()
+        .success();
+    let mut published = tunnelcast(dir);
+    published
+        .args(["tunnels", "--family", family, "--time-unit", "months"])
+        .args(extra)
+        .args(table)
+        .args(["--out", "from_param.json"]);
+    // Rust prints the shortest text that reads back to the same f64, so the values are exact.
+    for (name, value) in &fit.params {
+        published.arg("--param").arg(format!("{name}={value}"));
+    }
+    published.assert().success();
+    let (a, b) = (
+        read_table(dir, "from_fit.json"),
+        read_table(dir, "from_param.json"),
+    );
+    assert_eq!(b.metadata["source"], "published parameters");
+    assert_eq!(a.metadata["family_settings"], b.metadata["family_settings"]);
+    assert_eq!(a.tables[0].columns, b.tables[0].columns);
+    assert_eq!(a.tables[0].rows.len(), 30);
+    for (ra, rb) in a.tables[0].rows.iter().zip(&b.tables[0].rows) {
+        for (x, y) in ra.iter().zip(rb) {
+            let (x, y) = (x.as_f64().unwrap(), y.as_f64().unwrap());
+            assert!(
+                (x - y).abs() <= 1e-12 * x.abs().max(1.0),
+                "{family}: {x} vs {y}"
+            );
+        }
+    }
+}
+
+#[test]
+fn published_piecewise_and_spline_parameters_give_the_fitted_tables() {
+    let dir = tempfile::tempdir().unwrap();
+    write_piecewise_data(dir.path());
+    tunnelcast(dir.path())
+        .args(["fit", "trial.csv", "--time-unit", "months", "--families"])
+        .args(["piecewise,spline-hazard-2", "--cuts", "6 months,1 year"])
+        .args(["--json", "fit.json"])
+        .assert()
+        .success();
+    published_table_equals_fitted(dir.path(), "piecewise", ["--cuts", "6 months,12 months"]);
+    let file: FitFile =
+        serde_json::from_slice(&std::fs::read(dir.path().join("fit.json")).unwrap()).unwrap();
+    let fit = file
+        .fits
+        .iter()
+        .find(|f| f.family == "spline-hazard-2")
+        .unwrap();
+    let knots: Vec<String> = fit
+        .settings
+        .as_ref()
+        .unwrap()
+        .knots
+        .as_ref()
+        .unwrap()
+        .iter()
+        .map(|k| format!("{k} months"))
+        .collect();
+    published_table_equals_fitted(dir.path(), "spline-hazard-2", ["--knots", &knots.join(",")]);
+}
+
+#[test]
+fn published_settings_errors_are_one_line_and_leave_no_file() {
+    let dir = tempfile::tempdir().unwrap();
+    write_piecewise_data(dir.path());
+    tunnelcast(dir.path())
+        .args(["fit", "trial.csv", "--time-unit", "months", "--families"])
+        .args(["weibull", "--json", "fit.json"])
+        .assert()
+        .success();
+    let rates = [
+        "--param",
+        "rate[0,6)=0.05",
+        "--param",
+        "rate[6,inf)=0.1",
+        "--time-unit",
+        "months",
+    ];
+    let spline = [
+        "--param",
+        "gamma0=-3",
+        "--param",
+        "gamma1=1",
+        "--param",
+        "gamma2=0",
+        "--param",
+        "gamma3=0",
+        "--time-unit",
+        "months",
+    ];
+    let cases: Vec<(Vec<&str>, &str)> = vec![
+        (
+            [&["--family", "piecewise"][..], &rates].concat(),
+            "piecewise needs the cut points",
+        ),
+        (
+            [
+                &["--family", "piecewise", "--cuts", "6 months,3 months"][..],
+                &rates,
+            ]
+            .concat(),
+            "cut points must increase",
+        ),
+        (
+            [
+                &["--family", "piecewise", "--cuts", "6 months,12 months"][..],
+                &rates,
+            ]
+            .concat(),
+            "its parameters: rate[0,6), rate[6,12), rate[12,inf)",
+        ),
+        (
+            vec![
+                "--family",
+                "piecewise",
+                "--cuts",
+                "6 months",
+                "--param",
+                "rate[0,6)=0.05",
+                "--time-unit",
+                "months",
+            ],
+            "missing: rate[6,inf)",
+        ),
+        (
+            vec![
+                "--family",
+                "piecewise",
+                "--cuts",
+                "6 months",
+                "--param",
+                "rate[0,6]=0.05",
+                "--param",
+                "rate[6,inf)=0.1",
+                "--time-unit",
+                "months",
+            ],
+            "did you mean \"rate[0,6)\"",
+        ),
+        (
+            [
+                &["--family", "piecewise", "--cuts", "6 months"][..],
+                &spline,
+            ]
+            .concat(),
+            "piecewise has no parameter \"gamma0\"",
+        ),
+        (
+            [&["--family", "spline-hazard-2"][..], &spline].concat(),
+            "needs all 4 knots",
+        ),
+        (
+            [
+                &["--family", "spline-hazard-2", "--knots", "4 months,1 year"][..],
+                &spline,
+            ]
+            .concat(),
+            "needs all 4 knots",
+        ),
+        (
+            [
+                &[
+                    "--family",
+                    "spline-hazard-2",
+                    "--knots",
+                    "1 month,1 year,4 months,2 years",
+                ][..],
+                &spline,
+            ]
+            .concat(),
+            "knots must increase",
+        ),
+        (
+            [&["--family", "weibull", "--cuts", "6 months"][..], &rates].concat(),
+            "weibull takes none",
+        ),
+        (
+            [
+                &["--family", "piecewise", "--knots", "6 months"][..],
+                &rates,
+            ]
+            .concat(),
+            "piecewise takes none",
+        ),
+        (
+            vec![
+                "--fit",
+                "fit.json",
+                "--family",
+                "weibull",
+                "--knots",
+                "1 month,2 months",
+            ],
+            "fit file already records",
+        ),
+    ];
+    for (args, expected) in cases {
+        let out = tunnelcast(dir.path())
+            .arg("tunnels")
+            .args(&args)
+            .args(["--cycle", "1 month", "--count", "5", "--out", "t.csv"])
+            .assert()
+            .code(2);
+        let stderr = String::from_utf8(out.get_output().stderr.clone()).unwrap();
+        assert!(stderr.contains(expected), "{args:?}: {stderr}");
+        assert_eq!(stderr.trim_end().lines().count(), 1, "{stderr}");
+        assert!(!stderr.contains("panicked"), "{stderr}");
+        assert!(!dir.path().join("t.csv").exists(), "{args:?}");
+    }
+}

@@ -8,10 +8,11 @@
 use crate::adjust::background::BeyondTable;
 use crate::adjust::lifetable::Sex;
 use crate::adjust::{self, AdjustedCurve, Adjustments, BackgroundMode, BackgroundSettings, Waning};
+use crate::cmd::fit::parse_durations;
 use crate::curve::{Curve, ParametricCurve};
 use crate::error::{Error, Result};
 use crate::export::number_text;
-use crate::families::{self, Family};
+use crate::families::{self, Family, FamilyOptions};
 use crate::fit::{FamilyFit, FitFile};
 use crate::units::TimeUnit;
 use clap::Args;
@@ -42,6 +43,14 @@ pub struct CurveArgs {
     /// Time unit of the --param values (days, weeks, months, years); required with --param.
     #[arg(long, value_name = "UNIT", help_heading = "Curve")]
     pub time_unit: Option<String>,
+    /// Cut points of a published piecewise curve, comma-separated durations (e.g. "6 months,12
+    /// months"), the same cut points that name its `rate[a,b)` parameters; with --param only.
+    #[arg(long, value_name = "DURATIONS", help_heading = "Curve")]
+    pub cuts: Option<String>,
+    /// All K + 2 knots of a published spline curve, comma-separated durations (not log times),
+    /// boundary knots first and last (e.g. "2 months,1 year,5 years"); with --param only.
+    #[arg(long, value_name = "DURATIONS", help_heading = "Curve")]
+    pub knots: Option<String>,
     /// Use a fit that the fitter marked as not converged (refused by default; recorded in the output).
     #[arg(long, help_heading = "Curve")]
     pub allow_unconverged: bool,
@@ -308,6 +317,13 @@ impl CurveArgs {
                 "--param and --time-unit describe published parameters; they cannot be combined with --fit (the fit file fixes both)".into(),
             ));
         }
+        for (given, option) in [(&self.cuts, "--cuts"), (&self.knots, "--knots")] {
+            if given.is_some() {
+                return Err(Error::Usage(format!(
+                    "{option} describes a published curve (with --param); the fit file already records the fitted family's settings"
+                )));
+            }
+        }
         let name = path.display().to_string();
         let bytes =
             std::fs::read(path).map_err(|e| Error::input(&name, format!("cannot read: {e}")))?;
@@ -370,18 +386,88 @@ impl CurveArgs {
         })
     }
 
+    /// The configured family of published parameters: `piecewise` with `--cuts`, a spline
+    /// family with all its knots from `--knots`, both as durations in the parameters' `unit`.
+    fn configure_published(
+        &self,
+        family: &'static dyn Family,
+        unit: TimeUnit,
+    ) -> Result<&'static dyn Family> {
+        let name = family.name();
+        let piecewise = name == "piecewise";
+        let spline = name.starts_with("spline-");
+        if self.cuts.is_some() && !piecewise {
+            return Err(Error::Usage(format!(
+                "--cuts sets the cut points of the piecewise family; {name} takes none"
+            )));
+        }
+        if self.knots.is_some() && !spline {
+            return Err(Error::Usage(format!(
+                "--knots sets the knots of the spline families; {name} takes none"
+            )));
+        }
+        let cuts = self
+            .cuts
+            .as_deref()
+            .map(|t| parse_durations("--cuts", t, unit))
+            .transpose()?;
+        let knots = self
+            .knots
+            .as_deref()
+            .map(|t| parse_durations("--knots", t, unit))
+            .transpose()?;
+        if piecewise && cuts.is_none() {
+            return Err(Error::Usage(
+                "piecewise needs the cut points of its published rates: give --cuts, e.g. --cuts \"6 months,12 months\"".into(),
+            ));
+        }
+        if spline {
+            // Only a fit places boundary knots from data, so published curves give all of them.
+            let internal: usize = name
+                .rsplit('-')
+                .next()
+                .and_then(|k| k.parse().ok())
+                .unwrap_or(0);
+            let given = knots.as_ref().map(Vec::len);
+            if given != Some(internal + 2) {
+                let got = match given {
+                    Some(n) => format!("{n} given"),
+                    None => "none given".into(),
+                };
+                return Err(Error::Usage(format!(
+                    "--knots: {name} with --param needs all {} knots as durations ({internal} internal, boundary knots first and last); {got}",
+                    internal + 2
+                )));
+            }
+        }
+        families::with_options(family, &FamilyOptions { cuts, knots }).map_err(Error::Usage)
+    }
+
     fn curve_from_params(&self, family: &'static dyn Family) -> Result<BuiltCurve> {
         if self.arm.is_some() {
             return Err(Error::Usage("--arm needs --fit".into()));
         }
-        let names = family.param_names();
         if self.params.is_empty() {
+            let names = family.param_names();
+            let list = if names.is_empty() {
+                String::new()
+            } else {
+                format!(" ({})", names.join(", "))
+            };
             return Err(Error::Usage(format!(
-                "give either --fit FIT.json or the {} parameters ({}) with --param NAME=VALUE and --time-unit",
+                "give either --fit FIT.json or the {} parameters{list} with --param NAME=VALUE and --time-unit",
                 family.name(),
-                names.join(", ")
             )));
         }
+        let Some(unit_text) = &self.time_unit else {
+            return Err(Error::Usage(
+                "--time-unit is required with --param (the unit the published parameters are in)"
+                    .into(),
+            ));
+        };
+        let unit = parse_unit("--time-unit", unit_text)?;
+        let family = self.configure_published(family, unit)?;
+        let names = family.param_names();
         let mut values: Vec<Option<f64>> = vec![None; names.len()];
         for given in &self.params {
             let Some((key, value)) = given.split_once('=') else {
@@ -429,13 +515,6 @@ impl CurveArgs {
                 missing.join(", ")
             )));
         }
-        let Some(unit_text) = &self.time_unit else {
-            return Err(Error::Usage(
-                "--time-unit is required with --param (the unit the published parameters are in)"
-                    .into(),
-            ));
-        };
-        let unit = parse_unit("--time-unit", unit_text)?;
         let params: Vec<f64> = values.into_iter().flatten().collect();
         let base = ParametricCurve::new(family, params, unit)
             .map_err(|e| Error::Usage(format!("--param: {e}")))?;
@@ -463,6 +542,8 @@ mod tests {
             arm: None,
             params: params.iter().map(|s| s.to_string()).collect(),
             time_unit: unit.map(String::from),
+            cuts: None,
+            knots: None,
             allow_unconverged: false,
             hazard_ratio: None,
             acceleration_factor: None,
@@ -473,6 +554,31 @@ mod tests {
             background_mode: None,
             beyond_table: None,
         }
+    }
+
+    #[test]
+    fn published_spline_knots_are_durations_in_the_parameter_unit() {
+        // A month is a twelfth of 365.25 days, a year 365.25 days (interface, common practice).
+        let mut args = published(
+            "spline-odds-1",
+            &["gamma0=-2", "gamma1=1.1", "gamma2=0.001"],
+            Some("months"),
+        );
+        args.knots = Some("30.4375 days,1 year,3 years".into());
+        let built = args.build().unwrap();
+        let knots = built.base.family.settings().unwrap().knots.unwrap();
+        assert_eq!(knots, vec![1.0, 12.0, 36.0]);
+        let mut args = published(
+            "piecewise",
+            &["rate[0,0.5)=0.1", "rate[0.5,inf)=0.2"],
+            Some("years"),
+        );
+        args.cuts = Some("6 months".into());
+        let built = args.build().unwrap();
+        assert_eq!(built.base.params, vec![0.1, 0.2]);
+        // S(1 year) = exp(-(0.1·0.5 + 0.2·0.5)) by the piecewise-constant hazard.
+        let s = built.curve.log_survival(1.0);
+        assert!((s + 0.15).abs() < 1e-15, "{s}");
     }
 
     fn error(args: CurveArgs) -> String {

@@ -11,7 +11,7 @@ use crate::curve::{Curve, ParametricCurve};
 use crate::discretise::{count_until, tunnel_table, TunnelTable};
 use crate::draws::{self, Bootstrap, CurveBuilder, Sampler, SummaryBuilder, SummaryRow};
 use crate::error::{Error, Result};
-use crate::export::tunnel::{long_table, Layout};
+use crate::export::tunnel::{draw_columns, draw_rows, Layout};
 use crate::export::{exporter_for, number_text, xlsx, Cell, Document, Exporter, Table};
 use crate::families::Family;
 use crate::fit::FitFile;
@@ -155,27 +155,6 @@ fn target(path: &Path, format: Option<&str>, force: bool) -> Result<Target> {
         path: path.to_path_buf(),
         exporter,
     })
-}
-
-/// Column names of the long layout of draws: `draw`, then the tunnel table's long columns.
-fn long_columns(point: &TunnelTable) -> Vec<String> {
-    let mut columns = vec!["draw".to_string()];
-    columns.extend(long_table(point).columns);
-    columns
-}
-
-/// Rows of one draw in the long layout (`draw` is 1-based).
-fn long_rows(draw: usize, table: &TunnelTable) -> Vec<Vec<Cell>> {
-    long_table(table)
-        .rows
-        .into_iter()
-        .map(|row| {
-            let mut cells = Vec::with_capacity(row.len() + 1);
-            cells.push(Cell::Int(draw as i64));
-            cells.extend(row);
-            cells
-        })
-        .collect()
 }
 
 /// The wide layout from `p_exit` per tunnel (in draw order).
@@ -545,7 +524,7 @@ pub fn run(args: DrawsArgs) -> Result<()> {
                     for (i, table) in tables.iter().enumerate() {
                         summary.add(table);
                         if keep_long {
-                            long.extend(long_rows(first + i + 1, table));
+                            long.extend(draw_rows(first + i + 1, table));
                         }
                     }
                     Ok(())
@@ -558,7 +537,7 @@ pub fn run(args: DrawsArgs) -> Result<()> {
                 let main = match args.layout {
                     DrawLayout::Long => Table {
                         name: "draws".into(),
-                        columns: long_columns(&point),
+                        columns: draw_columns(&point),
                         rows: long,
                     },
                     DrawLayout::Wide => wide_table(&point, summary.values()),
@@ -599,9 +578,10 @@ pub fn run(args: DrawsArgs) -> Result<()> {
     Ok(())
 }
 
-/// Writes the long layout chunk by chunk: the first chunk through [`Exporter::render`] (header
-/// block and column names), the others through [`Exporter::render_more_rows`], each draw's rows
-/// rendered in parallel and written in draw order.
+/// Writes the long layout chunk by chunk: the header block and column names through
+/// [`Exporter::render`], then each chunk's draws formatted in parallel
+/// ([`Exporter::append_draw_rows`]) and handed, in draw order, to a writer thread, so the disk
+/// writes overlap the next chunk's tables.
 #[allow(clippy::too_many_arguments)]
 fn write_streaming(
     target: &Target,
@@ -613,47 +593,87 @@ fn write_streaming(
     summary: &mut SummaryBuilder,
     run: &LongRun,
 ) -> Result<()> {
-    let columns = long_columns(point);
+    let head = target.exporter.render(&Document {
+        metadata: metadata.to_vec(),
+        tables: vec![Table {
+            name: "draws".into(),
+            columns: draw_columns(point),
+            rows: Vec::new(),
+        }],
+    })?;
     let count = point.rows.len();
+    let io = |e: std::io::Error| Error::output(&target.path, format!("cannot write: {e}"));
     output::write_atomic_with(&target.path, |file| {
-        let io = |e: std::io::Error| Error::output(&target.path, format!("cannot write: {e}"));
-        draws::tables_in_chunks(
-            params,
-            build,
-            cycle,
-            count,
-            &run.control(),
-            |first, tables| {
-                let pieces: Vec<Result<Vec<u8>>> = tables
-                    .par_iter()
-                    .enumerate()
-                    .map(|(i, table)| {
-                        let draw = first + i + 1;
-                        let rows = long_rows(draw, table);
-                        if draw == 1 {
-                            target.exporter.render(&Document {
-                                metadata: metadata.to_vec(),
-                                tables: vec![Table {
-                                    name: "draws".into(),
-                                    columns: columns.clone(),
-                                    rows,
-                                }],
-                            })
-                        } else {
-                            target
-                                .exporter
-                                .render_more_rows(&rows)
-                                .unwrap_or_else(|| Ok(Vec::new()))
+        file.write_all(&head).map_err(io)?;
+        // Written buffers come back for reuse: fresh megabyte buffers for every chunk would be
+        // returned to the system and faulted in again, which costs more than formatting.
+        let spare: std::sync::Mutex<Vec<Vec<u8>>> = std::sync::Mutex::new(Vec::new());
+        let take_spare = || {
+            spare
+                .lock()
+                .ok()
+                .and_then(|mut s| s.pop())
+                .unwrap_or_default()
+        };
+        std::thread::scope(|scope| {
+            // Two chunks in flight at most: memory stays a few megabytes.
+            let (send, receive) = std::sync::mpsc::sync_channel::<Vec<Vec<u8>>>(2);
+            let spare = &spare;
+            let writer = scope.spawn(move || -> std::io::Result<()> {
+                for pieces in receive {
+                    for mut piece in pieces {
+                        file.write_all(&piece)?;
+                        piece.clear();
+                        if let Ok(mut s) = spare.lock() {
+                            s.push(piece);
                         }
-                    })
-                    .collect();
-                for (table, piece) in tables.iter().zip(pieces) {
-                    summary.add(table);
-                    file.write_all(&piece?).map_err(io)?;
+                    }
                 }
                 Ok(())
-            },
-        )?;
+            });
+            let computed = draws::tables_in_chunks(
+                params,
+                build,
+                cycle,
+                count,
+                &run.control(),
+                |first, tables| {
+                    // One piece per thread: pieces larger than the file's buffer go to the
+                    // file without being copied into it first.
+                    let per_piece = tables.len().div_ceil(rayon::current_num_threads());
+                    let pieces = tables
+                        .par_chunks(per_piece.max(1))
+                        .enumerate()
+                        .map(|(c, group)| {
+                            let mut bytes = take_spare();
+                            bytes.reserve(100 * count * group.len());
+                            for (i, table) in group.iter().enumerate() {
+                                let draw = first + c * per_piece + i + 1;
+                                if let Some(done) =
+                                    target.exporter.append_draw_rows(draw, table, &mut bytes)
+                                {
+                                    done?;
+                                }
+                            }
+                            Ok(bytes)
+                        })
+                        .collect::<Result<Vec<Vec<u8>>>>()?;
+                    for table in &tables {
+                        summary.add(table);
+                    }
+                    // A closed channel means the writer stopped on an error, reported below.
+                    send.send(pieces)
+                        .map_err(|_| Error::output(&target.path, "cannot write"))
+                },
+            );
+            drop(send);
+            let written = writer
+                .join()
+                .map_err(|_| Error::output(&target.path, "the writing thread failed"))?;
+            // The writer's own error explains a failed send, so it comes first.
+            written.map_err(io)?;
+            computed
+        })?;
         match run.interrupted() {
             Some(e) => Err(e),
             None => Ok(()),

@@ -195,7 +195,7 @@ pub fn settings_text(settings: &families::FamilySettings, unit: TimeUnit) -> Str
 }
 
 /// Parses a comma-separated list of durations given to `option`, in the data's `unit`.
-fn parse_durations(option: &str, text: &str, unit: TimeUnit) -> Result<Vec<f64>> {
+pub(crate) fn parse_durations(option: &str, text: &str, unit: TimeUnit) -> Result<Vec<f64>> {
     text.split(',')
         .map(|part| {
             part.parse::<crate::units::Duration>()

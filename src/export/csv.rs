@@ -2,8 +2,10 @@
 //! line each), then the document's first table with a header row. Numbers are written in
 //! their shortest round-trip form, so reading the file back gives the same `f64`s.
 
-use super::{push_number_text, Cell, Document, Exporter};
+use super::{push_number_bytes, push_number_text, Cell, Document, Exporter};
+use crate::discretise::TunnelTable;
 use crate::error::{Error, Result};
+use std::ops::Range;
 
 /// The CSV format (`.csv`).
 pub struct Csv;
@@ -47,6 +49,73 @@ impl Exporter for Csv {
         })();
         Some(result)
     }
+
+    /// The long rows of one draw written straight as bytes: no cells, no CSV writer (numbers
+    /// never need quoting), and a value equal to the one written just above it (`t_start` is
+    /// the previous `t_end`, `surv_start` the previous `surv_end`) copied, not formatted again.
+    fn append_draw_rows(
+        &self,
+        draw: usize,
+        table: &TunnelTable,
+        out: &mut Vec<u8>,
+    ) -> Option<Result<()>> {
+        let mut draw_digits = itoa::Buffer::new();
+        let draw_text = draw_digits.format(draw).as_bytes();
+        let mut tunnel_digits = itoa::Buffer::new();
+        // The last written t_end and surv_end: their bits and where their text sits in `out`.
+        let mut t_end_text: Option<(u64, Range<usize>)> = None;
+        let mut surv_end_text: Option<(u64, Range<usize>)> = None;
+        // The last written p_exit and p_next (constant hazards repeat them row after row).
+        let mut p_exit_text: Option<(u64, Range<usize>)> = None;
+        let mut p_next_text: Option<(u64, Range<usize>)> = None;
+        for (i, row) in table.rows.iter().enumerate() {
+            out.extend_from_slice(draw_text);
+            out.push(b',');
+            out.extend_from_slice(tunnel_digits.format(row.tunnel).as_bytes());
+            out.push(b',');
+            copy_or_write(out, row.t_start, &t_end_text);
+            out.push(b',');
+            t_end_text = Some(write_noting(out, row.t_end));
+            out.push(b',');
+            copy_or_write(out, row.surv_start, &surv_end_text);
+            out.push(b',');
+            surv_end_text = Some(write_noting(out, row.surv_end));
+            out.push(b',');
+            p_exit_text = Some(copy_or_write(out, row.p_exit, &p_exit_text));
+            out.push(b',');
+            p_next_text = Some(copy_or_write(out, row.p_next, &p_next_text));
+            for (_, values) in &table.extra {
+                out.push(b',');
+                if let Some(v) = values.get(i) {
+                    push_number_bytes(out, *v);
+                }
+            }
+            out.push(b'\n');
+        }
+        Some(Ok(()))
+    }
+}
+
+/// Writes `x` and returns its bits with the range its text occupies in `out`.
+fn write_noting(out: &mut Vec<u8>, x: f64) -> (u64, Range<usize>) {
+    let start = out.len();
+    push_number_bytes(out, x);
+    (x.to_bits(), start..out.len())
+}
+
+/// Copies the text written earlier for the same value, or writes `x` afresh; returns the
+/// value's bits and where its text now sits in `out`.
+fn copy_or_write(
+    out: &mut Vec<u8>,
+    x: f64,
+    earlier: &Option<(u64, Range<usize>)>,
+) -> (u64, Range<usize>) {
+    let start = out.len();
+    match earlier {
+        Some((bits, range)) if *bits == x.to_bits() => out.extend_from_within(range.clone()),
+        _ => push_number_bytes(out, x),
+    }
+    (x.to_bits(), start..out.len())
 }
 
 /// Writes rows field by field through one reused buffer (no allocation per cell).
@@ -126,5 +195,75 @@ mod tests {
         let more: Vec<Vec<Cell>> = (2..5).map(row).collect();
         pieces.extend(Csv.render_more_rows(&more).unwrap().unwrap());
         assert_eq!(pieces, Csv.render(&whole).unwrap());
+    }
+
+    /// A table whose rows chain like a real one (or not, when `chained` is false), with
+    /// values of every kind the writer must handle.
+    fn awkward_table(values: &[f64], chained: bool) -> TunnelTable {
+        use crate::discretise::TunnelRow;
+        use crate::units::TimeUnit;
+        let mut rows = Vec::new();
+        let (mut t, mut s) = (0.0, 1.0);
+        for (k, v) in values.iter().enumerate() {
+            let t_end = t + 1.0 / 52.0;
+            let surv_end = s * v.abs().fract();
+            let p_exit = *v;
+            rows.push(TunnelRow {
+                tunnel: k + 1,
+                t_start: if chained { t } else { t + 0.5 },
+                t_end,
+                surv_start: if chained { s } else { *v },
+                surv_end,
+                p_exit,
+                p_next: 1.0 - p_exit,
+            });
+            (t, s) = (t_end, surv_end);
+        }
+        let n = values.len();
+        TunnelTable {
+            time_unit: TimeUnit::Years,
+            cycle: 1.0 / 52.0,
+            rows,
+            extra: vec![
+                (
+                    "p_exit_background".into(),
+                    values.iter().map(|v| v / 3.0).collect(),
+                ),
+                // Shorter than the table: the missing tail is written empty.
+                ("short".into(), vec![f64::NAN; n / 2]),
+            ],
+            curve: "test".into(),
+        }
+    }
+
+    proptest::proptest! {
+        #[test]
+        fn fast_draw_rows_equal_the_general_csv_rows(
+            values in proptest::collection::vec(
+                proptest::prop_oneof![
+                    proptest::num::f64::ANY,
+                    0.0..1.0f64,
+                    proptest::strategy::Just(0.0),
+                    proptest::strategy::Just(1.0),
+                    proptest::strategy::Just(1e-300),
+                ],
+                1..40,
+            ),
+            chained: bool,
+            draw in 1usize..100_000,
+        ) {
+            // Reference: the general path (cells through the `csv` crate writer), which the
+            // read-back tests check against the in-memory table.
+            let table = awkward_table(&values, chained);
+            let general = Csv.render_more_rows(&crate::export::tunnel::draw_rows(draw, &table))
+                .unwrap()
+                .unwrap();
+            let mut fast = b"earlier bytes\n".to_vec();
+            Csv.append_draw_rows(draw, &table, &mut fast).unwrap().unwrap();
+            proptest::prop_assert_eq!(
+                String::from_utf8_lossy(&fast[14..]),
+                String::from_utf8_lossy(&general)
+            );
+        }
     }
 }

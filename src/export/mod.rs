@@ -2,6 +2,7 @@
 //! tables); one file per format turns a document into bytes behind the [`Exporter`] trait
 //! (no file I/O inside exporters). Writing goes through [`crate::output::write_atomic`].
 
+use crate::discretise::TunnelTable;
 use crate::error::Result;
 
 /// One cell of an exported table; numbers stay numbers in every format.
@@ -50,6 +51,20 @@ pub trait Exporter: Send + Sync {
     /// very long tables (uncertainty draws) stream to disk. `None` for formats rendered whole.
     fn render_more_rows(&self, _rows: &[Vec<Cell>]) -> Option<Result<Vec<u8>>> {
         None
+    }
+
+    /// For streaming formats: appends to `out` the rows of one draw in the long layout of
+    /// draws ([`tunnel::draw_rows`]), the same bytes as [`Exporter::render_more_rows`] of
+    /// those rows. A format may override it with a writer that skips the cells (the draws
+    /// benchmark writes 24 million rows). `None` for formats rendered whole.
+    fn append_draw_rows(
+        &self,
+        draw: usize,
+        table: &TunnelTable,
+        out: &mut Vec<u8>,
+    ) -> Option<Result<()>> {
+        let bytes = self.render_more_rows(&tunnel::draw_rows(draw, table))?;
+        Some(bytes.map(|b| out.extend_from_slice(&b)))
     }
 
     /// Whether the format holds several tables (XLSX sheets); single-table formats get only
@@ -124,30 +139,50 @@ pub fn number_text(x: f64) -> String {
     out
 }
 
-/// Appends [`number_text`] of `x` to `out` without allocating; the digits come from `ryu`
+/// Appends [`number_text`] of `x` to `out` without allocating; the digits come from `zmij`
 /// (shortest round-trip, several times faster than `format!`, which matters for millions of
 /// draws), laid out as `format!("{x}")` / `format!("{x:e}")` would lay them out (where two
 /// shortest forms exist, the last digit may differ from `format!`'s; both read back exactly).
 pub fn push_number_text(out: &mut String, x: f64) {
-    use std::fmt::Write as _;
+    with_number_text(x, |text| out.push_str(text));
+}
+
+/// [`push_number_text`] for byte buffers (the streaming CSV writer of draws).
+pub fn push_number_bytes(out: &mut Vec<u8>, x: f64) {
+    with_number_text(x, |text| out.extend_from_slice(text.as_bytes()));
+}
+
+/// Hands the text of [`number_text`] to `emit` (nothing for a non-finite `x`).
+fn with_number_text(x: f64, emit: impl FnOnce(&str)) {
     if !x.is_finite() {
         return;
     }
     let a = x.abs();
-    let mut buffer = ryu::Buffer::new();
+    // Whole numbers (cycle boundaries, counts) skip the shortest-digit search: their digits
+    // are the integer's, as `{x}` writes them. Zero keeps the general path for its sign.
+    // (`as i64` then back is exact for whole numbers below 1e15 and cheaper than `trunc`.)
+    if a < 1e15 && x != 0.0 && (x as i64) as f64 == x {
+        let mut buffer = itoa::Buffer::new();
+        emit(buffer.format(x as i64));
+        return;
+    }
+    let mut buffer = zmij::Buffer::new();
     let digits = buffer.format_finite(x);
     let plain = a == 0.0 || (1e-5..1e16).contains(&a);
-    match (plain, digits.contains('e')) {
-        // ryu writes whole numbers with a trailing ".0"; `{x}` does not.
-        (true, false) => out.push_str(digits.strip_suffix(".0").unwrap_or(digits)),
-        (false, true) => out.push_str(digits),
+    // zmij lays out plainly exactly when the shortest digits lie in [1e-5, 1e16); only values
+    // near those limits can round across them, so only there is the text searched for 'e'.
+    let exponent = !(1e-4..1e15).contains(&a) && digits.as_bytes().contains(&b'e');
+    match (plain, exponent) {
+        // zmij writes whole numbers with a trailing ".0"; `{x}` does not.
+        (true, false) => emit(digits.strip_suffix(".0").unwrap_or(digits)),
+        // `{x:e}` writes no '+' in a positive exponent.
+        (false, true) => match digits.split_once("e+") {
+            Some((mantissa, power)) => emit(&format!("{mantissa}e{power}")),
+            None => emit(digits),
+        },
         // Layouts the two disagree on fall back to the standard library.
-        (true, true) => {
-            let _ = write!(out, "{x}");
-        }
-        (false, false) => {
-            let _ = write!(out, "{x:e}");
-        }
+        (true, true) => emit(&format!("{x}")),
+        (false, false) => emit(&format!("{x:e}")),
     }
 }
 
@@ -174,6 +209,32 @@ mod tests {
         assert_eq!(number_text(1.0), "1");
         assert_eq!(number_text(-0.0), "-0");
         assert_eq!(number_text(f64::NAN), "");
+    }
+
+    #[test]
+    fn whole_numbers_are_written_as_the_standard_library_writes_them() {
+        // Reference: `format!("{x}")` (whole numbers have one shortest form, so the texts must
+        // be identical), on both sides of the 1e15 limit of the integer path and at 2^53.
+        for x in [
+            1.0,
+            -1.0,
+            12.0,
+            480.0,
+            -7.0e6,
+            999_999_999_999_999.0,
+            1e15,
+            -1e15,
+            9_007_199_254_740_992.0,
+        ] {
+            assert_eq!(number_text(x), format!("{x}"), "{x}");
+        }
+        // From 1e16 on, exponent notation (as `{x:e}`).
+        assert_eq!(number_text(1e16), format!("{:e}", 1e16));
+        let mut bytes = Vec::new();
+        push_number_bytes(&mut bytes, 2.5);
+        push_number_bytes(&mut bytes, 3.0);
+        push_number_bytes(&mut bytes, f64::INFINITY);
+        assert_eq!(bytes, b"2.53");
     }
 
     proptest::proptest! {

@@ -70,6 +70,27 @@ pub fn long_table(table: &TunnelTable) -> Table {
     }
 }
 
+/// Column names of the long layout of draws: `draw`, then the tunnel table's long columns.
+pub fn draw_columns(table: &TunnelTable) -> Vec<String> {
+    let mut columns = vec!["draw".to_string()];
+    columns.extend(long_table(table).columns);
+    columns
+}
+
+/// Rows of one draw in the long layout of draws (`draw` is 1-based).
+pub fn draw_rows(draw: usize, table: &TunnelTable) -> Vec<Vec<Cell>> {
+    long_table(table)
+        .rows
+        .into_iter()
+        .map(|row| {
+            let mut cells = Vec::with_capacity(row.len() + 1);
+            cells.push(Cell::Int(draw as i64));
+            cells.extend(row);
+            cells
+        })
+        .collect()
+}
+
 /// Names of the matrix states: `tunnel_1` … `tunnel_N`, then `exit`.
 pub fn state_names(count: usize) -> Vec<String> {
     let mut names: Vec<String> = (1..=count).map(|k| format!("tunnel_{k}")).collect();

@@ -82,6 +82,8 @@ pub struct Spline {
     name: &'static str,
     /// All knots in ln t (boundary first and last), once placed.
     knots: Option<Vec<f64>>,
+    /// The same knots as the times they were given as (recorded exactly in the fit file).
+    knot_times: Vec<f64>,
     /// Internal knots in ln t from `--knots`, the boundary knots still to come from the data.
     fixed_internal: Option<Vec<f64>>,
 }
@@ -129,6 +131,7 @@ impl Spline {
             internal,
             name,
             knots: None,
+            knot_times: Vec::new(),
             fixed_internal: None,
         }
     }
@@ -152,12 +155,14 @@ impl Spline {
         };
         let (scale, internal, name) = (self.scale, self.internal, self.name);
         let knots: Vec<f64> = times.iter().map(|t| t.ln()).collect();
+        let knot_times = times.to_vec();
         Ok(intern(name, Some(settings), || {
             Box::new(Spline {
                 scale,
                 internal,
                 name,
                 knots: Some(knots),
+                knot_times,
                 fixed_internal: None,
             })
         }))
@@ -294,7 +299,7 @@ impl Family for Spline {
         q
     }
     fn rescaled_family(&self, factor: f64) -> Option<&'static dyn Family> {
-        let times: Vec<f64> = self.knots().iter().map(|k| k.exp() * factor).collect();
+        let times: Vec<f64> = self.knot_times.iter().map(|t| t * factor).collect();
         self.with_knot_times(&times).ok()
     }
     fn proportional_hazards(&self) -> bool {
@@ -358,9 +363,9 @@ impl Family for Spline {
         (ll, g[..theta.len()].to_vec())
     }
     fn settings(&self) -> Option<FamilySettings> {
-        self.knots.as_ref().map(|k| FamilySettings {
+        self.knots.as_ref().map(|_| FamilySettings {
             scale: Some(self.scale.word().into()),
-            knots: Some(k.iter().map(|x| x.exp()).collect()),
+            knots: Some(self.knot_times.clone()),
             cuts: None,
         })
     }
@@ -454,6 +459,7 @@ impl Family for Spline {
                 internal,
                 name,
                 knots: None,
+                knot_times: Vec::new(),
                 fixed_internal: Some(fixed),
             })
         }))
