@@ -15,11 +15,17 @@ use serde::Deserialize;
 use std::path::{Path, PathBuf};
 use toml::Spanned;
 
-/// `[data]`: where the time-to-event records are and how to read them.
+/// `[data]`: where the time-to-event records are and how to read them: a patient-level
+/// `file`, or a digitised Kaplan–Meier `curve` (with `at_risk`, `events`, `patients`) that is
+/// rebuilt into patient-level data first.
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
 struct RawData {
-    file: Spanned<String>,
+    file: Option<Spanned<String>>,
+    curve: Option<Spanned<String>>,
+    at_risk: Option<Spanned<String>>,
+    events: Option<Spanned<toml::Value>>,
+    patients: Option<Spanned<toml::Value>>,
     time_column: Option<String>,
     event_column: Option<String>,
     arm_column: Option<String>,
@@ -80,7 +86,7 @@ struct RawDraws {
 #[serde(deny_unknown_fields)]
 struct RawAnalysis {
     title: Option<String>,
-    data: RawData,
+    data: Spanned<RawData>,
     fit: Option<RawFit>,
     tunnels: RawTunnels,
     output: Option<RawOutput>,
@@ -99,6 +105,60 @@ pub struct DrawSettings {
 
 /// Largest `[draws] count` accepted (the run stays quick and the summary stable).
 pub const MAX_DRAWS: usize = 100_000;
+
+/// Name under which data rebuilt from a digitised curve are written and fitted.
+pub const REBUILT_FILE: &str = "rebuilt.csv";
+
+/// A file named in the analysis file: as written, resolved, and where it is written.
+#[derive(Debug, Clone, PartialEq)]
+pub struct NamedFile {
+    /// As written in the analysis file (names it in outputs, whatever the working folder).
+    pub name: String,
+    /// Resolved against the analysis file's folder.
+    pub path: PathBuf,
+    /// Where it is written in the analysis file.
+    pub place: Place,
+}
+
+/// `[data] curve = ...`: the analysis starts from a digitised Kaplan–Meier figure, rebuilt
+/// into patient-level data by the same code as `tunnelcast rebuild`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CurveSource {
+    /// Digitised points (`time,survival`).
+    pub curve: NamedFile,
+    /// Published numbers at risk (`time,at_risk`), if given.
+    pub at_risk: Option<NamedFile>,
+    /// Number of patients without a risk table: `N` or `ARM=N` items, as `--patients` takes them.
+    pub patients: Vec<String>,
+    /// Where `[data] patients` is written.
+    pub patients_place: Place,
+    /// Published total events: `N` or `ARM=N` items, as `--events` takes them.
+    pub events: Vec<String>,
+    /// Where `[data] events` is written.
+    pub events_place: Place,
+}
+
+/// `[data] events` or `patients`: a whole number, or a table of whole numbers by arm, as the
+/// `N` / `ARM=N` items of the `rebuild` options.
+fn counts(key: &str, value: &toml::Value) -> std::result::Result<Vec<String>, String> {
+    let whole = |v: &toml::Value| match v {
+        toml::Value::Integer(n) if *n >= 0 => Ok(n.to_string()),
+        other => Err(format!(
+            "[data] {key}: {other} is not a whole number (give N, or {{ ARM = N, ... }} by arm)"
+        )),
+    };
+    match value {
+        toml::Value::Table(t) => {
+            if t.is_empty() {
+                return Err(format!("[data] {key} is empty"));
+            }
+            t.iter()
+                .map(|(arm, v)| Ok(format!("{arm}={}", whole(v)?)))
+                .collect()
+        }
+        other => Ok(vec![whole(other)?]),
+    }
+}
 
 /// Which fitted family is carried forward to the tunnel table.
 #[derive(Clone, Copy)]
@@ -158,12 +218,15 @@ pub struct Analysis {
     pub text: String,
     /// Optional title for the report.
     pub title: Option<String>,
-    /// Data file as written in the analysis file (names it in every output, whatever the working folder).
+    /// Data file as written in the analysis file (names it in every output, whatever the
+    /// working folder); [`REBUILT_FILE`] when the data are rebuilt from a digitised curve.
     pub data_name: String,
-    /// Data file resolved against the analysis file's folder.
+    /// Data file resolved against the analysis file's folder (the curve file with `curve`).
     pub data_path: PathBuf,
-    /// Where `[data] file` is written, for errors about the file itself.
+    /// Where `[data] file` (or `curve`) is written, for errors about the file itself.
     pub data_place: Place,
+    /// The digitised curve the data are rebuilt from, when `[data] curve` is given.
+    pub rebuild: Option<CurveSource>,
     /// Time column (default `time`).
     pub time_column: String,
     /// Event column (default `event`).
@@ -319,12 +382,101 @@ impl Analysis {
         let at = |span: std::ops::Range<usize>| place_of(text, span.start);
         let bad = |span: std::ops::Range<usize>, message: String| error_at(file, at(span), message);
 
-        let data_name = raw.data.file.get_ref().clone();
-        if data_name.trim().is_empty() {
-            return Err(bad(raw.data.file.span(), "[data] file is empty".into()));
-        }
-        let data_path = base.join(&data_name);
-        let time_unit = match &raw.data.time_unit {
+        let data_span = raw.data.span();
+        let data = raw.data.into_inner();
+        let named = |key: &str, value: &Spanned<String>| -> Result<NamedFile> {
+            if value.get_ref().trim().is_empty() {
+                return Err(bad(value.span(), format!("[data] {key} is empty")));
+            }
+            Ok(NamedFile {
+                name: value.get_ref().clone(),
+                path: base.join(value.get_ref()),
+                place: at(value.span()),
+            })
+        };
+        let (data_name, data_path, data_place, rebuild) = match (&data.file, &data.curve) {
+            (Some(_), Some(curve)) => {
+                return Err(bad(
+                    curve.span(),
+                    "[data] file and curve are both given: use file = \"...\" for patient-level data or curve = \"...\" for a digitised Kaplan–Meier curve, not both".into(),
+                ))
+            }
+            (None, None) => {
+                return Err(bad(
+                    data_span,
+                    "[data] needs file = \"...\" (patient-level data) or curve = \"...\" (a digitised Kaplan–Meier curve)".into(),
+                ))
+            }
+            (Some(file), None) => {
+                let only_with_curve = [
+                    ("at_risk", data.at_risk.as_ref().map(Spanned::span)),
+                    ("events", data.events.as_ref().map(Spanned::span)),
+                    ("patients", data.patients.as_ref().map(Spanned::span)),
+                ];
+                if let Some((key, Some(span))) = only_with_curve.into_iter().find(|(_, s)| s.is_some()) {
+                    return Err(bad(
+                        span,
+                        format!("[data] {key} belongs to a digitised curve (curve = \"...\"), not to a patient-level file"),
+                    ));
+                }
+                let file = named("file", file)?;
+                (file.name, file.path, file.place, None)
+            }
+            (None, Some(curve)) => {
+                for (key, value) in [
+                    ("time_column", data.time_column.is_some()),
+                    ("event_column", data.event_column.is_some()),
+                ] {
+                    if value {
+                        return Err(bad(
+                            curve.span(),
+                            format!("[data] {key} applies to a patient-level file; data rebuilt from a curve have the columns time and event"),
+                        ));
+                    }
+                }
+                let curve = named("curve", curve)?;
+                let at_risk = data.at_risk.as_ref().map(|r| named("at_risk", r)).transpose()?;
+                let list = |key: &str, value: &Option<Spanned<toml::Value>>| -> Result<(Vec<String>, Place)> {
+                    match value {
+                        None => Ok((Vec::new(), curve.place)),
+                        Some(v) => Ok((
+                            counts(key, v.get_ref()).map_err(|m| bad(v.span(), m))?,
+                            at(v.span()),
+                        )),
+                    }
+                };
+                let (events, events_place) = list("events", &data.events)?;
+                let (patients, patients_place) = list("patients", &data.patients)?;
+                if at_risk.is_some() && !patients.is_empty() {
+                    return Err(error_at(
+                        file,
+                        patients_place,
+                        "[data] patients is for a curve without a risk table; with at_risk the table gives the number of patients",
+                    ));
+                }
+                if at_risk.is_none() && patients.is_empty() {
+                    return Err(error_at(
+                        file,
+                        curve.place,
+                        "[data] curve needs at_risk = \"...\" (the published numbers at risk) or, without one, patients = N",
+                    ));
+                }
+                (
+                    REBUILT_FILE.to_string(),
+                    curve.path.clone(),
+                    curve.place,
+                    Some(CurveSource {
+                        curve,
+                        at_risk,
+                        patients,
+                        patients_place,
+                        events,
+                        events_place,
+                    }),
+                )
+            }
+        };
+        let time_unit = match &data.time_unit {
             Some(u) => u
                 .get_ref()
                 .parse()
@@ -381,7 +533,7 @@ impl Analysis {
             Some(a) => (Some(a.get_ref().clone()), at(a.span())),
             None => (None, choose_place),
         };
-        if arm.is_some() && raw.data.arm_column.is_none() {
+        if arm.is_some() && data.arm_column.is_none() {
             return Err(error_at(
                 file,
                 arm_place,
@@ -516,12 +668,13 @@ impl Analysis {
             file: file.to_string(),
             text: text.to_string(),
             title: raw.title,
-            data_place: at(raw.data.file.span()),
+            data_place,
             data_name,
             data_path,
-            time_column: raw.data.time_column.unwrap_or_else(|| "time".into()),
-            event_column: raw.data.event_column.unwrap_or_else(|| "event".into()),
-            arm_column: raw.data.arm_column,
+            rebuild,
+            time_column: data.time_column.unwrap_or_else(|| "time".into()),
+            event_column: data.event_column.unwrap_or_else(|| "event".into()),
+            arm_column: data.arm_column,
             time_unit,
             families,
             choose,

@@ -186,8 +186,14 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
     // Data summary.
     h.push_str("<section id=\"data\">\n<h2>Data</h2>\n");
     h.push_str(&format!(
-        "<p>{} subjects, {} events; time unit: {unit}. Kaplan–Meier median with a 95% interval from the log-log band.</p>\n",
-        fits.data.n, fits.data.events
+        "<p>{} subjects, {} events{}; time unit: {unit}. Kaplan–Meier median with a 95% interval from the log-log band.</p>\n",
+        fits.data.n,
+        fits.data.events,
+        if result.rebuild.is_some() {
+            " (rebuilt from a digitised Kaplan–Meier figure, not the trial's own data: see Rebuilt data below)"
+        } else {
+            ""
+        }
     ));
     let show = |x: Option<f64>| x.map(|v| sig(v, 4)).unwrap_or_else(|| "not reached".into());
     let rows: Vec<Vec<String>> = fits
@@ -225,6 +231,10 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
         &[false, true, true, true, true, true, true, true],
     ));
     h.push_str("</section>\n");
+
+    if let Some(section) = rebuild_section(result, figures) {
+        h.push_str(&section);
+    }
 
     // Fit comparison.
     h.push_str("<section id=\"fits\">\n<h2>Fit comparison</h2>\n");
@@ -471,7 +481,16 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
     // Reproducibility.
     h.push_str("<section id=\"reproducibility\">\n<h2>Reproducibility</h2>\n<dl>\n");
     let analysis_sha = crate::input::sha256_hex(a.text.as_bytes());
-    for (k, v) in [
+    let mut rebuilt_from = Vec::new();
+    if let (Some(outcome), Some(source)) = (&result.rebuild, &a.rebuild) {
+        rebuilt_from.push(("digitised curve", source.curve.name.clone()));
+        rebuilt_from.push(("digitised curve SHA-256", outcome.curve_sha256.clone()));
+        if let (Some(r), Some(sha)) = (&source.at_risk, &outcome.at_risk_sha256) {
+            rebuilt_from.push(("risk table", r.name.clone()));
+            rebuilt_from.push(("risk table SHA-256", sha.clone()));
+        }
+    }
+    for (k, v) in rebuilt_from.into_iter().chain([
         ("tool version", format!("tunnelcast {}", crate::VERSION)),
         ("command", format!("tunnelcast run {}", file_name(&a.file))),
         ("data file", a.data_name.clone()),
@@ -490,7 +509,7 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
             },
         ),
         ("date", date.to_string()),
-    ] {
+    ]) {
         h.push_str(&format!(
             "<dt>{}</dt><dd><code>{}</code></dd>\n",
             escape(k),
@@ -504,6 +523,60 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
     ));
     h.push_str("</section>\n</body>\n</html>\n");
     Ok(h)
+}
+
+/// The section on data rebuilt from a digitised curve: what from what, the cleaning, the
+/// quality figures and the overlay plot; `None` when the analysis started from patient data.
+fn rebuild_section(result: &RunResult, figures: &[Figure]) -> Option<String> {
+    let (outcome, source) = (result.rebuild.as_ref()?, result.analysis.rebuild.as_ref()?);
+    let mut h = String::from("<section id=\"rebuild\">\n<h2>Rebuilt data</h2>\n");
+    h.push_str(&format!(
+        "<p class=\"caution\">{}</p>\n",
+        escape(crate::cmd::run::REBUILD_CAUTION)
+    ));
+    let mut from = format!(
+        "the digitised Kaplan–Meier points <code>{}</code>",
+        escape(&source.curve.name)
+    );
+    match &source.at_risk {
+        Some(r) => from.push_str(&format!(
+            " and the published numbers at risk <code>{}</code>",
+            escape(&r.name)
+        )),
+        None => from.push_str(&format!(
+            " without a risk table (number of patients given: {})",
+            escape(&source.patients.join(", "))
+        )),
+    }
+    if !source.events.is_empty() {
+        from.push_str(&format!(
+            ", with the published total events ({})",
+            escape(&source.events.join(", "))
+        ));
+    }
+    h.push_str(&format!(
+        "<p>The {} records fitted above were rebuilt from {from} by the method of Guyot, Ades, Ouwens and Welton (2012), with the same code as <code>tunnelcast rebuild</code>; they are written to <span class=\"file\">{}</span>, the rebuild's own report to <span class=\"file\">rebuild.txt</span>, and the tables below to <span class=\"file\">rebuild_*</span>. Survival compared at each digitised point with the closer side of a rebuilt step.</p>\n",
+        outcome.arms.iter().map(|a| a.quality.patients).sum::<u64>(),
+        crate::analysis::REBUILT_FILE
+    ));
+    if !outcome.with_risk_table {
+        h.push_str("<p class=\"warning\">Without a risk table the censoring pattern is assumed: numbers at risk, events and hazards are much less reliable than the curve itself (see docs/rebuild.md).</p>\n");
+    }
+    let documents = result.rebuild_documents();
+    for (stem, doc) in &documents {
+        if *stem == "rebuild_intervals" || doc.tables[0].rows.is_empty() {
+            continue;
+        }
+        let id = format!("table-{}", stem.replace('_', "-"));
+        h.push_str(&html_table(&id, &doc.tables[0], |_| true));
+    }
+    h.push_str(&figure(
+        figures,
+        "rebuild.svg",
+        "Digitised points (markers) over the Kaplan–Meier curve of the rebuilt data (step line), per arm; under the plot, the published numbers at risk above the rebuilt ones.",
+    ));
+    h.push_str("</section>\n");
+    Some(h)
 }
 
 /// Counts shown in the report's truncation table: 1–12, about 25 spread out, the marked ones and the last.

@@ -244,3 +244,84 @@ fn an_existing_output_is_kept_without_force() {
         .unwrap();
     assert_eq!(rows.len(), 100);
 }
+
+#[test]
+fn the_overlay_plot_is_written_as_svg_or_png() {
+    let dir = tempfile::tempdir().unwrap();
+    let rebuild = |plot: &str| {
+        tunnelcast()
+            .current_dir(dir.path())
+            .args(["rebuild", "--curve"])
+            .arg(repo("data/demo_digitised.csv"))
+            .arg("--at-risk")
+            .arg(repo("data/demo_at_risk.csv"))
+            .args(["--arm-col", "arm", "--out", &format!("{plot}.csv")])
+            .args(["--plot", plot])
+            .assert()
+            .success();
+    };
+    rebuild("overlay.svg");
+    let svg = std::fs::read_to_string(dir.path().join("overlay.svg")).unwrap();
+    let doc = roxmltree::Document::parse(&svg).expect("well-formed XML");
+    assert_eq!(doc.root_element().tag_name().name(), "svg");
+    // One step line per arm: a polyline of many points that moves only across or down.
+    let steps: Vec<Vec<(f64, f64)>> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("polyline"))
+        .map(|n| {
+            n.attribute("points")
+                .unwrap_or("")
+                .split_whitespace()
+                .map(|p| {
+                    let (x, y) = p.split_once(',').unwrap();
+                    (x.parse().unwrap(), y.parse().unwrap())
+                })
+                .collect::<Vec<(f64, f64)>>()
+        })
+        .filter(|p| p.len() > 20)
+        .collect();
+    assert_eq!(steps.len(), 2, "two arms, two step lines");
+    for path in &steps {
+        for w in path.windows(2) {
+            assert!(w[0].0 == w[1].0 || w[0].1 == w[1].1, "{w:?}");
+            assert!(w[1].1 >= w[0].1, "survival never rises");
+        }
+    }
+    // One hollow marker per digitised row (the file has a row at time 0 for each arm, so
+    // cleaning adds no point).
+    let rows = std::fs::read_to_string(repo("data/demo_digitised.csv"))
+        .unwrap()
+        .lines()
+        .skip(1)
+        .filter(|l| !l.trim().is_empty())
+        .count();
+    let markers = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("circle") && n.attribute("fill") == Some("none"))
+        .count();
+    assert_eq!(markers, rows);
+
+    rebuild("overlay.png");
+    let bytes = std::fs::read(dir.path().join("overlay.png")).unwrap();
+    assert_eq!(&bytes[..8], b"\x89PNG\r\n\x1a\n", "PNG signature");
+    let reader = png::Decoder::new(std::io::Cursor::new(bytes))
+        .read_info()
+        .unwrap();
+    // 960 wide; 535 for the plot plus room for four rows of numbers at risk and a heading.
+    assert_eq!(
+        (reader.info().width, reader.info().height),
+        (960, 535 + 14 + 5 * 18)
+    );
+}
+
+#[test]
+fn a_plot_file_of_another_format_is_refused_before_anything_is_written() {
+    refused(CURVE, Some(RISK), &["--plot", "out.pdf"], "--plot out.pdf");
+    refused(CURVE, Some(RISK), &["--plot", "out"], "no extension");
+    refused(
+        CURVE,
+        Some(RISK),
+        &["--plot", "out.sgv"],
+        "did you mean \".svg\"",
+    );
+}

@@ -233,3 +233,111 @@ fn the_curve_distance_sees_a_moved_event_beyond_the_time_error() {
     assert!((sup_distance(&a, &b, 0.5) - 0.25).abs() < 1e-12);
     assert_eq!(sup_distance(&a, &b, 1.0), 0.0);
 }
+
+/// Largest absolute difference between two Kaplan–Meier step functions over all times, with no
+/// time shift allowed: both are right-continuous and constant between jumps, so the supremum
+/// is reached at a jump time t, either at t itself or just before it (both left limits).
+fn plain_sup(a: &KaplanMeier, b: &KaplanMeier) -> f64 {
+    let left_limit = |km: &KaplanMeier, t: f64| {
+        let idx = km.steps.partition_point(|s| s.time < t);
+        if idx == 0 {
+            1.0
+        } else {
+            km.steps[idx - 1].survival
+        }
+    };
+    a.steps
+        .iter()
+        .chain(&b.steps)
+        .map(|s| s.time)
+        .map(|t| {
+            let at = (a.survival_at(t) - b.survival_at(t)).abs();
+            let before = (left_limit(a, t) - left_limit(b, t)).abs();
+            at.max(before)
+        })
+        .fold(0.0, f64::max)
+}
+
+/// Digitising-like points of a curve with many small steps, as CSV text: the curve read at
+/// every `spacing` units (the way a smooth-looking curve is clicked along, not step by step),
+/// survival with a uniform error of ±`surv_noise`, time with ±`time_noise`, and the end of
+/// follow-up clicked last.
+fn digitise_along(
+    records: &[Record],
+    seed: u64,
+    spacing: f64,
+    surv_noise: f64,
+    time_noise: f64,
+) -> String {
+    let mut rng = Rng::new(seed);
+    let km = KaplanMeier::from_records(records);
+    let end = records.last().unwrap().time;
+    let mut text = String::from("time,survival\n0,1\n");
+    let mut k = 1;
+    while k as f64 * spacing < end {
+        let t = k as f64 * spacing + time_noise * (2.0 * rng.uniform() - 1.0);
+        let s = km.survival_at(t) + surv_noise * (2.0 * rng.uniform() - 1.0);
+        text.push_str(&format!("{t},{s}\n"));
+        k += 1;
+    }
+    text.push_str(&format!("{end},{}\n", km.survival_at(end)));
+    text
+}
+
+#[test]
+fn the_plain_curve_distance_sees_any_shift() {
+    // Hand-made: four patients, events at 1 and 2 (S: 0.75 then 0.5), against the same with
+    // the second event at 2.01: for t in [2, 2.01) the curves differ by the full step, 0.25.
+    let make = |t2: f64| {
+        KaplanMeier::from_records(&sorted(vec![
+            Record {
+                time: 1.0,
+                event: true,
+            },
+            Record {
+                time: t2,
+                event: true,
+            },
+            Record {
+                time: 5.0,
+                event: false,
+            },
+            Record {
+                time: 5.0,
+                event: false,
+            },
+        ]))
+    };
+    assert_eq!(plain_sup(&make(2.0), &make(2.0)), 0.0);
+    assert!((plain_sup(&make(2.0), &make(2.01)) - 0.25).abs() < 1e-12);
+}
+
+#[test]
+fn a_large_simulated_trial_is_rebuilt_within_0_02_everywhere_with_no_time_shift() {
+    // The complementary check to the time-shift allowance above: with 3,000 patients the
+    // steps of the true Kaplan–Meier curve are a fraction of 0.02 high, so a rebuild
+    // that follows the figure must stay within the 0.02 of the true curve at every time
+    // without any shift. The curve is read every 0.1 units (about 300 points) with ±0.003 in
+    // survival and ±0.02 in time; risk table every 3 units and the total events given.
+    for seed in [31u64, 32] {
+        let truth = weibull_trial(seed, 3000, 1.3, 12.0, 12.0, 30.0, 0.01);
+        let km_true = KaplanMeier::from_records(&truth);
+        let largest_step = km_true
+            .steps
+            .windows(2)
+            .map(|w| w[0].survival - w[1].survival)
+            .fold(0.0, f64::max);
+        // Steps grow in the tail, where few remain at risk, but stay a fraction of 0.02.
+        assert!(largest_step < 0.005, "steps of {largest_step}");
+        let risk = risk_table(&truth, 3.0);
+        let points = clean(&digitise_along(&truth, seed + 100, 0.1, 0.003, 0.02));
+        let rebuilt = rebuild(&points, &risk, Some(total_events(&truth))).unwrap();
+        let km_rebuilt = KaplanMeier::from_records(&rebuilt.records);
+        let gap = plain_sup(&km_true, &km_rebuilt);
+        eprintln!(
+            "seed {seed}: {} points, plain maximum difference {gap:.4}",
+            points.len()
+        );
+        assert!(gap <= 0.02, "seed {seed}: plain KM gap {gap}");
+    }
+}

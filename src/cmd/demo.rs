@@ -56,6 +56,7 @@ pub fn run(args: DemoArgs) -> Result<()> {
         analysis,
         DEMO_TRIAL.as_bytes(),
         Some(DEMO_LIFETABLE.as_bytes()),
+        None,
         &args.out,
     )?;
     output::print(&format!(

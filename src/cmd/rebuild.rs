@@ -4,11 +4,14 @@
 
 use crate::error::{Error, Result};
 use crate::format::{fixed, sig, table_aligned};
+use crate::km::KaplanMeier;
 use crate::output;
+use crate::plot::{self, RebuildPlot, RebuildPlotArm};
 use crate::rebuild::{
-    self, assess, read_curves, read_risk_tables, CensoringRule, DigitisedCurve, Quality, Rebuilt,
-    RiskRow, TOLERANCE,
+    self, assess, read_curves, read_risk_tables, CensoringRule, Cleaning, DigitisedCurve,
+    IntervalSummary, Quality, Rebuilt, RiskRow, TOLERANCE,
 };
+use crate::units::TimeUnit;
 use clap::Args;
 use std::path::{Path, PathBuf};
 
@@ -16,7 +19,7 @@ use std::path::{Path, PathBuf};
 #[derive(Debug, Args)]
 #[command(after_help = concat!(
     "Example:\n  tunnelcast rebuild --curve data/demo_digitised.csv --at-risk data/demo_at_risk.csv \\\n",
-    "      --arm-col arm --events veltranib=137,standard=155 --out rebuilt.csv\n  tunnelcast fit rebuilt.csv --arm-col arm --time-unit months\n\n",
+    "      --arm-col arm --events veltranib=137,standard=155 --out rebuilt.csv --plot rebuilt.svg\n  tunnelcast fit rebuilt.csv --arm-col arm --time-unit months\n\n",
     "Rebuilt data are an approximation: the order of events and censorings within each interval is \
 assumed, not known. Without a risk table the censoring pattern is guessed and the rebuilt data \
 are much less reliable.\n\n",
@@ -44,6 +47,9 @@ pub struct RebuildArgs {
     /// Rebuilt patient-level data (CSV: time,event and the arm column).
     #[arg(long, value_name = "IPD.csv")]
     pub out: PathBuf,
+    /// Overlay plot of the digitised points over the rebuilt Kaplan–Meier curve (`.svg` or `.png`).
+    #[arg(long, value_name = "FILE")]
+    pub plot: Option<PathBuf>,
     /// Column naming the arm in the points and risk-table files; each arm is rebuilt separately.
     #[arg(long, value_name = "NAME")]
     pub arm_col: Option<String>,
@@ -119,21 +125,21 @@ fn for_arm(arm: &Option<String>) -> String {
 
 /// Checks a published total against what the curve allows: at most n·(1 − S at the last point)
 /// (equality without censoring; censoring only lowers it), widened by the digitising tolerance.
-fn check_events(total: u64, patients: u64, curve: &DigitisedCurve) -> Result<()> {
+fn check_events(option: &str, total: u64, patients: u64, curve: &DigitisedCurve) -> Result<()> {
     let last = curve.points.last().map(|p| p.survival).unwrap_or(1.0);
     let most = (patients as f64 * (1.0 - last + TOLERANCE))
         .ceil()
         .min(patients as f64) as u64;
     if total > most {
         return Err(Error::Usage(format!(
-            "--events {total}{} is more than the curve allows: {patients} patients falling to survival {} can have at most about {most} events",
+            "{option} {total}{} is more than the curve allows: {patients} patients falling to survival {} can have at most about {most} events",
             for_arm(&curve.arm),
             fixed(last, 3)
         )));
     }
     if total == 0 && last < 1.0 - TOLERANCE {
         return Err(Error::Usage(format!(
-            "--events 0{} contradicts the curve, which falls to {}",
+            "{option} 0{} contradicts the curve, which falls to {}",
             for_arm(&curve.arm),
             fixed(last, 3)
         )));
@@ -149,15 +155,8 @@ fn passes(n: usize) -> String {
     }
 }
 
-/// Renders the report of one arm.
-fn render_arm(curve: &DigitisedCurve, rebuilt: &Rebuilt, quality: &Quality) -> String {
-    let mut out = String::new();
-    if let Some(arm) = &curve.arm {
-        out.push_str(&format!("\narm {arm}\n"));
-    } else {
-        out.push('\n');
-    }
-    let c = &curve.cleaning;
+/// The cleaning actions applied to a digitised curve, in words ("none needed" when none).
+pub fn cleaning_text(c: &Cleaning) -> String {
     let mut cleaned = Vec::new();
     if c.reordered {
         cleaned.push("rows sorted by time".to_string());
@@ -181,14 +180,39 @@ fn render_arm(curve: &DigitisedCurve, rebuilt: &Rebuilt, quality: &Quality) -> S
             sig(c.monotone_largest, 2)
         ));
     }
+    if cleaned.is_empty() {
+        "none needed".to_string()
+    } else {
+        cleaned.join("; ")
+    }
+}
+
+/// How an interval's censoring count was settled, in words.
+pub fn rule_text(iv: &IntervalSummary) -> String {
+    match iv.rule {
+        CensoringRule::MatchRiskTable => format!("matched table ({})", passes(iv.passes)),
+        CensoringRule::MatchTotalEvents => {
+            format!("matched total events ({})", passes(iv.passes))
+        }
+        CensoringRule::EarlierRate(r) => {
+            format!("earlier censoring rate {} per unit time", sig(r, 3))
+        }
+        CensoringRule::NoneBeforeEnd => "no censoring assumed".into(),
+    }
+}
+
+/// Renders the report of one arm.
+fn render_arm(curve: &DigitisedCurve, rebuilt: &Rebuilt, quality: &Quality) -> String {
+    let mut out = String::new();
+    if let Some(arm) = &curve.arm {
+        out.push_str(&format!("\narm {arm}\n"));
+    } else {
+        out.push('\n');
+    }
     out.push_str(&format!(
         "digitised points: {} row(s); cleaning: {}\n",
-        c.rows,
-        if cleaned.is_empty() {
-            "none needed".to_string()
-        } else {
-            cleaned.join("; ")
-        }
+        curve.cleaning.rows,
+        cleaning_text(&curve.cleaning)
     ));
     out.push_str(&format!(
         "rebuilt: {} patients, {} events{}, {} censored ({} still at risk at the last time {})\n",
@@ -222,18 +246,7 @@ fn render_arm(curve: &DigitisedCurve, rebuilt: &Rebuilt, quality: &Quality) -> S
                     .map(|p| p.to_string())
                     .unwrap_or_else(|| "–".into()),
                 iv.rebuilt_end.to_string(),
-                match iv.rule {
-                    CensoringRule::MatchRiskTable => {
-                        format!("matched table ({})", passes(iv.passes))
-                    }
-                    CensoringRule::MatchTotalEvents => {
-                        format!("matched total events ({})", passes(iv.passes))
-                    }
-                    CensoringRule::EarlierRate(r) => {
-                        format!("earlier censoring rate {} per unit time", sig(r, 3))
-                    }
-                    CensoringRule::NoneBeforeEnd => "no censoring assumed".into(),
-                },
+                rule_text(iv),
             ]
         })
         .collect();
@@ -282,7 +295,7 @@ fn render_arm(curve: &DigitisedCurve, rebuilt: &Rebuilt, quality: &Quality) -> S
 }
 
 /// Renders the rebuilt records as CSV (`time,event` and the arm column).
-fn render_csv(arm_col: Option<&str>, arms: &[(Option<String>, Rebuilt)]) -> Result<Vec<u8>> {
+fn render_csv(arm_col: Option<&str>, arms: &[RebuiltArm]) -> Result<Vec<u8>> {
     let mut writer = csv::Writer::from_writer(Vec::new());
     let fail = |e: csv::Error| Error::Computation(format!("cannot format the output: {e}"));
     let mut header = vec!["time", "event"];
@@ -290,7 +303,8 @@ fn render_csv(arm_col: Option<&str>, arms: &[(Option<String>, Rebuilt)]) -> Resu
         header.push(name);
     }
     writer.write_record(&header).map_err(fail)?;
-    for (arm, rebuilt) in arms {
+    for RebuiltArm { curve, rebuilt, .. } in arms {
+        let arm = &curve.arm;
         for r in &rebuilt.records {
             let time = format!("{}", r.time);
             let event = if r.event { "1" } else { "0" };
@@ -306,28 +320,101 @@ fn render_csv(arm_col: Option<&str>, arms: &[(Option<String>, Rebuilt)]) -> Resu
         .map_err(|e| Error::Computation(format!("cannot format the output: {e}")))
 }
 
-/// Runs `rebuild`.
-pub fn run(args: RebuildArgs) -> Result<()> {
-    output::check_writable(&args.out, args.force)?;
-    if args.at_risk.is_none() && args.patients.is_empty() {
-        return Err(Error::Usage(
-            "give --at-risk RISK.csv (the published numbers at risk) or, without one, --patients N"
-                .into(),
-        ));
+/// How the inputs of a rebuild are named in messages: the command's options, or the keys of
+/// an analysis file's `[data]` table.
+#[derive(Debug, Clone, Copy)]
+pub struct InputNames {
+    /// Name of the risk table (`--at-risk`).
+    pub at_risk: &'static str,
+    /// Name of the number of patients (`--patients`).
+    pub patients: &'static str,
+    /// Name of the total events (`--events`).
+    pub events: &'static str,
+}
+
+impl InputNames {
+    /// The options of the `rebuild` command.
+    pub const OPTIONS: InputNames = InputNames {
+        at_risk: "--at-risk",
+        patients: "--patients",
+        events: "--events",
+    };
+}
+
+/// The inputs of a rebuild, the files already read: the one description shared by the
+/// `rebuild` command and `run` analysis files that start from a digitised curve.
+#[derive(Debug, Clone, Copy)]
+pub struct RebuildInputs<'a> {
+    /// Name of the digitised points file (as it should appear in messages).
+    pub curve_name: &'a str,
+    /// Its bytes.
+    pub curve_bytes: &'a [u8],
+    /// Name and bytes of the risk table, if one is given.
+    pub at_risk: Option<(&'a str, &'a [u8])>,
+    /// Number of patients without a risk table: `N` or `ARM=N` items.
+    pub patients: &'a [String],
+    /// Published total events: `N` or `ARM=N` items.
+    pub events: &'a [String],
+    /// Arm column of both files.
+    pub arm_col: Option<&'a str>,
+    /// How the inputs are named in messages.
+    pub names: InputNames,
+}
+
+/// One rebuilt arm with what went into it and how well it reproduces the figure.
+#[derive(Debug, Clone)]
+pub struct RebuiltArm {
+    /// The cleaned digitised curve.
+    pub curve: DigitisedCurve,
+    /// The risk table used (one row at time 0 when only the number of patients was given).
+    pub risk: Vec<RiskRow>,
+    /// Published total events, if given.
+    pub events_given: Option<u64>,
+    /// The rebuilt records.
+    pub rebuilt: Rebuilt,
+    /// Fit-quality figures.
+    pub quality: Quality,
+}
+
+/// A finished rebuild: every arm, the printed report and the rebuilt CSV bytes.
+#[derive(Debug, Clone)]
+pub struct RebuildOutcome {
+    /// Arms in the order of the digitised points file.
+    pub arms: Vec<RebuiltArm>,
+    /// Whether a risk table was given.
+    pub with_risk_table: bool,
+    /// The report as printed by `rebuild` (cleaning, quality figures, intervals).
+    pub report: String,
+    /// The rebuilt records as CSV: `time,event` and the arm column.
+    pub csv: Vec<u8>,
+    /// SHA-256 of the digitised points file.
+    pub curve_sha256: String,
+    /// SHA-256 of the risk-table file, if given.
+    pub at_risk_sha256: Option<String>,
+}
+
+/// Rebuilds every arm from inputs already read; nothing is written. The `rebuild` command and
+/// `run` both call this, so an analysis file rebuilds exactly what the command does.
+pub fn rebuild_inputs(inputs: &RebuildInputs) -> Result<RebuildOutcome> {
+    let names = inputs.names;
+    if inputs.at_risk.is_none() && inputs.patients.is_empty() {
+        return Err(Error::Usage(format!(
+            "give {} (the published numbers at risk) or, without one, {} N",
+            names.at_risk, names.patients
+        )));
     }
-    let arm_col = args.arm_col.as_deref();
-    let (curve_name, curve_bytes) = read_file(&args.curve)?;
-    let curves = read_curves(&curve_name, &curve_bytes, arm_col)?;
+    let arm_col = inputs.arm_col;
+    let curve_name = inputs.curve_name;
+    let curves = read_curves(curve_name, inputs.curve_bytes, arm_col)?;
     let arms: Vec<Option<String>> = curves.iter().map(|c| c.arm.clone()).collect();
-    let risks: Vec<Vec<RiskRow>> = match &args.at_risk {
-        Some(path) => {
-            let (risk_name, risk_bytes) = read_file(path)?;
-            let tables = read_risk_tables(&risk_name, &risk_bytes, arm_col)?;
+    let risks: Vec<Vec<RiskRow>> = match inputs.at_risk {
+        Some((risk_name, risk_bytes)) => {
+            let tables = read_risk_tables(risk_name, risk_bytes, arm_col)?;
             for table in &tables {
                 if !arms.contains(&table.arm) {
                     let first = table.rows.iter().map(|r| r.line).min().unwrap_or(1);
                     return Err(Error::at(
-                        &risk_name,
+                        risk_name,
                         first,
                         1,
                         arm_col.unwrap_or("arm"),
@@ -342,16 +429,16 @@ pub fn run(args: RebuildArgs) -> Result<()> {
             for curve in &curves {
                 let table = tables.iter().find(|t| t.arm == curve.arm).ok_or_else(|| {
                     Error::input(
-                        &risk_name,
+                        risk_name,
                         format!("no risk-table rows{}", for_arm(&curve.arm)),
                     )
                 })?;
-                rebuild::read::check_risk_within_curve(&risk_name, table, curve)?;
+                rebuild::read::check_risk_within_curve(risk_name, table, curve)?;
                 out.push(table.rows.clone());
             }
             out
         }
-        None => per_arm("--patients", &args.patients, &arms)?
+        None => per_arm(names.patients, inputs.patients, &arms)?
             .into_iter()
             .zip(&arms)
             .map(|(n, arm)| match n {
@@ -360,22 +447,29 @@ pub fn run(args: RebuildArgs) -> Result<()> {
                     at_risk: n,
                     line: 0,
                 }]),
-                Some(_) => Err(Error::Usage("--patients must be at least 1".into())),
-                None => Err(Error::Usage(format!("--patients missing{}", for_arm(arm)))),
+                Some(_) => Err(Error::Usage(format!(
+                    "{} must be at least 1",
+                    names.patients
+                ))),
+                None => Err(Error::Usage(format!(
+                    "{} missing{}",
+                    names.patients,
+                    for_arm(arm)
+                ))),
             })
             .collect::<Result<_>>()?,
     };
-    let events = per_arm("--events", &args.events, &arms)?;
+    let events = per_arm(names.events, inputs.events, &arms)?;
     for ((curve, risk), total) in curves.iter().zip(&risks).zip(&events) {
         if let Some(total) = total {
-            check_events(*total, risk[0].at_risk, curve)?;
+            check_events(names.events, *total, risk[0].at_risk, curve)?;
         }
     }
     let mut text = format!(
         "rebuilt from digitised points {curve_name}{} (method of Guyot et al., 2012)\n",
-        args.at_risk
-            .as_ref()
-            .map(|p| format!(" and risk table {}", p.display()))
+        inputs
+            .at_risk
+            .map(|(name, _)| format!(" and risk table {name}"))
             .unwrap_or_else(|| " without a risk table".into())
     );
     let first = &curves[0].cleaning;
@@ -392,21 +486,105 @@ pub fn run(args: RebuildArgs) -> Result<()> {
         )
     });
     let mut results = Vec::new();
-    for ((curve, risk), total) in curves.iter().zip(&risks).zip(&events) {
-        let rebuilt = rebuild::rebuild(&curve.points, risk, *total).map_err(|e| match e {
-            Error::Usage(m) => Error::Usage(format!("{m}{}", for_arm(&curve.arm))),
+    for ((curve, risk), total) in curves.into_iter().zip(risks).zip(events) {
+        let rebuilt = rebuild::rebuild(&curve.points, &risk, total).map_err(|e| match e {
+            Error::Usage(m) => Error::Usage(format!(
+                "{}{}",
+                m.replace("--events", names.events),
+                for_arm(&curve.arm)
+            )),
             other => other,
         })?;
-        let quality = assess(&curve.points, risk, &rebuilt.records, *total);
-        text.push_str(&render_arm(curve, &rebuilt, &quality));
-        results.push((curve.arm.clone(), rebuilt));
+        let quality = assess(&curve.points, &risk, &rebuilt.records, total);
+        text.push_str(&render_arm(&curve, &rebuilt, &quality));
+        results.push(RebuiltArm {
+            curve,
+            risk,
+            events_given: total,
+            rebuilt,
+            quality,
+        });
     }
-    let bytes = render_csv(arm_col, &results)?;
-    output::write_atomic(&args.out, &bytes)?;
+    let csv = render_csv(arm_col, &results)?;
+    Ok(RebuildOutcome {
+        arms: results,
+        with_risk_table: inputs.at_risk.is_some(),
+        report: text,
+        csv,
+        curve_sha256: crate::input::sha256_hex(inputs.curve_bytes),
+        at_risk_sha256: inputs.at_risk.map(|(_, b)| crate::input::sha256_hex(b)),
+    })
+}
+
+/// The overlay plot of a finished rebuild: digitised points over the rebuilt Kaplan–Meier
+/// curve of every arm, with published and rebuilt numbers at risk under the plot.
+pub fn overlay_plot(outcome: &RebuildOutcome, unit: Option<TimeUnit>) -> RebuildPlot {
+    RebuildPlot {
+        title: "Digitised points and rebuilt Kaplan–Meier".into(),
+        unit,
+        arms: outcome
+            .arms
+            .iter()
+            .map(|a| RebuildPlotArm {
+                label: a.curve.arm.clone(),
+                points: a
+                    .curve
+                    .points
+                    .iter()
+                    .map(|p| (p.time, p.survival))
+                    .collect(),
+                km: KaplanMeier::from_records(&a.rebuilt.records),
+                at_risk: if outcome.with_risk_table {
+                    a.quality.at_risk.clone()
+                } else {
+                    Vec::new()
+                },
+            })
+            .collect(),
+    }
+}
+
+/// Runs `rebuild`.
+pub fn run(args: RebuildArgs) -> Result<()> {
+    output::check_writable(&args.out, args.force)?;
+    if let Some(plot) = &args.plot {
+        plot::check_plot_path(plot, "--plot")?;
+        output::check_writable(plot, args.force)?;
+        if plot == &args.out {
+            return Err(Error::Usage("--plot and --out name the same file".into()));
+        }
+    }
+    let (curve_name, curve_bytes) = read_file(&args.curve)?;
+    let risk = match &args.at_risk {
+        Some(path) => Some(read_file(path)?),
+        None => None,
+    };
+    let outcome = rebuild_inputs(&RebuildInputs {
+        curve_name: &curve_name,
+        curve_bytes: &curve_bytes,
+        at_risk: risk.as_ref().map(|(n, b)| (n.as_str(), b.as_slice())),
+        patients: &args.patients,
+        events: &args.events,
+        arm_col: args.arm_col.as_deref(),
+        names: InputNames::OPTIONS,
+    })?;
+    let plot_bytes = match &args.plot {
+        Some(path) => Some(plot::render_to(path, &overlay_plot(&outcome, None))?),
+        None => None,
+    };
+    let mut text = outcome.report;
+    output::write_atomic(&args.out, &outcome.csv)?;
     text.push_str(&format!(
         "\nwrote {} (time in the figure's unit; pass it to `tunnelcast fit` with --time-unit)\n",
         args.out.display()
     ));
+    if let (Some(path), Some(bytes)) = (&args.plot, plot_bytes) {
+        output::write_atomic(path, &bytes)?;
+        text.push_str(&format!(
+            "wrote {} (digitised points over the rebuilt Kaplan–Meier curve)\n",
+            path.display()
+        ));
+    }
     text.push_str(
         "caution: rebuilt data approximate the trial's; when patients were censored within each \
          interval is assumed, not known. See docs/rebuild.md.\n",

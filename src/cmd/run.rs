@@ -4,7 +4,10 @@
 //! into a temporary folder that is renamed into place only when everything succeeded.
 
 use crate::adjust::{lifetable, AdjustedCurve};
-use crate::analysis::{Analysis, Choice, Count};
+use crate::analysis::{Analysis, Choice, Count, CurveSource, NamedFile, REBUILT_FILE};
+use crate::cmd::rebuild::{
+    overlay_plot, rebuild_inputs, InputNames, RebuildInputs, RebuildOutcome,
+};
 use crate::curve::{Curve, ParametricCurve};
 use crate::discretise::{count_until, tunnel_table, TunnelTable};
 use crate::draws::{Sampler, SummaryBuilder, SummaryRow};
@@ -78,6 +81,8 @@ pub struct RunResult {
     pub stable_count: usize,
     /// The within-cycle table.
     pub within_cycle: Vec<WithinCycleRow>,
+    /// The rebuild, when the data were rebuilt from a digitised curve (`[data] curve`).
+    pub rebuild: Option<RebuildOutcome>,
 }
 
 impl RunResult {
@@ -91,6 +96,12 @@ impl RunResult {
             ("data_file".into(), a.data_name.clone()),
             ("data_sha256".into(), self.data.sha256.clone()),
         ];
+        if let Some(source) = &a.rebuild {
+            m.push(("rebuilt_from_curve".into(), source.curve.name.clone()));
+            if let Some(r) = &source.at_risk {
+                m.push(("rebuilt_from_at_risk".into(), r.name.clone()));
+            }
+        }
         if let Some(arm) = &self.chosen.arm {
             m.push(("arm".into(), arm.clone()));
         }
@@ -199,6 +210,164 @@ impl RunResult {
         }
     }
 
+    /// The rebuild's quality tables as exported, by file stem: per arm figures, numbers at risk
+    /// against the table, and the intervals of the reconstruction. Empty without `[data] curve`.
+    pub fn rebuild_documents(&self) -> Vec<(&'static str, Document)> {
+        let (Some(outcome), Some(source)) = (&self.rebuild, &self.analysis.rebuild) else {
+            return Vec::new();
+        };
+        let mut metadata = vec![
+            ("tool_version".to_string(), crate::VERSION.to_string()),
+            ("analysis_file".into(), file_name(&self.analysis.file)),
+            ("curve_file".into(), source.curve.name.clone()),
+            ("curve_sha256".into(), outcome.curve_sha256.clone()),
+        ];
+        if let (Some(r), Some(sha)) = (&source.at_risk, &outcome.at_risk_sha256) {
+            metadata.push(("at_risk_file".into(), r.name.clone()));
+            metadata.push(("at_risk_sha256".into(), sha.clone()));
+        }
+        metadata.extend([
+            ("rebuilt_file".into(), crate::analysis::REBUILT_FILE.into()),
+            (
+                "method".into(),
+                "Guyot, Ades, Ouwens and Welton (2012); choices in docs/rebuild.md".into(),
+            ),
+            ("time_unit".into(), self.analysis.time_unit.name().into()),
+            ("caution".into(), REBUILD_CAUTION.into()),
+        ]);
+        let arm_cell = |a: &Option<String>| match a {
+            Some(a) => Cell::Text(a.clone()),
+            None => Cell::Missing,
+        };
+        let count = |n: u64| Cell::Int(n as i64);
+        let quality_rows = outcome
+            .arms
+            .iter()
+            .map(|a| {
+                let q = &a.quality;
+                let worst = q
+                    .at_risk
+                    .iter()
+                    .map(|c| c.published.abs_diff(c.rebuilt))
+                    .max()
+                    .filter(|_| outcome.with_risk_table);
+                vec![
+                    arm_cell(&a.curve.arm),
+                    Cell::Int(a.curve.cleaning.rows as i64),
+                    Cell::Text(
+                        if a.curve.cleaning.percentage {
+                            "percentage"
+                        } else {
+                            "proportion"
+                        }
+                        .into(),
+                    ),
+                    Cell::Text(crate::cmd::rebuild::cleaning_text(&a.curve.cleaning)),
+                    count(q.patients),
+                    count(q.events),
+                    q.events_given.map_or(Cell::Missing, count),
+                    count(q.patients - q.events),
+                    Cell::Number(q.max_abs_diff),
+                    Cell::Number(q.max_abs_at),
+                    Cell::Number(q.mean_abs_diff),
+                    worst.map_or(Cell::Missing, count),
+                ]
+            })
+            .collect();
+        let at_risk_rows = outcome
+            .arms
+            .iter()
+            .filter(|_| outcome.with_risk_table)
+            .flat_map(|a| {
+                a.quality.at_risk.iter().map(|c| {
+                    vec![
+                        arm_cell(&a.curve.arm),
+                        Cell::Number(c.time),
+                        count(c.published),
+                        count(c.rebuilt),
+                        Cell::Int(c.rebuilt as i64 - c.published as i64),
+                    ]
+                })
+            })
+            .collect();
+        let interval_rows = outcome
+            .arms
+            .iter()
+            .flat_map(|a| {
+                a.rebuilt.intervals.iter().map(|iv| {
+                    vec![
+                        arm_cell(&a.curve.arm),
+                        Cell::Number(iv.start),
+                        Cell::Number(iv.end),
+                        count(iv.at_risk_start),
+                        count(iv.events),
+                        count(iv.censored),
+                        iv.published_end.map_or(Cell::Missing, count),
+                        count(iv.rebuilt_end),
+                        Cell::Text(crate::cmd::rebuild::rule_text(iv)),
+                    ]
+                })
+            })
+            .collect();
+        let table = |name: &str, columns: &[&str], rows: Vec<Vec<Cell>>| Document {
+            metadata: metadata.clone(),
+            tables: vec![Table {
+                name: name.into(),
+                columns: columns.iter().map(|c| c.to_string()).collect(),
+                rows,
+            }],
+        };
+        vec![
+            (
+                "rebuild_quality",
+                table(
+                    "rebuild_quality",
+                    &[
+                        "arm",
+                        "digitised_rows",
+                        "survival_read_as",
+                        "cleaning",
+                        "patients",
+                        "events",
+                        "events_published",
+                        "censored",
+                        "max_abs_diff",
+                        "max_abs_diff_time",
+                        "mean_abs_diff",
+                        "at_risk_max_abs_diff",
+                    ],
+                    quality_rows,
+                ),
+            ),
+            (
+                "rebuild_at_risk",
+                table(
+                    "rebuild_at_risk",
+                    &["arm", "time", "published", "rebuilt", "difference"],
+                    at_risk_rows,
+                ),
+            ),
+            (
+                "rebuild_intervals",
+                table(
+                    "rebuild_intervals",
+                    &[
+                        "arm",
+                        "start",
+                        "end",
+                        "at_risk_start",
+                        "events",
+                        "censored",
+                        "published_end",
+                        "rebuilt_end",
+                        "censoring_rule",
+                    ],
+                    interval_rows,
+                ),
+            ),
+        ]
+    }
+
     /// The within-cycle table as exported.
     pub fn within_cycle_document(&self) -> Document {
         let mut metadata = self.metadata();
@@ -244,6 +413,61 @@ impl RunResult {
             }],
         }
     }
+}
+
+/// What every output of a run from a digitised curve says about the data.
+pub const REBUILD_CAUTION: &str = "The patient-level data are reconstructed from a digitised Kaplan–Meier figure, not the trial's own: when patients were censored within each interval of the risk table is assumed, not known.";
+
+/// Reads the digitised curve (and risk table) of `[data] curve` and rebuilds patient-level
+/// data with the `rebuild` command's own code; errors name the analysis file's keys.
+pub fn rebuild_data(analysis: &Analysis, source: &CurveSource) -> Result<RebuildOutcome> {
+    let read = |f: &NamedFile, key: &str| {
+        std::fs::read(&f.path).map_err(|e| {
+            analysis.error_at(
+                f.place,
+                format!("[data] {key} {}: cannot read: {e}", f.path.display()),
+            )
+        })
+    };
+    let curve_bytes = read(&source.curve, "curve")?;
+    let risk_bytes = match &source.at_risk {
+        Some(r) => Some(read(r, "at_risk")?),
+        None => None,
+    };
+    let names = InputNames {
+        at_risk: "[data] at_risk",
+        patients: "[data] patients",
+        events: "[data] events",
+    };
+    rebuild_inputs(&RebuildInputs {
+        curve_name: &source.curve.name,
+        curve_bytes: &curve_bytes,
+        at_risk: source
+            .at_risk
+            .as_ref()
+            .zip(risk_bytes.as_deref())
+            .map(|(r, b)| (r.name.as_str(), b)),
+        patients: &source.patients,
+        events: &source.events,
+        arm_col: analysis.arm_column.as_deref(),
+        names,
+    })
+    .map_err(|e| match e {
+        Error::Usage(m) => {
+            let place = if m.starts_with(names.events) {
+                source.events_place
+            } else if m.starts_with(names.patients) {
+                source.patients_place
+            } else {
+                source.curve.place
+            };
+            analysis.error_at(
+                place,
+                m.replace("--arm-col not given", "[data] arm_column not given"),
+            )
+        }
+        other => other,
+    })
 }
 
 /// The adjustment settings for outputs, the life table named by its file name (so that the
@@ -481,6 +705,7 @@ pub fn compute(
         suggested_count: suggested,
         stable_count: stable,
         within_cycle,
+        rebuild: None,
     })
 }
 
@@ -500,6 +725,7 @@ pub fn render_files(result: &RunResult, date: &str) -> Result<Vec<(String, Vec<u
     if let Some(d) = result.draws_document() {
         documents.push(("draws_summary", d));
     }
+    documents.extend(result.rebuild_documents());
     for format in &result.analysis.formats {
         for (stem, document) in &documents {
             let name = format!("{stem}.{format}");
@@ -540,6 +766,14 @@ pub fn render_files(result: &RunResult, date: &str) -> Result<Vec<(String, Vec<u
         tolerance: result.analysis.tolerance,
     };
     figures.extend(plot::both("horizon", &horizon_plot)?);
+    if let Some(outcome) = &result.rebuild {
+        files.push((REBUILT_FILE.into(), outcome.csv.clone()));
+        files.push(("rebuild.txt".into(), outcome.report.clone().into_bytes()));
+        figures.extend(plot::both(
+            "rebuild",
+            &overlay_plot(outcome, Some(result.analysis.time_unit)),
+        )?);
+    }
     let html = crate::report::render(result, &figures, date)?;
     files.extend(figures);
     files.push(("report.html".into(), html.into_bytes()));
@@ -575,6 +809,12 @@ pub fn summary(result: &RunResult, folder: &Path) -> String {
         result.stable_count,
         result.analysis.tolerance
     ));
+    if let Some(source) = &result.analysis.rebuild {
+        text.push_str(&format!(
+            "data rebuilt from the digitised curve {} (reconstructed, not the trial's own; see {REBUILT_FILE} and rebuild.txt)\n",
+            source.curve.name
+        ));
+    }
     text.push_str(&format!(
         "\nreport: {}\n{}\n",
         folder.join("report.html").display(),
@@ -583,14 +823,17 @@ pub fn summary(result: &RunResult, folder: &Path) -> String {
     text
 }
 
-/// Computes and writes an analysis into `folder` (checked beforehand), all or nothing.
+/// Computes and writes an analysis into `folder` (checked beforehand), all or nothing;
+/// `rebuilt` is the rebuild the data bytes came from, when `[data] curve` was given.
 pub fn execute(
     analysis: Analysis,
     data_bytes: &[u8],
     lifetable_bytes: Option<&[u8]>,
+    rebuilt: Option<RebuildOutcome>,
     folder: &Path,
 ) -> Result<String> {
-    let result = compute(analysis, data_bytes, lifetable_bytes)?;
+    let mut result = compute(analysis, data_bytes, lifetable_bytes)?;
+    result.rebuild = rebuilt;
     let files = render_files(&result, &crate::report::utc_now())?;
     let staged = StagedFolder::new(folder)?;
     for (name, bytes) in &files {
@@ -616,16 +859,25 @@ pub fn run(args: RunArgs) -> Result<()> {
         }
     };
     output::check_folder(&folder, args.force)?;
-    let data_bytes = std::fs::read(&analysis.data_path).map_err(|e| {
-        analysis.error_at(
-            analysis.data_place,
-            format!(
-                "[data] file {}: cannot read: {e}",
-                analysis.data_path.display()
-            ),
-        )
-    })?;
-    let text = execute(analysis, &data_bytes, None, &folder)?;
+    let (data_bytes, rebuilt) = match &analysis.rebuild {
+        Some(source) => {
+            let outcome = rebuild_data(&analysis, source)?;
+            (outcome.csv.clone(), Some(outcome))
+        }
+        None => {
+            let bytes = std::fs::read(&analysis.data_path).map_err(|e| {
+                analysis.error_at(
+                    analysis.data_place,
+                    format!(
+                        "[data] file {}: cannot read: {e}",
+                        analysis.data_path.display()
+                    ),
+                )
+            })?;
+            (bytes, None)
+        }
+    };
+    let text = execute(analysis, &data_bytes, None, rebuilt, &folder)?;
     output::print(&text);
     Ok(())
 }

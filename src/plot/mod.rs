@@ -13,12 +13,14 @@
 mod diagnostics;
 mod hazard;
 mod horizon;
+mod rebuild;
 mod survival;
 mod tunnels;
 
 pub use diagnostics::{diagnostic_points, DiagnosticPlot, Transform};
 pub use hazard::{smoothed_hazard, HazardPlot, SmoothedHazard};
 pub use horizon::HorizonPlot;
+pub use rebuild::{RebuildPlot, RebuildPlotArm};
 pub use survival::SurvivalPlot;
 pub use tunnels::{TunnelMarker, TunnelPlot};
 
@@ -143,6 +145,46 @@ pub fn to_png(plot: &impl Plot) -> Result<Vec<u8>> {
             .map_err(|e| plot_error(e.to_string()))?;
     }
     Ok(bytes)
+}
+
+/// Plot formats a single plot file can be written in, by extension.
+pub const PLOT_FORMATS: [&str; 2] = ["svg", "png"];
+
+/// Checks that `path` (given with `option`) ends in a plot format, before anything is computed.
+pub fn check_plot_path(path: &std::path::Path, option: &str) -> Result<()> {
+    let ext = path
+        .extension()
+        .map(|e| e.to_string_lossy().to_ascii_lowercase())
+        .unwrap_or_default();
+    if PLOT_FORMATS.contains(&ext.as_str()) {
+        return Ok(());
+    }
+    let hint = crate::units::nearest(&ext, &PLOT_FORMATS)
+        .filter(|_| !ext.is_empty())
+        .map(|n| format!(" (did you mean \".{n}\"?)"))
+        .unwrap_or_default();
+    let found = if ext.is_empty() {
+        "no extension".to_string()
+    } else {
+        format!("\".{ext}\"")
+    };
+    Err(Error::Usage(format!(
+        "{option} {}: a plot file must end in .svg or .png, not {found}{hint}",
+        path.display()
+    )))
+}
+
+/// Renders `plot` in the format named by `path`'s extension (checked by [`check_plot_path`]).
+pub fn render_to(path: &std::path::Path, plot: &impl Plot) -> Result<Vec<u8>> {
+    check_plot_path(path, "plot")?;
+    let png = path
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("png"));
+    if png {
+        to_png(plot)
+    } else {
+        Ok(to_svg(plot)?.into_bytes())
+    }
 }
 
 /// A rendered figure: file name (without folder) and bytes.
