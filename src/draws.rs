@@ -216,21 +216,64 @@ pub fn tables_in_chunks(
     control: &Control<'_>,
     mut sink: impl FnMut(usize, Vec<TunnelTable>) -> Result<()>,
 ) -> Result<()> {
-    for (c, chunk) in params.chunks(CHUNK).enumerate() {
+    let mut first = 0;
+    groups_in_chunks(
+        params,
+        (1, CHUNK),
+        build,
+        (cycle, count),
+        control,
+        |_, tables| Ok(tables),
+        |groups| {
+            let tables: Vec<TunnelTable> = groups.into_iter().flatten().collect();
+            let n = tables.len();
+            sink(first, tables)?;
+            first += n;
+            Ok(())
+        },
+    )
+}
+
+/// Like [`tables_in_chunks`], with each chunk of `groups.0 × groups.1` draws split into groups
+/// of `groups.0` consecutive draws: one parallel task computes a group's tables and turns them
+/// at once into a value with `per_group(0-based index of the group's first draw, tables)`
+/// (e.g. their bytes in a file), so computing and formatting share one pass over the data.
+/// `sink` gets each chunk's values in draw order. Checks `control.stop` between chunks.
+pub fn groups_in_chunks<T: Send>(
+    params: &[Vec<f64>],
+    groups: (usize, usize),
+    build: &CurveBuilder<'_>,
+    (cycle, count): (Duration, usize),
+    control: &Control<'_>,
+    per_group: impl Fn(usize, Vec<TunnelTable>) -> Result<T> + Sync,
+    mut sink: impl FnMut(Vec<T>) -> Result<()>,
+) -> Result<()> {
+    let group = groups.0.max(1);
+    let chunk_len = group * groups.1.max(1);
+    for (c, chunk) in params.chunks(chunk_len).enumerate() {
         if let Some(e) = (control.stop)() {
             return Err(e);
         }
-        let first = c * CHUNK;
-        let tables: Vec<TunnelTable> = chunk
-            .par_iter()
+        let first = c * chunk_len;
+        let values: Vec<T> = chunk
+            .par_chunks(group)
             .enumerate()
-            .map(|(i, p)| {
-                let curve = build(p)
-                    .map_err(|e| Error::Computation(format!("draw {}: {e}", first + i + 1)))?;
-                Ok(tunnel_table(curve.as_ref(), cycle, count))
+            .map(|(g, draws)| {
+                let start = first + g * group;
+                let tables = draws
+                    .iter()
+                    .enumerate()
+                    .map(|(i, p)| {
+                        let curve = build(p).map_err(|e| {
+                            Error::Computation(format!("draw {}: {e}", start + i + 1))
+                        })?;
+                        Ok(tunnel_table(curve.as_ref(), cycle, count))
+                    })
+                    .collect::<Result<Vec<_>>>()?;
+                per_group(start, tables)
             })
             .collect::<Result<_>>()?;
-        sink(first, tables)?;
+        sink(values)?;
         (control.advance)(chunk.len() as u64);
     }
     Ok(())
@@ -254,6 +297,28 @@ pub fn percentile(values: &mut [f64], p: f64) -> f64 {
     }
 }
 
+/// The `p_exit` columns of `tables` laid end to end, `count` values each (NaN where a table
+/// is shorter), as [`SummaryBuilder::add_columns`] takes them.
+pub fn p_exit_columns(tables: &[TunnelTable], count: usize) -> Vec<f64> {
+    let mut out = Vec::with_capacity(tables.len() * count);
+    for table in tables {
+        push_column(&mut out, table, count);
+    }
+    out
+}
+
+/// Appends `table`'s `p_exit` column, `count` values.
+fn push_column(out: &mut Vec<f64>, table: &TunnelTable, count: usize) {
+    out.extend(
+        table
+            .rows
+            .iter()
+            .map(|r| r.p_exit)
+            .chain(std::iter::repeat(f64::NAN))
+            .take(count),
+    );
+}
+
 /// One tunnel's summary over the draws.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct SummaryRow {
@@ -273,39 +338,58 @@ pub struct SummaryRow {
     pub upper: f64,
 }
 
-/// Collects `p_exit` per tunnel across draws for the summary; memory is draws × tunnels numbers.
+/// Collects `p_exit` of every draw for the summary; memory is draws × tunnels numbers, kept
+/// draw by draw (adding a draw is one copy of its column; the summary reads tunnel by tunnel).
 #[derive(Debug, Clone)]
 pub struct SummaryBuilder {
     point: TunnelTable,
-    by_tunnel: Vec<Vec<f64>>,
+    by_draw: Vec<f64>,
 }
 
 impl SummaryBuilder {
-    /// A summary around the point estimate's table.
-    pub fn new(point: TunnelTable) -> Self {
-        let by_tunnel = vec![Vec::new(); point.rows.len()];
-        SummaryBuilder { point, by_tunnel }
+    /// A summary around the point estimate's table, with room for `draws` draws.
+    pub fn new(point: TunnelTable, draws: usize) -> Self {
+        let by_draw = Vec::with_capacity(draws.saturating_mul(point.rows.len()));
+        SummaryBuilder { point, by_draw }
     }
 
     /// Adds one draw's table (same cycle and count as the point estimate).
     pub fn add(&mut self, table: &TunnelTable) {
-        for (values, row) in self.by_tunnel.iter_mut().zip(&table.rows) {
-            values.push(row.p_exit);
-        }
+        push_column(&mut self.by_draw, table, self.point.rows.len());
+    }
+
+    /// Adds the `p_exit` columns of consecutive draws laid end to end (as many values per
+    /// draw as the point estimate has tunnels): [`SummaryBuilder::add`] done ahead in parallel.
+    pub fn add_columns(&mut self, p_exit: &[f64]) {
+        self.by_draw.extend_from_slice(p_exit);
+    }
+
+    /// Number of draws added.
+    fn draws(&self) -> usize {
+        self.by_draw.len() / self.point.rows.len().max(1)
+    }
+
+    /// `p_exit` of tunnel `k` (0-based) in every draw, in the order added.
+    fn tunnel(&self, k: usize) -> Vec<f64> {
+        let count = self.point.rows.len();
+        (0..self.draws())
+            .map(|d| self.by_draw[d * count + k])
+            .collect()
     }
 
     /// `p_exit` per tunnel (outer) and draw (inner, in the order added).
-    pub fn values(&self) -> &[Vec<f64>] {
-        &self.by_tunnel
+    pub fn values(&self) -> Vec<Vec<f64>> {
+        (0..self.point.rows.len()).map(|k| self.tunnel(k)).collect()
     }
 
     /// Mean and 2.5%/97.5% percentiles per tunnel.
-    pub fn finish(mut self) -> Vec<SummaryRow> {
+    pub fn finish(self) -> Vec<SummaryRow> {
         self.point
             .rows
             .par_iter()
-            .zip(self.by_tunnel.par_iter_mut())
-            .map(|(row, values)| {
+            .enumerate()
+            .map(|(k, row)| {
+                let mut values = self.tunnel(k);
                 let mean = values.iter().sum::<f64>() / values.len() as f64;
                 SummaryRow {
                     tunnel: row.tunnel,
@@ -313,8 +397,8 @@ impl SummaryBuilder {
                     t_end: row.t_end,
                     point: row.p_exit,
                     mean,
-                    lower: percentile(values, 0.025),
-                    upper: percentile(values, 0.975),
+                    lower: percentile(&mut values, 0.025),
+                    upper: percentile(&mut values, 0.975),
                 }
             })
             .collect()
@@ -532,6 +616,36 @@ mod tests {
             let direct = tunnel_table(build(p).unwrap().as_ref(), cycle, 12);
             assert_eq!(&direct, table);
         }
+
+        // Groups of 7 draws, 3 groups a chunk (150 is not a multiple of either): each group
+        // starts where the last ended, and its tables are the same ones.
+        let mut next = 0;
+        let mut summary = SummaryBuilder::new(seen[0].clone(), 150);
+        groups_in_chunks(
+            &params,
+            (7, 3),
+            &build,
+            (cycle, 12),
+            &Control::none(),
+            |start, tables| Ok((start, p_exit_columns(&tables, 12), tables)),
+            |groups| {
+                for (start, columns, tables) in groups {
+                    assert_eq!(start, next);
+                    assert_eq!(tables, seen[start..start + tables.len()]);
+                    next += tables.len();
+                    summary.add_columns(&columns);
+                }
+                Ok(())
+            },
+        )
+        .unwrap();
+        assert_eq!(next, 150);
+        // The summary built from columns equals the one built table by table.
+        let mut by_table = SummaryBuilder::new(seen[0].clone(), 0);
+        seen.iter().for_each(|t| by_table.add(t));
+        assert_eq!(summary.values(), by_table.values());
+        assert_eq!(summary.values()[11][149], seen[149].rows[11].p_exit);
+        assert_eq!(summary.finish(), by_table.finish());
     }
 
     #[test]

@@ -47,10 +47,7 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
 /// is renamed to `path` only when `fill` succeeds; on any error (including an interruption
 /// reported by `fill`) the temporary file is removed and `fill`'s error returned. For outputs
 /// too large to hold in memory.
-pub fn write_atomic_with(
-    path: &Path,
-    fill: impl FnOnce(&mut (dyn Write + Send)) -> Result<()>,
-) -> Result<()> {
+pub fn write_atomic_with(path: &Path, fill: impl FnOnce(&mut Staged) -> Result<()>) -> Result<()> {
     let parent = parent_dir(path);
     let name = path
         .file_name()
@@ -60,9 +57,9 @@ pub fn write_atomic_with(
     let io_error = |e: std::io::Error| Error::output(path, format!("cannot write: {e}"));
     let result = (|| -> Result<()> {
         let file = std::fs::File::create(&tmp).map_err(io_error)?;
-        let mut out = std::io::BufWriter::with_capacity(1 << 20, file);
+        let mut out = Staged(std::io::BufWriter::with_capacity(1 << 20, file));
         fill(&mut out)?;
-        let file = out.into_inner().map_err(|e| io_error(e.into_error()))?;
+        let file = out.0.into_inner().map_err(|e| io_error(e.into_error()))?;
         file.sync_all().map_err(io_error)?;
         std::fs::rename(&tmp, path).map_err(io_error)
     })();
@@ -70,6 +67,33 @@ pub fn write_atomic_with(
         let _ = std::fs::remove_file(&tmp);
     }
     result
+}
+
+/// The temporary file [`write_atomic_with`] fills: buffered writes, plus [`Staged::settle`].
+pub struct Staged(std::io::BufWriter<std::fs::File>);
+
+impl Staged {
+    /// Hands what has been written so far to the disk and waits for it. Long streams call it
+    /// now and then from a writing thread, so the wait before the rename stays short instead
+    /// of flushing hundreds of megabytes at the end.
+    pub fn settle(&mut self) -> std::io::Result<()> {
+        self.0.flush()?;
+        self.0.get_ref().sync_data()
+    }
+}
+
+impl Write for Staged {
+    fn write(&mut self, bytes: &[u8]) -> std::io::Result<usize> {
+        self.0.write(bytes)
+    }
+
+    fn write_all(&mut self, bytes: &[u8]) -> std::io::Result<()> {
+        self.0.write_all(bytes)
+    }
+
+    fn flush(&mut self) -> std::io::Result<()> {
+        self.0.flush()
+    }
 }
 
 /// Checks that an output folder may be filled: it does not exist, or is empty, or `force` is
@@ -212,6 +236,21 @@ mod tests {
             .map(|e| e.unwrap().file_name())
             .collect();
         assert_eq!(names, vec![std::ffi::OsString::from("b.json")]);
+    }
+
+    #[test]
+    fn stream_settled_midway_ends_whole() {
+        let dir = tempfile::tempdir().unwrap();
+        let file = dir.path().join("s.csv");
+        write_atomic_with(&file, |out| {
+            out.write_all(b"first,").unwrap();
+            out.settle().unwrap();
+            out.write_all(b"second").unwrap();
+            Ok(())
+        })
+        .unwrap();
+        assert_eq!(std::fs::read(&file).unwrap(), b"first,second");
+        assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 1);
     }
 
     #[test]

@@ -444,7 +444,7 @@ fn adjustments_and_draws_of_the_analysis_file_reach_the_outputs() {
         let base = ParametricCurve::new(family, p.to_vec(), tunnelcast::units::TimeUnit::Months)?;
         Ok(Box::new(adjusted.rebuild(base).map_err(|e| e.to_string())?))
     };
-    let mut summary = SummaryBuilder::new(point);
+    let mut summary = SummaryBuilder::new(point, params.len());
     draws::tables_in_chunks(
         &params,
         &build,

@@ -673,7 +673,7 @@ pub fn compute(
                     None => Box::new(base),
                 })
             };
-            let mut summary = SummaryBuilder::new(tunnels.clone());
+            let mut summary = SummaryBuilder::new(tunnels.clone(), params.len());
             crate::draws::tables_in_chunks(
                 &params,
                 &build,

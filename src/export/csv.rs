@@ -3,7 +3,7 @@
 //! their shortest round-trip form, so reading the file back gives the same `f64`s.
 
 use super::{push_number_bytes, push_number_text, Cell, Document, Exporter};
-use crate::discretise::TunnelTable;
+use crate::discretise::{TunnelRow, TunnelTable};
 use crate::error::{Error, Result};
 use std::ops::Range;
 
@@ -50,57 +50,71 @@ impl Exporter for Csv {
         Some(result)
     }
 
-    /// The long rows of one draw written straight as bytes: no cells, no CSV writer (numbers
-    /// never need quoting), and a value equal to the one written just above it (`t_start` is
-    /// the previous `t_end`, `surv_start` the previous `surv_end`) copied, not formatted again.
+    /// The long rows of draws written straight as bytes: no cells, no CSV writer (numbers
+    /// never need quoting). Text is reused where the value repeats: `tunnel,t_start,t_end,` is
+    /// formatted once for all the draws (the cycles are the same), and a value equal to the one
+    /// just above it (`surv_start` is the previous `surv_end`; constant hazards repeat `p_exit`)
+    /// is copied rather than formatted again.
     fn append_draw_rows(
         &self,
-        draw: usize,
-        table: &TunnelTable,
+        first_draw: usize,
+        tables: &[TunnelTable],
         out: &mut Vec<u8>,
     ) -> Option<Result<()>> {
+        let Some(first) = tables.first() else {
+            return Some(Ok(()));
+        };
+        let prefixes: Vec<Vec<u8>> = first.rows.iter().map(cycle_prefix).collect();
         let mut draw_digits = itoa::Buffer::new();
-        let draw_text = draw_digits.format(draw).as_bytes();
-        let mut tunnel_digits = itoa::Buffer::new();
-        // The last written t_end and surv_end: their bits and where their text sits in `out`.
-        let mut t_end_text: Option<(u64, Range<usize>)> = None;
-        let mut surv_end_text: Option<(u64, Range<usize>)> = None;
-        // The last written p_exit and p_next (constant hazards repeat them row after row).
-        let mut p_exit_text: Option<(u64, Range<usize>)> = None;
-        let mut p_next_text: Option<(u64, Range<usize>)> = None;
-        for (i, row) in table.rows.iter().enumerate() {
-            out.extend_from_slice(draw_text);
-            out.push(b',');
-            out.extend_from_slice(tunnel_digits.format(row.tunnel).as_bytes());
-            out.push(b',');
-            copy_or_write(out, row.t_start, &t_end_text);
-            out.push(b',');
-            t_end_text = Some(write_noting(out, row.t_end));
-            out.push(b',');
-            copy_or_write(out, row.surv_start, &surv_end_text);
-            out.push(b',');
-            surv_end_text = Some(write_noting(out, row.surv_end));
-            out.push(b',');
-            p_exit_text = Some(copy_or_write(out, row.p_exit, &p_exit_text));
-            out.push(b',');
-            p_next_text = Some(copy_or_write(out, row.p_next, &p_next_text));
-            for (_, values) in &table.extra {
+        for (d, table) in tables.iter().enumerate() {
+            let draw_text = draw_digits.format(first_draw + d).as_bytes();
+            // The last written surv_end, p_exit and p_next: bits and where the text sits in `out`.
+            let mut surv_end_text: Option<(u64, Range<usize>)> = None;
+            let mut p_exit_text: Option<(u64, Range<usize>)> = None;
+            let mut p_next_text: Option<(u64, Range<usize>)> = None;
+            for (i, row) in table.rows.iter().enumerate() {
+                out.extend_from_slice(draw_text);
                 out.push(b',');
-                if let Some(v) = values.get(i) {
-                    push_number_bytes(out, *v);
+                match (prefixes.get(i), first.rows.get(i)) {
+                    (Some(prefix), Some(r)) if same_cycle(r, row) => out.extend_from_slice(prefix),
+                    _ => out.extend_from_slice(&cycle_prefix(row)),
                 }
+                copy_or_write(out, row.surv_start, &surv_end_text);
+                out.push(b',');
+                surv_end_text = Some(copy_or_write(out, row.surv_end, &None));
+                out.push(b',');
+                p_exit_text = Some(copy_or_write(out, row.p_exit, &p_exit_text));
+                out.push(b',');
+                p_next_text = Some(copy_or_write(out, row.p_next, &p_next_text));
+                for (_, values) in &table.extra {
+                    out.push(b',');
+                    if let Some(v) = values.get(i) {
+                        push_number_bytes(out, *v);
+                    }
+                }
+                out.push(b'\n');
             }
-            out.push(b'\n');
         }
         Some(Ok(()))
     }
 }
 
-/// Writes `x` and returns its bits with the range its text occupies in `out`.
-fn write_noting(out: &mut Vec<u8>, x: f64) -> (u64, Range<usize>) {
-    let start = out.len();
-    push_number_bytes(out, x);
-    (x.to_bits(), start..out.len())
+/// `tunnel,t_start,t_end,` of one row.
+fn cycle_prefix(row: &TunnelRow) -> Vec<u8> {
+    let mut out = itoa::Buffer::new().format(row.tunnel).as_bytes().to_vec();
+    out.push(b',');
+    push_number_bytes(&mut out, row.t_start);
+    out.push(b',');
+    push_number_bytes(&mut out, row.t_end);
+    out.push(b',');
+    out
+}
+
+/// Whether two rows cover the same cycle (same tunnel and the same times to the bit).
+fn same_cycle(a: &TunnelRow, b: &TunnelRow) -> bool {
+    a.tunnel == b.tunnel
+        && a.t_start.to_bits() == b.t_start.to_bits()
+        && a.t_end.to_bits() == b.t_end.to_bits()
 }
 
 /// Copies the text written earlier for the same value, or writes `x` afresh; returns the
@@ -259,9 +273,25 @@ mod tests {
                 .unwrap()
                 .unwrap();
             let mut fast = b"earlier bytes\n".to_vec();
-            Csv.append_draw_rows(draw, &table, &mut fast).unwrap().unwrap();
+            Csv.append_draw_rows(draw, std::slice::from_ref(&table), &mut fast).unwrap().unwrap();
             proptest::prop_assert_eq!(
                 String::from_utf8_lossy(&fast[14..]),
+                String::from_utf8_lossy(&general)
+            );
+            // Several draws at once, the second on other cycles (its own times are written)
+            // and the third shorter than the first.
+            let other = awkward_table(&values, !chained);
+            let short = awkward_table(&values[..values.len() / 2], chained);
+            let several = [table.clone(), other.clone(), short.clone()];
+            let mut general = Vec::new();
+            for (i, t) in several.iter().enumerate() {
+                let rows = crate::export::tunnel::draw_rows(draw + i, t);
+                general.extend(Csv.render_more_rows(&rows).unwrap().unwrap());
+            }
+            let mut fast = Vec::new();
+            Csv.append_draw_rows(draw, &several, &mut fast).unwrap().unwrap();
+            proptest::prop_assert_eq!(
+                String::from_utf8_lossy(&fast),
                 String::from_utf8_lossy(&general)
             );
         }

@@ -53,18 +53,24 @@ pub trait Exporter: Send + Sync {
         None
     }
 
-    /// For streaming formats: appends to `out` the rows of one draw in the long layout of
-    /// draws ([`tunnel::draw_rows`]), the same bytes as [`Exporter::render_more_rows`] of
-    /// those rows. A format may override it with a writer that skips the cells (the draws
-    /// benchmark writes 24 million rows). `None` for formats rendered whole.
+    /// For streaming formats: appends to `out` the rows of consecutive draws in the long layout
+    /// of draws ([`tunnel::draw_rows`]; `tables[i]` is draw `first_draw + i`), the same bytes
+    /// as [`Exporter::render_more_rows`] of those rows. A format may override it with a writer
+    /// that skips the cells (the draws benchmark writes 24 million rows). `None` for formats
+    /// rendered whole.
     fn append_draw_rows(
         &self,
-        draw: usize,
-        table: &TunnelTable,
+        first_draw: usize,
+        tables: &[TunnelTable],
         out: &mut Vec<u8>,
     ) -> Option<Result<()>> {
-        let bytes = self.render_more_rows(&tunnel::draw_rows(draw, table))?;
-        Some(bytes.map(|b| out.extend_from_slice(&b)))
+        for (i, table) in tables.iter().enumerate() {
+            match self.render_more_rows(&tunnel::draw_rows(first_draw + i, table))? {
+                Ok(bytes) => out.extend_from_slice(&bytes),
+                Err(e) => return Some(Err(e)),
+            }
+        }
+        Some(Ok(()))
     }
 
     /// Whether the format holds several tables (XLSX sheets); single-table formats get only
@@ -176,6 +182,7 @@ fn with_number_text(x: f64, emit: impl FnOnce(&str)) {
         // zmij writes whole numbers with a trailing ".0"; `{x}` does not.
         (true, false) => emit(digits.strip_suffix(".0").unwrap_or(digits)),
         // `{x:e}` writes no '+' in a positive exponent.
+        (false, true) if a < 1.0 => emit(digits),
         (false, true) => match digits.split_once("e+") {
             Some((mantissa, power)) => emit(&format!("{mantissa}e{power}")),
             None => emit(digits),
