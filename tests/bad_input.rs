@@ -4,6 +4,9 @@
 //! (written by `scripts/make_bad_input.py`; expected outcomes are the project's input rules
 //! from the interface contract, common practice for CSV files).
 
+mod shell;
+use shell::listing;
+
 use assert_cmd::Command;
 use std::path::{Path, PathBuf};
 use tunnelcast::fit::FitFile;
@@ -113,16 +116,6 @@ fn generate(name: &str, dir: &Path) -> String {
     };
     std::fs::write(dir.join(&file), bytes).unwrap();
     file
-}
-
-/// Names of the files in `dir`, sorted.
-fn listing(dir: &Path) -> Vec<String> {
-    let mut names: Vec<String> = std::fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .collect();
-    names.sort();
-    names
 }
 
 /// Runs one case; returns a description of what went wrong, if anything.

@@ -3,7 +3,9 @@
 //! XLSX reader) and compared with the library's own computation; reproducibility across
 //! thread counts; every bad-input case of the draws issue; a clean stop on SIGINT/SIGTERM.
 
-use assert_cmd::Command;
+mod shell;
+use shell::{listing, tunnelcast};
+
 use calamine::{Data, Reader, Xlsx};
 use serde::Deserialize;
 use std::path::Path;
@@ -13,21 +15,6 @@ use tunnelcast::draws::Sampler;
 use tunnelcast::families;
 use tunnelcast::fit::FitFile;
 use tunnelcast::units::{Duration, TimeUnit};
-
-fn tunnelcast(dir: &Path) -> Command {
-    let mut cmd = Command::cargo_bin("tunnelcast").unwrap();
-    cmd.current_dir(dir);
-    cmd
-}
-
-fn files(dir: &Path) -> Vec<String> {
-    let mut names: Vec<String> = std::fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .collect();
-    names.sort();
-    names
-}
 
 /// Invented trial (two arms, no external source): times from a fixed list, and its fit file.
 fn write_fit(dir: &Path) {
@@ -423,7 +410,7 @@ fn bootstrap_finds_the_data_beside_the_fit_file_and_reports_failures() {
 /// Runs a command expected to fail on bad input: exit 2, one `error:` line naming `needle`,
 /// no panic, and no file created or changed.
 fn refuses(dir: &Path, args: &[&str], needle: &str) {
-    let before: Vec<(String, Vec<u8>)> = files(dir)
+    let before: Vec<(String, Vec<u8>)> = listing(dir)
         .into_iter()
         .map(|f| {
             let bytes = std::fs::read(dir.join(&f)).unwrap();
@@ -439,7 +426,7 @@ fn refuses(dir: &Path, args: &[&str], needle: &str) {
         stderr.contains(needle),
         "{args:?}: wanted {needle:?} in {stderr}"
     );
-    let after: Vec<(String, Vec<u8>)> = files(dir)
+    let after: Vec<(String, Vec<u8>)> = listing(dir)
         .into_iter()
         .map(|f| {
             let bytes = std::fs::read(dir.join(&f)).unwrap();
@@ -548,7 +535,7 @@ fn interruption_leaves_no_file_and_exits_with_the_signal_code() {
         let dir = tempfile::tempdir().unwrap();
         let d = dir.path();
         write_fit(d);
-        let before = files(d);
+        let before = listing(d);
         let bin = env!("CARGO_BIN_EXE_tunnelcast");
         // Far more work than can finish before the signal arrives.
         let child = std::process::Command::new(bin)
@@ -563,7 +550,7 @@ fn interruption_leaves_no_file_and_exits_with_the_signal_code() {
         // Wait until the temporary output file exists: the run is then streaming and its
         // signal flag is installed.
         let start = std::time::Instant::now();
-        while files(d).len() == before.len() {
+        while listing(d).len() == before.len() {
             assert!(start.elapsed().as_secs() < 15, "no temporary file appeared");
             std::thread::sleep(std::time::Duration::from_millis(20));
         }
@@ -576,6 +563,6 @@ fn interruption_leaves_no_file_and_exits_with_the_signal_code() {
         let stderr = String::from_utf8_lossy(&out.stderr);
         assert_eq!(out.status.code(), Some(code), "{stderr}");
         assert!(stderr.starts_with("error: interrupted"), "{stderr}");
-        assert_eq!(files(d), before, "a file was left behind");
+        assert_eq!(listing(d), before, "a file was left behind");
     }
 }

@@ -1,7 +1,9 @@
 //! Command-line checks of the configured families: settings given on `fit`, recorded in the
 //! fit JSON (read back with serde, unknown fields refused) and used again by `tunnels`.
 
-use assert_cmd::Command;
+mod shell;
+use shell::tunnelcast;
+
 use tunnelcast::fit::FitFile;
 
 /// Invented data: hazard 0.05 per month before month 6 and 0.12 after, censored at month 20,
@@ -21,12 +23,6 @@ fn write_piecewise_data(dir: &std::path::Path) -> std::path::PathBuf {
     let path = dir.join("trial.csv");
     std::fs::write(&path, text).unwrap();
     path
-}
-
-fn tunnelcast(dir: &std::path::Path) -> Command {
-    let mut cmd = Command::cargo_bin("tunnelcast").unwrap();
-    cmd.current_dir(dir);
-    cmd
 }
 
 #[test]

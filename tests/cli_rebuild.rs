@@ -2,6 +2,9 @@
 //! that `fit` accepts, and every bad input of the issue refused with one line naming the row,
 //! exit status 2 and nothing written.
 
+mod shell;
+use shell::listing;
+
 use assert_cmd::Command;
 use serde::Deserialize;
 use std::path::Path;
@@ -21,15 +24,6 @@ fn tunnelcast() -> Command {
 
 fn repo(path: &str) -> std::path::PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join(path)
-}
-
-fn names_in(dir: &Path) -> Vec<String> {
-    let mut names: Vec<String> = std::fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .collect();
-    names.sort();
-    names
 }
 
 #[test]
@@ -118,14 +112,14 @@ fn refused(curve: &str, risk: Option<&str>, extra: &[&str], expect: &str) {
     } else if !extra.contains(&"--patients") {
         cmd.args(["--patients", "100"]);
     }
-    let before = names_in(dir.path());
+    let before = listing(dir.path());
     let assert = cmd.args(extra).assert().code(2);
     let stderr = String::from_utf8_lossy(&assert.get_output().stderr).to_string();
     assert!(!stderr.contains("panicked"), "{stderr}");
     assert_eq!(stderr.trim_end().lines().count(), 1, "{stderr}");
     assert!(stderr.starts_with("error: "), "{stderr}");
     assert!(stderr.contains(expect), "expected {expect:?} in {stderr}");
-    assert_eq!(names_in(dir.path()), before, "something was written");
+    assert_eq!(listing(dir.path()), before, "something was written");
 }
 
 const RISK: &str = "time,at_risk\n0,100\n10,60\n20,30\n";

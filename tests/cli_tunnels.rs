@@ -1,7 +1,9 @@
 //! Command-line tests of `tunnels` and `horizon`: outputs read back with serde, and every
 //! bad-input case of the tunnels issue (exit 2, one line, no output file).
 
-use assert_cmd::Command;
+mod shell;
+use shell::{listing, tunnelcast};
+
 use serde::Deserialize;
 use std::collections::BTreeMap;
 use std::path::Path;
@@ -20,21 +22,6 @@ const WEIBULL: [&str; 8] = [
     "--time-unit",
     "months",
 ];
-
-fn tunnelcast(dir: &Path) -> Command {
-    let mut cmd = Command::cargo_bin("tunnelcast").unwrap();
-    cmd.current_dir(dir);
-    cmd
-}
-
-fn files(dir: &Path) -> Vec<String> {
-    let mut names: Vec<String> = std::fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .collect();
-    names.sort();
-    names
-}
 
 /// Invented trial data (no external source) and its fit file, written with `fit --json`.
 fn write_fit(dir: &Path, families: &str) {
@@ -78,7 +65,7 @@ fn write_fit(dir: &Path, families: &str) {
 /// Runs a command expected to fail on bad input: exit 2, one `error:` line naming `needle`,
 /// no panic, and no file created.
 fn refuses(dir: &Path, args: &[&str], needle: &str) {
-    let before = files(dir);
+    let before = listing(dir);
     let out = tunnelcast(dir).args(args).output().unwrap();
     let stderr = String::from_utf8_lossy(&out.stderr);
     assert_eq!(out.status.code(), Some(2), "{args:?}: {stderr}");
@@ -89,7 +76,7 @@ fn refuses(dir: &Path, args: &[&str], needle: &str) {
         "{args:?}: wanted {needle:?} in {stderr}"
     );
     assert!(!stderr.contains("panicked"));
-    assert_eq!(files(dir), before, "{args:?} left a file");
+    assert_eq!(listing(dir), before, "{args:?} left a file");
 }
 
 #[derive(Deserialize)]

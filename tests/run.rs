@@ -1,7 +1,9 @@
 //! `tunnelcast run` and `tunnelcast demo`: the output folder, the report's structure and
 //! numbers (read back and compared with the JSON outputs), re-run stability, and bad input.
 
-use assert_cmd::Command;
+mod shell;
+use shell::{listing, tunnelcast};
+
 use serde::Deserialize;
 use std::collections::BTreeMap;
 use std::path::Path;
@@ -15,22 +17,6 @@ fn setup(dir: &Path, edit: impl Fn(&str) -> String) {
     std::fs::write(dir.join("demo_trial.csv"), DATA).unwrap();
     std::fs::write(dir.join("demo_lifetable.csv"), LIFETABLE).unwrap();
     std::fs::write(dir.join("analysis.toml"), edit(ANALYSIS)).unwrap();
-}
-
-fn tunnelcast(dir: &Path) -> Command {
-    let mut cmd = Command::cargo_bin("tunnelcast").unwrap();
-    cmd.current_dir(dir);
-    cmd
-}
-
-/// Files and folders in `dir`, sorted.
-fn listing(dir: &Path) -> Vec<String> {
-    let mut names: Vec<String> = std::fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .collect();
-    names.sort();
-    names
 }
 
 #[derive(Deserialize)]

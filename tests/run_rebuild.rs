@@ -4,7 +4,9 @@
 //! saying the data are reconstructed, a re-run is byte-identical, and bad `[data]` tables are
 //! refused with one line naming the key.
 
-use assert_cmd::Command;
+mod shell;
+use shell::{listing, tunnelcast};
+
 use serde::Deserialize;
 use std::collections::BTreeMap;
 use std::path::Path;
@@ -18,21 +20,6 @@ fn setup(dir: &Path, edit: impl Fn(&str) -> String) {
     std::fs::write(dir.join("demo_digitised.csv"), CURVE).unwrap();
     std::fs::write(dir.join("demo_at_risk.csv"), AT_RISK).unwrap();
     std::fs::write(dir.join("analysis.toml"), edit(ANALYSIS)).unwrap();
-}
-
-fn tunnelcast(dir: &Path) -> Command {
-    let mut cmd = Command::cargo_bin("tunnelcast").unwrap();
-    cmd.current_dir(dir);
-    cmd
-}
-
-fn listing(dir: &Path) -> Vec<String> {
-    let mut names: Vec<String> = std::fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .collect();
-    names.sort();
-    names
 }
 
 /// One rebuilt record, read back strictly.
