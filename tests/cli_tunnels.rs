@@ -2,7 +2,7 @@
 //! bad-input case of the tunnels issue (exit 2, one line, no output file).
 
 mod shell;
-use shell::{listing, tunnelcast};
+use shell::{listing, tunnelcast, TableFile};
 
 use serde::Deserialize;
 use std::collections::BTreeMap;
@@ -162,21 +162,6 @@ fn long_csv_reads_back_equal_to_the_library_table() {
     }
 }
 
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-struct JsonDoc {
-    metadata: BTreeMap<String, String>,
-    tables: Vec<JsonTable>,
-}
-
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-struct JsonTable {
-    name: String,
-    columns: Vec<String>,
-    rows: Vec<Vec<serde_json::Value>>,
-}
-
 #[test]
 fn json_matrix_rows_sum_to_one_and_table_unit_is_stated() {
     let dir = tempfile::tempdir().unwrap();
@@ -185,7 +170,7 @@ fn json_matrix_rows_sum_to_one_and_table_unit_is_stated() {
     args.extend(["--cycle", "1 month", "--count", "6", "--layout", "matrix"]);
     args.extend(["--table-unit", "days", "--out", "m.json"]);
     tunnelcast(dir.path()).args(&args).assert().success();
-    let doc: JsonDoc =
+    let doc: TableFile =
         serde_json::from_slice(&std::fs::read(dir.path().join("m.json")).unwrap()).unwrap();
     assert_eq!(doc.metadata["time_unit"], "days");
     assert_eq!(doc.metadata["cycle"], "30.4375 days");

@@ -2,10 +2,8 @@
 //! numbers (read back and compared with the JSON outputs), re-run stability, and bad input.
 
 mod shell;
-use shell::{listing, tunnelcast};
+use shell::{listing, read_table, tunnelcast};
 
-use serde::Deserialize;
-use std::collections::BTreeMap;
 use std::path::Path;
 
 const DATA: &str = include_str!("../data/demo_trial.csv");
@@ -17,25 +15,6 @@ fn setup(dir: &Path, edit: impl Fn(&str) -> String) {
     std::fs::write(dir.join("demo_trial.csv"), DATA).unwrap();
     std::fs::write(dir.join("demo_lifetable.csv"), LIFETABLE).unwrap();
     std::fs::write(dir.join("analysis.toml"), edit(ANALYSIS)).unwrap();
-}
-
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-struct TableFile {
-    metadata: BTreeMap<String, String>,
-    tables: Vec<JsonTable>,
-}
-
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-struct JsonTable {
-    name: String,
-    columns: Vec<String>,
-    rows: Vec<Vec<serde_json::Value>>,
-}
-
-fn read_table(path: &Path) -> TableFile {
-    serde_json::from_slice(&std::fs::read(path).unwrap()).unwrap()
 }
 
 /// Cells of the HTML table with `id`, row by row.

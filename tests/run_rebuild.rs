@@ -5,10 +5,9 @@
 //! refused with one line naming the key.
 
 mod shell;
-use shell::{listing, tunnelcast};
+use shell::{listing, read_table, tunnelcast};
 
 use serde::Deserialize;
-use std::collections::BTreeMap;
 use std::path::Path;
 
 const ANALYSIS: &str = include_str!("../data/demo_rebuild_analysis.toml");
@@ -37,25 +36,6 @@ fn rows(path: &Path) -> Vec<Row> {
         .deserialize()
         .collect::<Result<_, _>>()
         .unwrap()
-}
-
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-struct TableFile {
-    metadata: BTreeMap<String, String>,
-    tables: Vec<JsonTable>,
-}
-
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-struct JsonTable {
-    name: String,
-    columns: Vec<String>,
-    rows: Vec<Vec<serde_json::Value>>,
-}
-
-fn read_table(path: &Path) -> TableFile {
-    serde_json::from_slice(&std::fs::read(path).unwrap()).unwrap()
 }
 
 #[test]

@@ -22,3 +22,25 @@ pub fn listing(dir: &Path) -> Vec<String> {
     names.sort();
     names
 }
+
+/// A JSON output of a table-writing command (`tunnels`, `run`), read back strictly.
+#[derive(serde::Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct TableFile {
+    pub metadata: std::collections::BTreeMap<String, String>,
+    pub tables: Vec<JsonTable>,
+}
+
+/// One table of a [`TableFile`].
+#[derive(serde::Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct JsonTable {
+    pub name: String,
+    pub columns: Vec<String>,
+    pub rows: Vec<Vec<serde_json::Value>>,
+}
+
+/// Reads a JSON table file written by the tool.
+pub fn read_table(path: &Path) -> TableFile {
+    serde_json::from_slice(&std::fs::read(path).unwrap()).unwrap()
+}
