@@ -318,6 +318,18 @@ fn demo_runs_in_a_fresh_folder_and_replaces_only_its_own_output() {
     let stdout = String::from_utf8(out.stdout).unwrap();
     assert!(stdout.contains("tunnelcast-demo/report.html"), "{stdout}");
     assert!(stdout.contains("Caution"));
+    // The one-screen summary says what the tunnel table adds to the chosen curve (the demo's
+    // analysis file: hazard ratio 0.6 waning over 3–6 years, background mortality added).
+    let adjustments = stdout
+        .lines()
+        .find(|l| l.starts_with("adjustments (in the tunnel table and the checks): "))
+        .unwrap_or_else(|| panic!("no adjustments line in {stdout}"));
+    assert!(adjustments.contains("hazard ratio 0.6"), "{adjustments}");
+    assert!(
+        adjustments.contains("background mortality added"),
+        "{adjustments}"
+    );
+    assert!(!adjustments.contains("shape="), "{adjustments}");
     assert!(dir.path().join("tunnelcast-demo/report.html").is_file());
     // Rerunnable: it replaces its own earlier output.
     tunnelcast(dir.path()).arg("demo").assert().success();

@@ -118,7 +118,7 @@ impl RunResult {
                 format!(
                     "{} {}",
                     number_text(self.tunnels.cycle),
-                    self.tunnels.time_unit
+                    self.tunnels.time_unit.name_for(self.tunnels.cycle)
                 ),
             ),
             ("time_unit".into(), self.tunnels.time_unit.name().into()),
@@ -799,6 +799,18 @@ pub fn summary(result: &RunResult, folder: &Path) -> String {
         result.curve.describe(),
         result.chosen_by
     ));
+    if let Some(adjusted) = &result.adjusted {
+        // The adjusted curve's description repeats the chosen curve's; show what it adds.
+        let full = adjusted.describe();
+        let base = result.curve.describe();
+        let added = full
+            .strip_prefix(base.as_str())
+            .map(|rest| rest.trim_start_matches([',', ';', ' ']))
+            .unwrap_or(&full);
+        text.push_str(&format!(
+            "adjustments (in the tunnel table and the checks): {added}\n"
+        ));
+    }
     text.push_str(&format!(
         "tunnel table: {} tunnel states of {} {} ({}); suggested count {}, p_exit stable from tunnel {} (tolerance {})\n",
         result.tunnels.rows.len(),
