@@ -579,9 +579,10 @@ pub fn run(args: DrawsArgs) -> Result<()> {
     Ok(())
 }
 
-/// Draws formatted together by one thread when streaming: about 1.5 MB of CSV for 480 tunnels,
-/// more than the file's buffer, so each group goes to the file without an extra copy.
-const GROUP: usize = 32;
+/// Tunnel rows formatted together by one thread when streaming: about 1.5 MB of CSV, more than
+/// the file's buffer, so each group goes to the file without an extra copy (32 draws of 480
+/// monthly tunnels; fewer draws per group for longer tables, so memory stays bounded).
+const ROWS_PER_GROUP: usize = 16_000;
 
 /// Groups per chunk when streaming: enough to keep every core busy between chunks.
 const GROUPS_PER_CHUNK: usize = 8;
@@ -651,7 +652,7 @@ fn write_streaming(
             });
             let computed = draws::groups_in_chunks(
                 params,
-                (GROUP, GROUPS_PER_CHUNK),
+                ((ROWS_PER_GROUP / count.max(1)).max(1), GROUPS_PER_CHUNK),
                 build,
                 (cycle, count),
                 &run.control(),
