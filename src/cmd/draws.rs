@@ -580,7 +580,7 @@ pub fn run(args: DrawsArgs) -> Result<()> {
 }
 
 /// Tunnel rows formatted together by one thread when streaming: about 1.5 MB of CSV, more than
-/// the file's buffer, so each group goes to the file without an extra copy (32 draws of 480
+/// the file's buffer, so each group goes to the file without an extra copy (33 draws of 480
 /// monthly tunnels; fewer draws per group for longer tables, so memory stays bounded).
 const ROWS_PER_GROUP: usize = 16_000;
 
@@ -628,7 +628,8 @@ fn write_streaming(
                 .unwrap_or_default()
         };
         std::thread::scope(|scope| {
-            // Two chunks in flight at most: memory stays a few megabytes.
+            // Two chunks queued at most (each about GROUPS_PER_CHUNK × 1.5 MB of text), so
+            // memory stays at a few tens of megabytes however many draws are written.
             let (send, receive) = std::sync::mpsc::sync_channel::<Vec<Vec<u8>>>(2);
             let spare = &spare;
             let writer = scope.spawn(move || -> std::io::Result<()> {
