@@ -148,6 +148,43 @@ pub fn transition_matrix(table: &TunnelTable) -> Vec<Vec<f64>> {
     m
 }
 
+/// The causes a table splits `p_exit` into (its `p_exit_<cause>` columns, in order), with
+/// their values by tunnel; empty when exit is not split.
+pub fn exit_causes(table: &TunnelTable) -> Vec<(&str, &[f64])> {
+    table
+        .extra
+        .iter()
+        .filter_map(|(name, values)| {
+            name.strip_prefix("p_exit_")
+                .map(|cause| (cause, values.as_slice()))
+        })
+        .collect()
+}
+
+/// Transition matrix with one absorbing exit state per cause ([`exit_causes`], in order) after
+/// the tunnel states, so a cohort model can count each cause's exits; the single-exit
+/// [`transition_matrix`] when exit is not split. Rows sum to 1 (the causes sum to `p_exit`).
+pub fn transition_matrix_by_cause(table: &TunnelTable) -> Vec<Vec<f64>> {
+    let causes = exit_causes(table);
+    if causes.is_empty() {
+        return transition_matrix(table);
+    }
+    let n = table.rows.len();
+    let size = n + causes.len();
+    let mut m = vec![vec![0.0; size]; size];
+    for (k, row) in table.rows.iter().enumerate() {
+        let next = if k + 1 < n { k + 1 } else { k };
+        m[k][next] = row.p_next;
+        for (j, (_, values)) in causes.iter().enumerate() {
+            m[k][n + j] = values.get(k).copied().unwrap_or(f64::NAN);
+        }
+    }
+    for j in n..size {
+        m[j][j] = 1.0;
+    }
+    m
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

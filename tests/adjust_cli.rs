@@ -123,6 +123,84 @@ fn add_mode_splits_two_constant_hazards_by_the_competing_risks_formula() {
 }
 
 #[test]
+fn matrix_by_cause_sends_each_cause_to_its_own_exit_state() {
+    // Two constant hazards again: a cohort pushed through the matrix for k cycles has left by
+    // cause j with probability h_j/(h_1 + h_2)·(1 - e^-(h_1+h_2)k) (competing risks with
+    // constant hazards, from memory); rows sum to 1 within 1e-12.
+    let dir = tempfile::tempdir().unwrap();
+    let rows: Vec<(u32, f64)> = (40..60).map(|a| (a, 0.03)).collect();
+    write_table(dir.path(), "life.csv", &rows);
+    let args = [
+        "--family",
+        "exponential",
+        "--param",
+        "rate=0.02",
+        "--time-unit",
+        "months",
+        "--cycle",
+        "1 month",
+        "--count",
+        "24",
+        "--background",
+        "life.csv",
+        "--start-age",
+        "41.3",
+        "--background-mode",
+        "add",
+    ];
+    let mut with_layout = args.to_vec();
+    with_layout.extend(["--layout", "matrix-by-cause"]);
+    let doc = tunnels_json(dir.path(), &with_layout);
+    assert_eq!(doc.metadata["layout"], "matrix-by-cause");
+    let table = &doc.tables[0];
+    let n = 24;
+    assert_eq!(table.columns.len(), 1 + n + 2);
+    assert_eq!(table.columns[n + 1], "exit_disease");
+    assert_eq!(table.columns[n + 2], "exit_background");
+    let matrix: Vec<Vec<f64>> = table
+        .rows
+        .iter()
+        .map(|r| r[1..].iter().map(|v| v.as_f64().unwrap()).collect())
+        .collect();
+    for (i, row) in matrix.iter().enumerate() {
+        let sum: f64 = row.iter().sum();
+        assert!((sum - 1.0).abs() < 1e-12, "row {i} sums to {sum}");
+    }
+    let h_d = 0.02;
+    let h_b = -(0.97f64.ln()) / 12.0;
+    let mut cohort = vec![0.0; n + 2];
+    cohort[0] = 1.0;
+    for k in 1..=n + 10 {
+        let mut next = vec![0.0; n + 2];
+        for (from, share) in cohort.iter().enumerate() {
+            for (to, p) in matrix[from].iter().enumerate() {
+                next[to] += share * p;
+            }
+        }
+        cohort = next;
+        let left = 1.0 - (-(h_d + h_b) * k as f64).exp();
+        let disease = h_d / (h_d + h_b) * left;
+        let background = h_b / (h_d + h_b) * left;
+        assert!((cohort[n] - disease).abs() < 1e-12, "cycle {k}");
+        assert!((cohort[n + 1] - background).abs() < 1e-12, "cycle {k}");
+    }
+    // Without a cause split the layout is refused: exit 2, one line, nothing written.
+    let out = tunnelcast()
+        .current_dir(dir.path())
+        .args(["tunnels"])
+        .args(&args[..10])
+        .args(["--layout", "matrix-by-cause", "--out", "m.csv"])
+        .assert()
+        .code(2)
+        .get_output()
+        .clone();
+    let stderr = String::from_utf8(out.stderr).unwrap();
+    assert_eq!(stderr.lines().count(), 1, "{stderr}");
+    assert!(stderr.contains("--background-mode add"), "{stderr}");
+    assert!(!dir.path().join("m.csv").exists());
+}
+
+#[test]
 fn floor_is_never_below_background_on_any_cycle() {
     // Floor property (issue 4): on every cycle p_exit ≥ the background probability alone,
     // computed independently from the bundled synthetic table; cycles of 3 months crossing birthdays.

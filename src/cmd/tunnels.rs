@@ -4,7 +4,9 @@
 use crate::cmd::curve_args::{parse_unit, CurveArgs};
 use crate::discretise::{count_until, tunnel_table, TunnelTable, MAX_COUNT};
 use crate::error::{Error, Result};
-use crate::export::tunnel::{long_table, matrix_table, tunnel_document, Layout};
+use crate::export::tunnel::{
+    long_table, matrix_by_cause_table, matrix_table, tunnel_document, Layout,
+};
 use crate::export::{exporter_for, number_text, Cell, Table};
 use crate::format::sig;
 use crate::output;
@@ -163,9 +165,18 @@ pub fn render_text(table: &TunnelTable, layout: Layout) -> String {
             let header: Vec<&str> = header.iter().map(String::as_str).collect();
             out.push_str(&crate::format::table_aligned(&header, &rows, 0));
         }
-        Layout::Matrix => {
-            let names = crate::export::tunnel::state_names(table.rows.len());
-            let matrix = crate::discretise::transition_matrix(table);
+        Layout::Matrix | Layout::MatrixByCause => {
+            let (names, matrix) = if layout == Layout::Matrix {
+                (
+                    crate::export::tunnel::state_names(table.rows.len()),
+                    crate::discretise::transition_matrix(table),
+                )
+            } else {
+                (
+                    crate::export::tunnel::state_names_by_cause(table),
+                    crate::discretise::transition_matrix_by_cause(table),
+                )
+            };
             let mut header = vec!["from"];
             header.extend(names.iter().map(String::as_str));
             let rows: Vec<Vec<String>> = names
@@ -197,10 +208,14 @@ fn workbook_tables(
     built: &crate::cmd::curve_args::BuiltCurve,
     curve: &CurveArgs,
 ) -> Result<Vec<Table>> {
-    let other = match layout {
-        Layout::Long => matrix_table(table),
-        Layout::Matrix => long_table(table),
+    let mut other = match layout {
+        Layout::Long => vec![matrix_table(table)],
+        Layout::Matrix | Layout::MatrixByCause => vec![long_table(table)],
     };
+    // A table that splits exit by cause also gets the by-cause matrix (if it is not the main one).
+    if layout != Layout::MatrixByCause && !crate::discretise::exit_causes(table).is_empty() {
+        other.push(matrix_by_cause_table(table));
+    }
     let text = |s: &str| Cell::Text(s.to_string());
     let family = built.base.family;
     let mut rows = vec![vec![text("family"), text(family.name()), Cell::Missing]];
@@ -226,14 +241,12 @@ fn workbook_tables(
         Cell::Text(table.curve.clone()),
         Cell::Missing,
     ]);
-    let mut tables = vec![
-        other,
-        Table {
-            name: "parameters".into(),
-            columns: vec!["item".into(), "value".into(), "unit".into()],
-            rows,
-        },
-    ];
+    let mut tables = other;
+    tables.push(Table {
+        name: "parameters".into(),
+        columns: vec!["item".into(), "value".into(), "unit".into()],
+        rows,
+    });
     if let (Some(path), Some(fit)) = (&curve.fit, &built.fit) {
         let file = crate::fit::FitFile::load(path)?;
         let number = |x: Option<f64>| x.map_or(Cell::Missing, Cell::Number);
@@ -316,6 +329,11 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
     let cycle_in_curve = cycle.in_unit(built.curve.time_unit());
     built.check_horizon(count as f64 * cycle_in_curve)?;
     let table = tunnel_table(built.curve.as_ref(), cycle_in_table, count);
+    if args.layout == Layout::MatrixByCause && crate::discretise::exit_causes(&table).is_empty() {
+        return Err(Error::Usage(
+            "--layout matrix-by-cause needs a curve whose exit is split by cause: add background mortality with --background LIFETABLE.csv --background-mode add".into(),
+        ));
+    }
     let mut metadata = built.metadata.clone();
     let floor = built.floor_report(cycle_in_curve, count);
     metadata.extend(floor.iter().cloned());

@@ -3,7 +3,7 @@
 //! its own.
 
 use super::{Cell, Document, Table};
-use crate::discretise::{transition_matrix, TunnelTable};
+use crate::discretise::{exit_causes, transition_matrix, transition_matrix_by_cause, TunnelTable};
 
 /// Layout of an exported tunnel table.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
@@ -13,6 +13,9 @@ pub enum Layout {
     Long,
     /// Square transition matrix over the tunnel states plus `exit`; rows sum to 1.
     Matrix,
+    /// The matrix with one exit state per cause (`exit_disease`, `exit_background`) instead
+    /// of a single `exit`, for curves that split exit by cause (background mortality added).
+    MatrixByCause,
 }
 
 impl Layout {
@@ -21,6 +24,7 @@ impl Layout {
         match self {
             Layout::Long => "long",
             Layout::Matrix => "matrix",
+            Layout::MatrixByCause => "matrix-by-cause",
         }
     }
 }
@@ -98,23 +102,52 @@ pub fn state_names(count: usize) -> Vec<String> {
     names
 }
 
+/// Names of the by-cause matrix states: `tunnel_1` … `tunnel_N`, then `exit_<cause>` per cause
+/// (just `exit` when exit is not split).
+pub fn state_names_by_cause(table: &TunnelTable) -> Vec<String> {
+    let causes = exit_causes(table);
+    if causes.is_empty() {
+        return state_names(table.rows.len());
+    }
+    let mut names = state_names(table.rows.len());
+    names.pop();
+    names.extend(causes.iter().map(|(cause, _)| format!("exit_{cause}")));
+    names
+}
+
 /// The matrix layout: a `from` column naming the state, then one column per destination state.
 pub fn matrix_table(table: &TunnelTable) -> Table {
-    let names = state_names(table.rows.len());
-    let matrix = transition_matrix(table);
+    named_matrix(
+        "matrix",
+        state_names(table.rows.len()),
+        transition_matrix(table),
+    )
+}
+
+/// The by-cause matrix layout ([`transition_matrix_by_cause`]), laid out as [`matrix_table`].
+pub fn matrix_by_cause_table(table: &TunnelTable) -> Table {
+    named_matrix(
+        "matrix_by_cause",
+        state_names_by_cause(table),
+        transition_matrix_by_cause(table),
+    )
+}
+
+/// A `from` column naming each state, then one column per destination state.
+fn named_matrix(name: &str, names: Vec<String>, matrix: Vec<Vec<f64>>) -> Table {
     let mut columns = vec!["from".to_string()];
     columns.extend(names.iter().cloned());
     let rows = names
         .iter()
         .zip(&matrix)
-        .map(|(name, row)| {
-            let mut cells = vec![Cell::Text(name.clone())];
+        .map(|(state, row)| {
+            let mut cells = vec![Cell::Text(state.clone())];
             cells.extend(row.iter().map(|p| Cell::Number(*p)));
             cells
         })
         .collect();
     Table {
-        name: "matrix".into(),
+        name: name.into(),
         columns,
         rows,
     }
@@ -129,6 +162,7 @@ pub fn tunnel_document(
     let main = match layout {
         Layout::Long => long_table(table),
         Layout::Matrix => matrix_table(table),
+        Layout::MatrixByCause => matrix_by_cause_table(table),
     };
     Document {
         metadata,
