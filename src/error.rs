@@ -49,7 +49,9 @@ impl Error {
         }
     }
 
-    /// An input error at `line` and `column` (1-based number and name) of `file`.
+    /// An input error at `line` and `column` (1-based number and name) of `file`. The name
+    /// comes from the file's header, so it is shown with control characters escaped and cut to
+    /// a readable length: the message stays one line whatever the header holds.
     pub fn at(
         file: &str,
         line: u64,
@@ -60,7 +62,7 @@ impl Error {
         Error::InputAt {
             file: file.to_string(),
             line,
-            column: format!("{column} (\"{name}\")"),
+            column: format!("{column} (\"{}\")", crate::format::shown(name)),
             message: message.into(),
         }
     }

@@ -166,14 +166,14 @@ pub fn find_column(file: &str, headers: &csv::ByteRecord, name: &str) -> Result<
             let hint = crate::units::nearest(name, &refs)
                 .map(|n| format!(" (did you mean \"{n}\"?)"))
                 .unwrap_or_default();
-            let name = shown(name);
             Err(Error::at(
                 file,
                 1,
                 headers.len().max(1),
-                &name,
+                name,
                 format!(
-                    "no column named \"{name}\"{hint}; the header has: {}{}",
+                    "no column named \"{}\"{hint}; the header has: {}{}",
+                    shown(name),
                     names.join(", "),
                     if headers.len() > 12 { ", …" } else { "" }
                 ),
@@ -185,7 +185,8 @@ pub fn find_column(file: &str, headers: &csv::ByteRecord, name: &str) -> Result<
             second + 1,
             name,
             format!(
-                "column \"{name}\" appears more than once (columns {} and {})",
+                "column \"{}\" appears more than once (columns {} and {})",
+                shown(name),
                 first + 1,
                 second + 1
             ),
@@ -299,7 +300,7 @@ fn parse_rows(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Datase
             };
             let name = headers
                 .get(column - 1)
-                .map(|h| shown(String::from_utf8_lossy(h).trim()))
+                .map(|h| String::from_utf8_lossy(h).trim().to_string())
                 .unwrap_or_else(|| "beyond the header".into());
             return Err(Error::at(
                 file,
