@@ -7,10 +7,7 @@
 //! equation 3.31). The smoothed estimate is shown only on [t₁ + b, t_d − b], where the kernel
 //! window lies inside the event times, because it is biased downwards at the edges.
 
-use super::{
-    draw_legend, draw_x_ticks, err, family_colour, grid, nice_ticks, text_style, tick_label, Mark,
-    Plot,
-};
+use super::{draw_legend, draw_x_ticks, err, family_colour, grid, nice_ticks, Mark, Plot};
 use super::{EMPIRICAL, REFERENCE};
 use crate::curve::Curve;
 use crate::km::KaplanMeier;
@@ -129,29 +126,16 @@ impl Plot for HazardPlot<'_> {
         if !(top.is_finite() && top > 0.0) {
             top = 1.0;
         }
-        let mut chart = ChartBuilder::on(&left)
-            .caption(&self.title, text_style(17))
-            .margin(12)
-            .x_label_area_size(44)
-            .y_label_area_size(70)
-            .build_cartesian_2d(0f64..horizon, 0f64..top)
-            .map_err(err)?;
-        chart
-            .configure_mesh()
-            .light_line_style(WHITE)
-            .bold_line_style(super::GRID)
-            .disable_x_mesh()
-            .x_labels(0)
-            .x_desc(format!("Time ({unit})"))
-            .y_desc(format!(
-                "Hazard (per {})",
-                unit.name().trim_end_matches('s')
-            ))
-            .y_label_formatter(&|y| tick_label(*y))
-            .label_style(text_style(13))
-            .axis_desc_style(text_style(14))
-            .draw()
-            .map_err(err)?;
+        let mut chart = super::time_chart(
+            &left,
+            &self.title,
+            70,
+            (0f64..horizon, 0f64..top),
+            (
+                &format!("Time ({unit})"),
+                &format!("Hazard (per {})", unit.name_for(1.0)),
+            ),
+        )?;
         draw_x_ticks(root, &mut chart, &nice_ticks(horizon, 10), (0.0, top))?;
         chart
             .draw_series(std::iter::once(PathElement::new(

@@ -29,6 +29,7 @@ use crate::error::{Error, Result};
 use crate::fit::FitFile;
 use crate::input::Dataset;
 use crate::km::KaplanMeier;
+use plotters::coord::types::RangedCoordf64;
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
@@ -285,6 +286,40 @@ pub fn fit_figures(data: &Dataset, file: &FitFile, horizon: f64) -> Result<Vec<F
 /// Maps any plotters error to text.
 fn err<E: std::fmt::Display>(e: E) -> String {
     e.to_string()
+}
+
+/// A chart over time-like axes in the house style (survival, hazard, tunnels, rebuild): title,
+/// margins, horizontal grid lines only, the y axis labelled with [`tick_label`], and no x tick
+/// labels of its own (callers draw them with [`draw_x_ticks`], at "nice" values).
+fn time_chart<'a, DB: DrawingBackend>(
+    area: &'a DrawingArea<DB, Shift>,
+    title: &str,
+    y_label_area: u32,
+    (x, y): (std::ops::Range<f64>, std::ops::Range<f64>),
+    (x_desc, y_desc): (&str, &str),
+) -> std::result::Result<ChartContext<'a, DB, Cartesian2d<RangedCoordf64, RangedCoordf64>>, String>
+{
+    let mut chart = ChartBuilder::on(area)
+        .caption(title, text_style(17))
+        .margin(12)
+        .x_label_area_size(44)
+        .y_label_area_size(y_label_area)
+        .build_cartesian_2d(x, y)
+        .map_err(err)?;
+    chart
+        .configure_mesh()
+        .light_line_style(WHITE)
+        .bold_line_style(GRID)
+        .disable_x_mesh()
+        .x_labels(0)
+        .x_desc(x_desc)
+        .y_desc(y_desc)
+        .y_label_formatter(&|y| tick_label(*y))
+        .label_style(text_style(13))
+        .axis_desc_style(text_style(14))
+        .draw()
+        .map_err(err)?;
+    Ok(chart)
 }
 
 /// How a legend entry is drawn.

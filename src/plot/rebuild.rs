@@ -2,9 +2,7 @@
 //! the Kaplan–Meier curve of the rebuilt records as a step line, and, under the plot, the
 //! published numbers at risk beside the rebuilt ones at each risk-table time.
 
-use super::{
-    draw_legend, draw_x_ticks, err, nice_ticks, text_style, tick_label, Mark, Plot, FAMILY_COLOURS,
-};
+use super::{draw_legend, draw_x_ticks, err, nice_ticks, text_style, Mark, Plot, FAMILY_COLOURS};
 use crate::km::KaplanMeier;
 use crate::rebuild::AtRiskCheck;
 use crate::units::TimeUnit;
@@ -101,30 +99,17 @@ impl Plot for RebuildPlot {
         let (top, risk) = left.split_vertically(CHART_HEIGHT);
         let end = self.end();
         let ticks = nice_ticks(end, 10);
-        let mut chart = ChartBuilder::on(&top)
-            .caption(&self.title, text_style(17))
-            .margin(12)
-            .x_label_area_size(44)
-            .y_label_area_size(58)
-            .build_cartesian_2d(0f64..end, 0f64..1.0f64)
-            .map_err(err)?;
         let x_desc = match self.unit {
             Some(unit) => format!("Time ({unit})"),
             None => "Time (the figure's unit)".to_string(),
         };
-        chart
-            .configure_mesh()
-            .light_line_style(WHITE)
-            .bold_line_style(super::GRID)
-            .disable_x_mesh()
-            .x_labels(0)
-            .x_desc(x_desc)
-            .y_desc("Survival probability")
-            .y_label_formatter(&|y| tick_label(*y))
-            .label_style(text_style(13))
-            .axis_desc_style(text_style(14))
-            .draw()
-            .map_err(err)?;
+        let mut chart = super::time_chart(
+            &top,
+            &self.title,
+            58,
+            (0f64..end, 0f64..1.0f64),
+            (&x_desc, "Survival probability"),
+        )?;
         draw_x_ticks(root, &mut chart, &ticks, (0.0, 1.0))?;
 
         for (i, arm) in self.arms.iter().enumerate() {

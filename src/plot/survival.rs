@@ -71,26 +71,13 @@ impl Plot for SurvivalPlot<'_> {
             .horizon
             .max(self.km.steps.last().map_or(1.0, |s| s.time));
         let ticks = nice_ticks(horizon, 10);
-        let mut chart = ChartBuilder::on(&top)
-            .caption(&self.title, text_style(17))
-            .margin(12)
-            .x_label_area_size(44)
-            .y_label_area_size(58)
-            .build_cartesian_2d(0f64..horizon, 0f64..1.0f64)
-            .map_err(err)?;
-        chart
-            .configure_mesh()
-            .light_line_style(WHITE)
-            .bold_line_style(super::GRID)
-            .disable_x_mesh()
-            .x_labels(0)
-            .x_desc(format!("Time ({unit})"))
-            .y_desc("Survival probability")
-            .y_label_formatter(&|y| tick_label(*y))
-            .label_style(text_style(13))
-            .axis_desc_style(text_style(14))
-            .draw()
-            .map_err(err)?;
+        let mut chart = super::time_chart(
+            &top,
+            &self.title,
+            58,
+            (0f64..horizon, 0f64..1.0f64),
+            (&format!("Time ({unit})"), "Survival probability"),
+        )?;
         draw_x_ticks(root, &mut chart, &ticks, (0.0, 1.0))?;
 
         let upper = step_path(self.km, |s| s.upper, 1.0);

@@ -52,30 +52,20 @@ impl Plot for TunnelPlot<'_> {
             .fold(0.0f64, f64::max)
             .max(1e-9)
             * 1.1;
-        let mut chart = ChartBuilder::on(&left)
-            .caption(&self.title, text_style(17))
-            .margin(12)
-            .x_label_area_size(44)
-            .y_label_area_size(70)
-            .build_cartesian_2d(0f64..last + 1.0, 0f64..top.min(1.0))
-            .map_err(err)?;
-        chart
-            .configure_mesh()
-            .light_line_style(WHITE)
-            .bold_line_style(super::GRID)
-            .disable_x_mesh()
-            .x_labels(0)
-            .x_desc(format!(
-                "Tunnel state (cycle of {} {} since entry)",
-                tick_label(self.table.cycle),
-                self.table.time_unit
-            ))
-            .y_desc("p_exit (per cycle)")
-            .y_label_formatter(&|y| tick_label(*y))
-            .label_style(text_style(13))
-            .axis_desc_style(text_style(14))
-            .draw()
-            .map_err(err)?;
+        let mut chart = super::time_chart(
+            &left,
+            &self.title,
+            70,
+            (0f64..last + 1.0, 0f64..top.min(1.0)),
+            (
+                &format!(
+                    "Tunnel state (cycle of {} {} since entry)",
+                    tick_label(self.table.cycle),
+                    self.table.time_unit
+                ),
+                "p_exit (per cycle)",
+            ),
+        )?;
         let y_top = top.min(1.0);
         let ticks: Vec<f64> = nice_ticks(last + 1.0, 10)
             .into_iter()
