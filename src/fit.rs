@@ -628,27 +628,11 @@ pub fn fit_family(family: &dyn Family, data: &FitData, arm: Option<&str>) -> Fam
         .iter()
         .map(|s| s.to_string())
         .collect();
-    let mut fit = FamilyFit {
-        family: family.name().to_string(),
-        arm: arm.map(str::to_string),
-        params: BTreeMap::new(),
-        loglik: None,
-        aic: None,
-        bic: None,
-        converged: false,
-        covariance: None,
-        estimates: Vec::new(),
-        intervals: BTreeMap::new(),
-        delta_aic: None,
-        median: None,
-        gradient_max: None,
-        message: None,
-        settings: family.settings(),
-    };
     let Some(best) = best else {
-        fit.message = Some("no starting point gave a finite log-likelihood".into());
-        return fit;
+        let why = "no starting point gave a finite log-likelihood";
+        return empty_fit(family, arm, Some(why.into()));
     };
+    let mut fit = empty_fit(family, arm, None);
     let info = match &forward_steps {
         Some(steps) => information_forward(family, data, &best, steps),
         None => information(family, &best.theta, data),
@@ -777,16 +761,17 @@ pub fn fit_arm(
         .par_iter()
         .map(|f| match f.for_data(&data) {
             Ok(configured) => fit_family(configured.unwrap_or(*f), &data, arm),
-            Err(why) => failed_fit(*f, arm, why),
+            Err(why) => empty_fit(*f, arm, Some(why)),
         })
         .collect();
     rank_by_aic(&mut fits);
     fits
 }
 
-/// The record of a family that could not be fitted to this arm at all (e.g. a piecewise
-/// interval without events), so that it is reported beside the others.
-fn failed_fit(family: &dyn Family, arm: Option<&str>, why: String) -> FamilyFit {
+/// A record of `family` on this arm with nothing estimated: with the reason, a family that
+/// could not be fitted (e.g. a piecewise interval without events, or no finite starting point),
+/// reported beside the others; without, the record a successful fit fills in.
+fn empty_fit(family: &dyn Family, arm: Option<&str>, why: Option<String>) -> FamilyFit {
     FamilyFit {
         family: family.name().to_string(),
         arm: arm.map(str::to_string),
@@ -801,7 +786,7 @@ fn failed_fit(family: &dyn Family, arm: Option<&str>, why: String) -> FamilyFit 
         delta_aic: None,
         median: None,
         gradient_max: None,
-        message: Some(why),
+        message: why,
         settings: family.settings(),
     }
 }
