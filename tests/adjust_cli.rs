@@ -74,6 +74,26 @@ fn write_table(dir: &Path, name: &str, rows: &[(u32, f64)]) {
     std::fs::write(dir.join(name), text).unwrap();
 }
 
+/// A constant disease hazard (0.02 a month) with background mortality added from a table of
+/// constant qx = 0.03 (`life.csv`, ages 40–59) from age 41.3: two constant competing hazards.
+/// The first 8 words give the curve and cycle alone.
+const TWO_CONSTANT_HAZARDS: [&str; 14] = [
+    "--family",
+    "exponential",
+    "--param",
+    "rate=0.02",
+    "--time-unit",
+    "months",
+    "--cycle",
+    "1 month",
+    "--background",
+    "life.csv",
+    "--start-age",
+    "41.3",
+    "--background-mode",
+    "add",
+];
+
 #[test]
 fn add_mode_splits_two_constant_hazards_by_the_competing_risks_formula() {
     // Two constant hazards: P(cause j within Δ) = h_j/(h_1 + h_2)·(1 - e^-(h_1+h_2)Δ)
@@ -81,27 +101,9 @@ fn add_mode_splits_two_constant_hazards_by_the_competing_risks_formula() {
     let dir = tempfile::tempdir().unwrap();
     let rows: Vec<(u32, f64)> = (40..60).map(|a| (a, 0.03)).collect();
     write_table(dir.path(), "life.csv", &rows);
-    let doc = tunnels_json(
-        dir.path(),
-        &[
-            "--family",
-            "exponential",
-            "--param",
-            "rate=0.02",
-            "--time-unit",
-            "months",
-            "--cycle",
-            "1 month",
-            "--count",
-            "120",
-            "--background",
-            "life.csv",
-            "--start-age",
-            "41.3",
-            "--background-mode",
-            "add",
-        ],
-    );
+    let mut args = TWO_CONSTANT_HAZARDS.to_vec();
+    args.extend(["--count", "120"]);
+    let doc = tunnels_json(dir.path(), &args);
     assert_eq!(doc.metadata["background_mode"], "add");
     assert_eq!(doc.metadata["start_age"], "41.3");
     assert_eq!(doc.metadata["background_table"], "life.csv");
@@ -130,26 +132,8 @@ fn matrix_by_cause_sends_each_cause_to_its_own_exit_state() {
     let dir = tempfile::tempdir().unwrap();
     let rows: Vec<(u32, f64)> = (40..60).map(|a| (a, 0.03)).collect();
     write_table(dir.path(), "life.csv", &rows);
-    let args = [
-        "--family",
-        "exponential",
-        "--param",
-        "rate=0.02",
-        "--time-unit",
-        "months",
-        "--cycle",
-        "1 month",
-        "--count",
-        "24",
-        "--background",
-        "life.csv",
-        "--start-age",
-        "41.3",
-        "--background-mode",
-        "add",
-    ];
-    let mut with_layout = args.to_vec();
-    with_layout.extend(["--layout", "matrix-by-cause"]);
+    let mut with_layout = TWO_CONSTANT_HAZARDS.to_vec();
+    with_layout.extend(["--count", "24", "--layout", "matrix-by-cause"]);
     let doc = tunnels_json(dir.path(), &with_layout);
     assert_eq!(doc.metadata["layout"], "matrix-by-cause");
     let table = &doc.tables[0];
@@ -188,8 +172,15 @@ fn matrix_by_cause_sends_each_cause_to_its_own_exit_state() {
     let out = tunnelcast()
         .current_dir(dir.path())
         .args(["tunnels"])
-        .args(&args[..10])
-        .args(["--layout", "matrix-by-cause", "--out", "m.csv"])
+        .args(&TWO_CONSTANT_HAZARDS[..8])
+        .args([
+            "--count",
+            "24",
+            "--layout",
+            "matrix-by-cause",
+            "--out",
+            "m.csv",
+        ])
         .assert()
         .code(2)
         .get_output()
