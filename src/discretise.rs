@@ -53,6 +53,16 @@ pub fn exit_probability(log_s0: f64, log_s1: f64) -> f64 {
     (-(log_s1 - log_s0).exp_m1()).clamp(0.0, 1.0)
 }
 
+/// exp(log_s), with 0 straight away where the result is below the smallest double: the
+/// library's underflow path is slow, and long tables of short-lived curves hit it every row.
+fn survival_from_log(log_s: f64) -> f64 {
+    if log_s < -746.0 {
+        0.0
+    } else {
+        log_s.exp()
+    }
+}
+
 /// Computes `count` tunnel states of length `cycle` from `curve`.
 pub fn tunnel_table(curve: &dyn Curve, cycle: Duration, count: usize) -> TunnelTable {
     let unit = cycle.unit;
@@ -60,13 +70,13 @@ pub fn tunnel_table(curve: &dyn Curve, cycle: Duration, count: usize) -> TunnelT
     let mut rows = Vec::with_capacity(count);
     let mut by_cause: Vec<(String, Vec<f64>)> = Vec::new();
     let mut log_s0 = curve.log_survival(0.0);
-    let mut surv_start = log_s0.exp();
+    let mut surv_start = survival_from_log(log_s0);
     for k in 1..=count {
         let t_start = (k - 1) as f64 * cycle.value;
         let t_end = k as f64 * cycle.value;
         let log_s1 = curve.log_survival(t_end * to_curve);
         let p_exit = exit_probability(log_s0, log_s1);
-        let surv_end = log_s1.exp();
+        let surv_end = survival_from_log(log_s1);
         rows.push(TunnelRow {
             tunnel: k,
             t_start,
