@@ -279,6 +279,94 @@ pub fn groups_in_chunks<T: Send>(
     Ok(())
 }
 
+/// Like [`groups_in_chunks`] without the pauses between chunks: each of the worker threads
+/// (as many as rayon's pool has) takes the next group of `groups.0` draws as soon as it is
+/// free, and `sink` gets every group's value, in draw order, on the calling thread while the
+/// workers go on (for a file, the calling thread writes while they format). At most
+/// `groups.1` groups are computed but not yet sunk, so memory stays bounded. `sink` gets the
+/// 0-based index of the group's first draw. Checks `control.stop` between groups.
+pub fn groups_streamed<T: Send>(
+    params: &[Vec<f64>],
+    groups: (usize, usize),
+    build: &CurveBuilder<'_>,
+    (cycle, count): (Duration, usize),
+    control: &Control<'_>,
+    per_group: impl Fn(usize, Vec<TunnelTable>) -> Result<T> + Sync,
+    mut sink: impl FnMut(usize, T) -> Result<()>,
+) -> Result<()> {
+    use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
+    use std::sync::{mpsc, Mutex};
+    let group = groups.0.max(1);
+    let total = params.len().div_ceil(group);
+    let workers = rayon::current_num_threads().clamp(1, total.max(1));
+    let compute = |g: usize| -> Result<T> {
+        let start = g * group;
+        let draws = &params[start..(start + group).min(params.len())];
+        let tables = draws
+            .iter()
+            .enumerate()
+            .map(|(i, p)| {
+                let curve = build(p)
+                    .map_err(|e| Error::Computation(format!("draw {}: {e}", start + i + 1)))?;
+                Ok(tunnel_table(curve.as_ref(), cycle, count))
+            })
+            .collect::<Result<Vec<_>>>()?;
+        per_group(start, tables)
+    };
+    // A worker needs a permit to start a group; the calling thread gives one back each time
+    // it has sunk a group, which bounds the groups in flight.
+    let (permit_back, permits) = mpsc::channel::<()>();
+    for _ in 0..groups.1.max(workers) {
+        let _ = permit_back.send(());
+    }
+    let permits = Mutex::new(permits);
+    let next = AtomicUsize::new(0);
+    let stopped = AtomicBool::new(false);
+    let (done, results) = mpsc::channel::<(usize, Result<T>)>();
+    std::thread::scope(|scope| {
+        for _ in 0..workers {
+            let done = done.clone();
+            let (permits, next, stopped, compute) = (&permits, &next, &stopped, &compute);
+            scope.spawn(move || loop {
+                let permit = permits.lock().map(|p| p.recv().is_ok()).unwrap_or(false);
+                if !permit || stopped.load(Ordering::Relaxed) {
+                    break;
+                }
+                let g = next.fetch_add(1, Ordering::Relaxed);
+                if g >= total || done.send((g, compute(g))).is_err() {
+                    break;
+                }
+            });
+        }
+        drop(done);
+        let mut waiting = std::collections::BTreeMap::new();
+        let mut sunk = 0;
+        let outcome = (|| -> Result<()> {
+            while sunk < total {
+                if let Some(e) = (control.stop)() {
+                    return Err(e);
+                }
+                let (g, value) = results
+                    .recv()
+                    .map_err(|_| Error::Computation("a worker thread stopped".into()))?;
+                waiting.insert(g, value?);
+                while let Some(value) = waiting.remove(&sunk) {
+                    sink(sunk * group, value)?;
+                    let start = sunk * group;
+                    (control.advance)(((start + group).min(params.len()) - start) as u64);
+                    sunk += 1;
+                    let _ = permit_back.send(());
+                }
+            }
+            Ok(())
+        })();
+        // Workers waiting for a permit wake up to a closed channel and stop.
+        stopped.store(true, Ordering::Relaxed);
+        drop(permit_back);
+        outcome
+    })
+}
+
 /// Percentile `p` (0–1) by linear interpolation between order statistics, h = (n - 1)·p
 /// (Hyndman and Fan, 1996, definition 7), found by selection rather than a full sort (the
 /// values are reordered). NaN for no values.
@@ -297,26 +385,26 @@ pub fn percentile(values: &mut [f64], p: f64) -> f64 {
     }
 }
 
-/// The `p_exit` columns of `tables` laid end to end, `count` values each (NaN where a table
-/// is shorter), as [`SummaryBuilder::add_columns`] takes them.
-pub fn p_exit_columns(tables: &[TunnelTable], count: usize) -> Vec<f64> {
-    let mut out = Vec::with_capacity(tables.len() * count);
-    for table in tables {
-        push_column(&mut out, table, count);
-    }
-    out
+/// `p_exit` of a run of consecutive draws, tunnel by tunnel: `values[k * draws + d]` is
+/// tunnel `k` (0-based) in the run's draw `d`, NaN where a table is shorter. Built by the
+/// thread that computed the tables, so the summary later reads each tunnel in a few long
+/// runs instead of one value per draw scattered over memory.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PExitBlock {
+    draws: usize,
+    values: Vec<f64>,
 }
 
-/// Appends `table`'s `p_exit` column, `count` values.
-fn push_column(out: &mut Vec<f64>, table: &TunnelTable, count: usize) {
-    out.extend(
-        table
-            .rows
-            .iter()
-            .map(|r| r.p_exit)
-            .chain(std::iter::repeat(f64::NAN))
-            .take(count),
-    );
+/// The [`PExitBlock`] of `tables` (consecutive draws), `count` tunnels each.
+pub fn p_exit_block(tables: &[TunnelTable], count: usize) -> PExitBlock {
+    let draws = tables.len();
+    let mut values = vec![f64::NAN; draws * count];
+    for (d, table) in tables.iter().enumerate() {
+        for (k, row) in table.rows.iter().take(count).enumerate() {
+            values[k * draws + d] = row.p_exit;
+        }
+    }
+    PExitBlock { draws, values }
 }
 
 /// One tunnel's summary over the draws.
@@ -339,42 +427,53 @@ pub struct SummaryRow {
 }
 
 /// Collects `p_exit` of every draw for the summary; memory is draws × tunnels numbers, kept
-/// draw by draw (adding a draw is one copy of its column; the summary reads tunnel by tunnel).
+/// in the blocks of consecutive draws they were added in (tunnel by tunnel within a block).
 #[derive(Debug, Clone)]
 pub struct SummaryBuilder {
     point: TunnelTable,
-    by_draw: Vec<f64>,
+    values: Vec<f64>,
+    /// Where each block starts in `values`, and its number of draws.
+    blocks: Vec<(usize, usize)>,
 }
 
 impl SummaryBuilder {
     /// A summary around the point estimate's table, with room for `draws` draws.
     pub fn new(point: TunnelTable, draws: usize) -> Self {
-        let by_draw = Vec::with_capacity(draws.saturating_mul(point.rows.len()));
-        SummaryBuilder { point, by_draw }
+        let values = Vec::with_capacity(draws.saturating_mul(point.rows.len()));
+        SummaryBuilder {
+            point,
+            values,
+            blocks: Vec::new(),
+        }
     }
 
     /// Adds one draw's table (same cycle and count as the point estimate).
     pub fn add(&mut self, table: &TunnelTable) {
-        push_column(&mut self.by_draw, table, self.point.rows.len());
+        self.add_block(&p_exit_block(
+            std::slice::from_ref(table),
+            self.point.rows.len(),
+        ));
     }
 
-    /// Adds the `p_exit` columns of consecutive draws laid end to end (as many values per
-    /// draw as the point estimate has tunnels): [`SummaryBuilder::add`] done ahead in parallel.
-    pub fn add_columns(&mut self, p_exit: &[f64]) {
-        self.by_draw.extend_from_slice(p_exit);
+    /// Adds the `p_exit` of a run of consecutive draws ([`p_exit_block`], with as many
+    /// tunnels as the point estimate): [`SummaryBuilder::add`] done ahead in parallel.
+    pub fn add_block(&mut self, block: &PExitBlock) {
+        self.blocks.push((self.values.len(), block.draws));
+        self.values.extend_from_slice(&block.values);
     }
 
     /// Number of draws added.
     fn draws(&self) -> usize {
-        self.by_draw.len() / self.point.rows.len().max(1)
+        self.blocks.iter().map(|&(_, n)| n).sum()
     }
 
     /// `p_exit` of tunnel `k` (0-based) in every draw, in the order added.
     fn tunnel(&self, k: usize) -> Vec<f64> {
-        let count = self.point.rows.len();
-        (0..self.draws())
-            .map(|d| self.by_draw[d * count + k])
-            .collect()
+        let mut out = Vec::with_capacity(self.draws());
+        for &(start, n) in &self.blocks {
+            out.extend_from_slice(&self.values[start + k * n..start + (k + 1) * n]);
+        }
+        out
     }
 
     /// `p_exit` per tunnel (outer) and draw (inner, in the order added).
@@ -627,13 +726,13 @@ mod tests {
             &build,
             (cycle, 12),
             &Control::none(),
-            |start, tables| Ok((start, p_exit_columns(&tables, 12), tables)),
+            |start, tables| Ok((start, p_exit_block(&tables, 12), tables)),
             |groups| {
                 for (start, columns, tables) in groups {
                     assert_eq!(start, next);
                     assert_eq!(tables, seen[start..start + tables.len()]);
                     next += tables.len();
-                    summary.add_columns(&columns);
+                    summary.add_block(&columns);
                 }
                 Ok(())
             },
@@ -645,7 +744,92 @@ mod tests {
         seen.iter().for_each(|t| by_table.add(t));
         assert_eq!(summary.values(), by_table.values());
         assert_eq!(summary.values()[11][149], seen[149].rows[11].p_exit);
-        assert_eq!(summary.finish(), by_table.finish());
+        assert_eq!(summary.finish(), by_table.clone().finish());
+
+        // Streamed: the same groups reach the sink in draw order, with at most 2 in flight,
+        // however the workers finish; the summary built from them is the same again.
+        let mut next = 0;
+        let mut streamed = SummaryBuilder::new(seen[0].clone(), 150);
+        groups_streamed(
+            &params,
+            (7, 2),
+            &build,
+            (cycle, 12),
+            &Control::none(),
+            |start, tables| Ok((start, p_exit_block(&tables, 12), tables)),
+            |first, (start, block, tables)| {
+                assert_eq!((first, start), (next, next));
+                assert_eq!(tables, seen[start..start + tables.len()]);
+                next += tables.len();
+                streamed.add_block(&block);
+                Ok(())
+            },
+        )
+        .unwrap();
+        assert_eq!(next, 150);
+        assert_eq!(streamed.finish(), by_table.finish());
+    }
+
+    #[test]
+    fn a_failed_group_or_sink_stops_the_stream_with_its_error() {
+        let params = vec![vec![1.0, 10.0]; 200];
+        let build = |p: &[f64]| -> std::result::Result<Box<dyn Curve>, String> {
+            Ok(Box::new(ParametricCurve::new(
+                &Weibull,
+                p.to_vec(),
+                TimeUnit::Days,
+            )?))
+        };
+        let cycle = Duration {
+            value: 1.0,
+            unit: TimeUnit::Days,
+        };
+        let mut sunk = Vec::new();
+        let result = groups_streamed(
+            &params,
+            (5, 3),
+            &build,
+            (cycle, 4),
+            &Control::none(),
+            |start, _| match start {
+                100 => Err(Error::Computation("group at draw 101 failed".into())),
+                _ => Ok(start),
+            },
+            |first, _| {
+                sunk.push(first);
+                Ok(())
+            },
+        );
+        assert!(result.unwrap_err().to_string().contains("draw 101 failed"));
+        // Everything before the failed group was sunk in order, nothing after it.
+        assert!(sunk.iter().enumerate().all(|(i, &first)| first == 5 * i));
+        assert!(sunk.len() <= 20);
+        let result = groups_streamed(
+            &params,
+            (5, 3),
+            &build,
+            (cycle, 4),
+            &Control::none(),
+            |start, _| Ok(start),
+            |first, _| match first {
+                50 => Err(Error::Computation("cannot write".into())),
+                _ => Ok(()),
+            },
+        );
+        assert!(result.unwrap_err().to_string().contains("cannot write"));
+        // A draw whose curve cannot be built names the draw.
+        let mut bad = params.clone();
+        bad[42] = vec![-1.0, 10.0];
+        let result = groups_streamed(
+            &bad,
+            (5, 3),
+            &build,
+            (cycle, 4),
+            &Control::none(),
+            |start, _| Ok(start),
+            |_, _| Ok(()),
+        );
+        assert!(result.unwrap_err().to_string().contains("draw 43"));
     }
 
     #[test]

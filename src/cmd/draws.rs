@@ -584,16 +584,17 @@ pub fn run(args: DrawsArgs) -> Result<()> {
 /// monthly tunnels; fewer draws per group for longer tables, so memory stays bounded).
 const ROWS_PER_GROUP: usize = 16_000;
 
-/// Groups per chunk when streaming: enough to keep every core busy between chunks.
-const GROUPS_PER_CHUNK: usize = 8;
+/// Groups computed ahead of the writing when streaming: enough to keep every core busy while
+/// the calling thread writes, few enough to keep memory at a few tens of megabytes.
+const GROUPS_IN_FLIGHT: usize = 24;
 
 /// Bytes of the streamed long layout after which the writing thread waits for the disk.
 const SETTLE_BYTES: usize = 64 << 20;
 
-/// Writes the long layout chunk by chunk: the header block and column names through
-/// [`Exporter::render`], then each chunk's draws formatted in parallel
-/// ([`Exporter::append_draw_rows`]) and handed, in draw order, to a writer thread, so the disk
-/// writes overlap the next chunk's tables.
+/// Writes the long layout group by group: the header block and column names through
+/// [`Exporter::render`], then groups of draws formatted by worker threads
+/// ([`Exporter::append_draw_rows`]) and written in draw order by the calling thread, so the
+/// disk writes overlap the next groups' tables.
 #[allow(clippy::too_many_arguments)]
 fn write_streaming(
     target: &Target,
@@ -617,77 +618,45 @@ fn write_streaming(
     let io = |e: std::io::Error| Error::output(&target.path, format!("cannot write: {e}"));
     output::write_atomic_with(&target.path, |file| {
         file.write_all(&head).map_err(io)?;
-        // Written buffers come back for reuse: fresh megabyte buffers for every chunk would be
+        // Written buffers come back for reuse: fresh megabyte buffers for every group would be
         // returned to the system and faulted in again, which costs more than formatting.
         let spare: std::sync::Mutex<Vec<Vec<u8>>> = std::sync::Mutex::new(Vec::new());
-        let take_spare = || {
-            spare
-                .lock()
-                .ok()
-                .and_then(|mut s| s.pop())
-                .unwrap_or_default()
-        };
-        std::thread::scope(|scope| {
-            // Two chunks queued at most (each about GROUPS_PER_CHUNK × 1.5 MB of text), so
-            // memory stays at a few tens of megabytes however many draws are written.
-            let (send, receive) = std::sync::mpsc::sync_channel::<Vec<Vec<u8>>>(2);
-            let spare = &spare;
-            let writer = scope.spawn(move || -> std::io::Result<()> {
-                let mut unsettled = 0;
-                for pieces in receive {
-                    for mut piece in pieces {
-                        file.write_all(&piece)?;
-                        unsettled += piece.len();
-                        piece.clear();
-                        if let Ok(mut s) = spare.lock() {
-                            s.push(piece);
-                        }
-                    }
-                    // The disk catches up while the tables are computed, not after the end.
-                    if unsettled >= SETTLE_BYTES {
-                        file.settle()?;
-                        unsettled = 0;
-                    }
+        let mut unsettled = 0;
+        draws::groups_streamed(
+            params,
+            ((ROWS_PER_GROUP / count.max(1)).max(1), GROUPS_IN_FLIGHT),
+            build,
+            (cycle, count),
+            &run.control(),
+            |first, tables| {
+                let reused = spare.lock().ok().and_then(|mut s| s.pop());
+                let mut bytes = reused.unwrap_or_default();
+                bytes.reserve(100 * count * tables.len());
+                if let Some(done) = target
+                    .exporter
+                    .append_draw_rows(first + 1, &tables, &mut bytes)
+                {
+                    done?;
+                }
+                Ok((bytes, draws::p_exit_block(&tables, count)))
+            },
+            |_, (mut bytes, block)| {
+                summary.add_block(&block);
+                file.write_all(&bytes).map_err(io)?;
+                unsettled += bytes.len();
+                // Where the disk takes the bytes through the page cache, it catches up while
+                // the tables are computed, not after the end.
+                if unsettled >= SETTLE_BYTES {
+                    file.settle().map_err(io)?;
+                    unsettled = 0;
+                }
+                bytes.clear();
+                if let Ok(mut s) = spare.lock() {
+                    s.push(bytes);
                 }
                 Ok(())
-            });
-            let computed = draws::groups_in_chunks(
-                params,
-                ((ROWS_PER_GROUP / count.max(1)).max(1), GROUPS_PER_CHUNK),
-                build,
-                (cycle, count),
-                &run.control(),
-                |first, tables| {
-                    let mut bytes = take_spare();
-                    bytes.reserve(100 * count * tables.len());
-                    if let Some(done) =
-                        target
-                            .exporter
-                            .append_draw_rows(first + 1, &tables, &mut bytes)
-                    {
-                        done?;
-                    }
-                    Ok((bytes, draws::p_exit_columns(&tables, count)))
-                },
-                |groups| {
-                    let mut pieces = Vec::with_capacity(groups.len());
-                    for (bytes, columns) in groups {
-                        summary.add_columns(&columns);
-                        pieces.push(bytes);
-                    }
-                    // A closed channel means the writer stopped on an error, reported below.
-                    send.send(pieces)
-                        .map_err(|_| Error::output(&target.path, "cannot write"))
-                },
-            );
-            drop(send);
-            let written = writer
-                .join()
-                .map_err(|_| Error::output(&target.path, "the writing thread failed"))?;
-            // The writer's own error explains a failed send, so it comes first.
-            written.map_err(io)?;
-            computed
-        })?;
+            },
+        )?;
         match run.interrupted() {
             Some(e) => Err(e),
             None => Ok(()),
