@@ -501,7 +501,7 @@ pub fn run(args: DrawsArgs) -> Result<()> {
     let streaming = out
         .as_ref()
         .filter(|t| args.layout == DrawLayout::Long && t.exporter.render_more_rows(&[]).is_some());
-    match streaming {
+    let rows = match streaming {
         Some(t) => write_streaming(
             t,
             &point,
@@ -509,7 +509,7 @@ pub fn run(args: DrawsArgs) -> Result<()> {
             &params,
             &build,
             cycle_in_table,
-            &mut summary,
+            summary,
             &run,
         )?,
         None => {
@@ -534,18 +534,19 @@ pub fn run(args: DrawsArgs) -> Result<()> {
             if let Some(e) = run.interrupted() {
                 return Err(e);
             }
-            if let Some(t) = &out {
-                let main = match args.layout {
-                    DrawLayout::Long => Table {
-                        name: "draws".into(),
-                        columns: draw_columns(&point),
-                        rows: long,
-                    },
-                    DrawLayout::Wide => wide_table(&point, &summary.values()),
-                };
+            let main = out.as_ref().map(|_| match args.layout {
+                DrawLayout::Long => Table {
+                    name: "draws".into(),
+                    columns: draw_columns(&point),
+                    rows: long,
+                },
+                DrawLayout::Wide => wide_table(&point, &summary.values()),
+            });
+            let rows = summary.finish();
+            if let (Some(t), Some(main)) = (&out, main) {
                 let mut tables = vec![main];
                 if t.exporter.holds_several_tables() || t.exporter.extension() == "json" {
-                    tables.push(summary_table(&summary.clone().finish()));
+                    tables.push(summary_table(&rows));
                     tables.push(parameter_table(family, &params));
                 }
                 let document = Document {
@@ -558,10 +559,10 @@ pub fn run(args: DrawsArgs) -> Result<()> {
                 }
                 output::write_atomic(&t.path, &bytes)?;
             }
+            rows
         }
-    }
+    };
     drop(run);
-    let rows = summary.finish();
     if let Some(t) = &summary_out {
         let mut summary_metadata = metadata.clone();
         summary_metadata.retain(|(k, _)| k != "layout" && k != "wide_layout");
@@ -603,9 +604,9 @@ fn write_streaming(
     params: &[Vec<f64>],
     build: &CurveBuilder<'_>,
     cycle: Duration,
-    summary: &mut SummaryBuilder,
+    mut summary: SummaryBuilder,
     run: &LongRun,
-) -> Result<()> {
+) -> Result<Vec<SummaryRow>> {
     let head = target.exporter.render(&Document {
         metadata: metadata.to_vec(),
         tables: vec![Table {
@@ -616,6 +617,7 @@ fn write_streaming(
     })?;
     let count = point.rows.len();
     let io = |e: std::io::Error| Error::output(&target.path, format!("cannot write: {e}"));
+    let mut rows = None;
     output::write_atomic_with(&target.path, |file| {
         file.write_all(&head).map_err(io)?;
         // Written buffers come back for reuse: fresh megabyte buffers for every group would be
@@ -657,11 +659,13 @@ fn write_streaming(
                 Ok(())
             },
         )?;
-        match run.interrupted() {
-            Some(e) => Err(e),
-            None => Ok(()),
+        if let Some(e) = run.interrupted() {
+            return Err(e);
         }
-    })
+        rows = Some(summary.finish());
+        Ok(())
+    })?;
+    rows.ok_or_else(|| Error::Computation("the summary was not worked out".into()))
 }
 
 #[cfg(test)]
