@@ -351,8 +351,8 @@ pub fn groups_streamed<T: Send>(
                     .map_err(|_| Error::Computation("a worker thread stopped".into()))?;
                 waiting.insert(g, value?);
                 while let Some(value) = waiting.remove(&sunk) {
-                    sink(sunk * group, value)?;
                     let start = sunk * group;
+                    sink(start, value)?;
                     (control.advance)(((start + group).min(params.len()) - start) as u64);
                     sunk += 1;
                     let _ = permit_back.send(());
@@ -728,11 +728,11 @@ mod tests {
             &Control::none(),
             |start, tables| Ok((start, p_exit_block(&tables, 12), tables)),
             |groups| {
-                for (start, columns, tables) in groups {
+                for (start, block, tables) in groups {
                     assert_eq!(start, next);
                     assert_eq!(tables, seen[start..start + tables.len()]);
                     next += tables.len();
-                    summary.add_block(&columns);
+                    summary.add_block(&block);
                 }
                 Ok(())
             },

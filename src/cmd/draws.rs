@@ -589,7 +589,8 @@ const ROWS_PER_GROUP: usize = 16_000;
 /// the calling thread writes, few enough to keep memory at a few tens of megabytes.
 const GROUPS_IN_FLIGHT: usize = 24;
 
-/// Bytes of the streamed long layout after which the writing thread waits for the disk.
+/// Bytes of the streamed long layout after which the calling thread waits for the disk, where
+/// the file system takes no direct writes (see [`output::Staged::settle`]).
 const SETTLE_BYTES: usize = 64 << 20;
 
 /// Writes the long layout group by group: the header block and column names through
@@ -617,7 +618,6 @@ fn write_streaming(
     })?;
     let count = point.rows.len();
     let io = |e: std::io::Error| Error::output(&target.path, format!("cannot write: {e}"));
-    let mut rows = None;
     output::write_atomic_with(&target.path, |file| {
         file.write_all(&head).map_err(io)?;
         // Written buffers come back for reuse: fresh megabyte buffers for every group would be
@@ -659,13 +659,12 @@ fn write_streaming(
                 Ok(())
             },
         )?;
-        if let Some(e) = run.interrupted() {
-            return Err(e);
+        match run.interrupted() {
+            Some(e) => Err(e),
+            None => Ok(()),
         }
-        rows = Some(summary.finish());
-        Ok(())
     })?;
-    rows.ok_or_else(|| Error::Computation("the summary was not worked out".into()))
+    Ok(summary.finish())
 }
 
 #[cfg(test)]
