@@ -216,73 +216,40 @@ pub fn tables_in_chunks(
     control: &Control<'_>,
     mut sink: impl FnMut(usize, Vec<TunnelTable>) -> Result<()>,
 ) -> Result<()> {
-    let mut first = 0;
-    groups_in_chunks(
-        params,
-        (1, CHUNK),
-        build,
-        (cycle, count),
-        control,
-        |_, tables| Ok(tables),
-        |groups| {
-            let tables: Vec<TunnelTable> = groups.into_iter().flatten().collect();
-            let n = tables.len();
-            sink(first, tables)?;
-            first += n;
-            Ok(())
-        },
-    )
-}
-
-/// Like [`tables_in_chunks`], with each chunk of `groups.0 × groups.1` draws split into groups
-/// of `groups.0` consecutive draws: one parallel task computes a group's tables and turns them
-/// at once into a value with `per_group(0-based index of the group's first draw, tables)`
-/// (e.g. their bytes in a file), so computing and formatting share one pass over the data.
-/// `sink` gets each chunk's values in draw order. Checks `control.stop` between chunks.
-pub fn groups_in_chunks<T: Send>(
-    params: &[Vec<f64>],
-    groups: (usize, usize),
-    build: &CurveBuilder<'_>,
-    (cycle, count): (Duration, usize),
-    control: &Control<'_>,
-    per_group: impl Fn(usize, Vec<TunnelTable>) -> Result<T> + Sync,
-    mut sink: impl FnMut(Vec<T>) -> Result<()>,
-) -> Result<()> {
-    let group = groups.0.max(1);
-    let chunk_len = group * groups.1.max(1);
-    for (c, chunk) in params.chunks(chunk_len).enumerate() {
+    for (c, chunk) in params.chunks(CHUNK).enumerate() {
         if let Some(e) = (control.stop)() {
             return Err(e);
         }
-        let first = c * chunk_len;
-        let values: Vec<T> = chunk
-            .par_chunks(group)
+        let first = c * CHUNK;
+        let tables = chunk
+            .par_iter()
             .enumerate()
-            .map(|(g, draws)| {
-                let start = first + g * group;
-                let tables = draws
-                    .iter()
-                    .enumerate()
-                    .map(|(i, p)| {
-                        let curve = build(p).map_err(|e| {
-                            Error::Computation(format!("draw {}: {e}", start + i + 1))
-                        })?;
-                        Ok(tunnel_table(curve.as_ref(), cycle, count))
-                    })
-                    .collect::<Result<Vec<_>>>()?;
-                per_group(start, tables)
-            })
-            .collect::<Result<_>>()?;
-        sink(values)?;
+            .map(|(i, p)| draw_table(build, p, first + i, (cycle, count)))
+            .collect::<Result<Vec<_>>>()?;
+        sink(first, tables)?;
         (control.advance)(chunk.len() as u64);
     }
     Ok(())
 }
 
-/// Like [`groups_in_chunks`] without the pauses between chunks: each of the worker threads
-/// (as many as rayon's pool has) takes the next group of `groups.0` draws as soon as it is
-/// free, and `sink` gets every group's value, in draw order, on the calling thread while the
-/// workers go on (for a file, the calling thread writes while they format). At most
+/// The tunnel table of draw `index` (0-based), whose natural parameters are `p`; an error
+/// building its curve names the draw.
+fn draw_table(
+    build: &CurveBuilder<'_>,
+    p: &[f64],
+    index: usize,
+    (cycle, count): (Duration, usize),
+) -> Result<TunnelTable> {
+    let curve = build(p).map_err(|e| Error::Computation(format!("draw {}: {e}", index + 1)))?;
+    Ok(tunnel_table(curve.as_ref(), cycle, count))
+}
+
+/// Computes the tables of groups of `groups.0` consecutive draws in worker threads (as many as
+/// rayon's pool has), each taking the next group as soon as it is free and turning its tables
+/// at once into a value with `per_group(0-based index of the group's first draw, tables)`
+/// (e.g. their bytes in a file), so computing and formatting share one pass over the data.
+/// `sink` gets every group's value, in draw order, on the calling thread while the workers go
+/// on (for a file, the calling thread writes while they format). At most
 /// `groups.1` groups are computed but not yet sunk, so memory stays bounded. `sink` gets the
 /// 0-based index of the group's first draw. Checks `control.stop` between groups.
 pub fn groups_streamed<T: Send>(
@@ -301,15 +268,10 @@ pub fn groups_streamed<T: Send>(
     let workers = rayon::current_num_threads().clamp(1, total.max(1));
     let compute = |g: usize| -> Result<T> {
         let start = g * group;
-        let draws = &params[start..(start + group).min(params.len())];
-        let tables = draws
+        let tables = params[start..(start + group).min(params.len())]
             .iter()
             .enumerate()
-            .map(|(i, p)| {
-                let curve = build(p)
-                    .map_err(|e| Error::Computation(format!("draw {}: {e}", start + i + 1)))?;
-                Ok(tunnel_table(curve.as_ref(), cycle, count))
-            })
+            .map(|(i, p)| draw_table(build, p, start + i, (cycle, count)))
             .collect::<Result<Vec<_>>>()?;
         per_group(start, tables)
     };
@@ -716,38 +678,9 @@ mod tests {
             assert_eq!(&direct, table);
         }
 
-        // Groups of 7 draws, 3 groups a chunk (150 is not a multiple of either): each group
-        // starts where the last ended, and its tables are the same ones.
-        let mut next = 0;
-        let mut summary = SummaryBuilder::new(seen[0].clone(), 150);
-        groups_in_chunks(
-            &params,
-            (7, 3),
-            &build,
-            (cycle, 12),
-            &Control::none(),
-            |start, tables| Ok((start, p_exit_block(&tables, 12), tables)),
-            |groups| {
-                for (start, block, tables) in groups {
-                    assert_eq!(start, next);
-                    assert_eq!(tables, seen[start..start + tables.len()]);
-                    next += tables.len();
-                    summary.add_block(&block);
-                }
-                Ok(())
-            },
-        )
-        .unwrap();
-        assert_eq!(next, 150);
-        // The summary built from columns equals the one built table by table.
-        let mut by_table = SummaryBuilder::new(seen[0].clone(), 0);
-        seen.iter().for_each(|t| by_table.add(t));
-        assert_eq!(summary.values(), by_table.values());
-        assert_eq!(summary.values()[11][149], seen[149].rows[11].p_exit);
-        assert_eq!(summary.finish(), by_table.clone().finish());
-
-        // Streamed: the same groups reach the sink in draw order, with at most 2 in flight,
-        // however the workers finish; the summary built from them is the same again.
+        // Streamed in groups of 7 draws (150 is not a multiple), at most 2 in flight: the
+        // groups reach the sink in draw order however the workers finish, with the same
+        // tables.
         let mut next = 0;
         let mut streamed = SummaryBuilder::new(seen[0].clone(), 150);
         groups_streamed(
@@ -767,6 +700,11 @@ mod tests {
         )
         .unwrap();
         assert_eq!(next, 150);
+        // The summary built from the groups' blocks equals the one built table by table.
+        let mut by_table = SummaryBuilder::new(seen[0].clone(), 0);
+        seen.iter().for_each(|t| by_table.add(t));
+        assert_eq!(streamed.values(), by_table.values());
+        assert_eq!(streamed.values()[11][149], seen[149].rows[11].p_exit);
         assert_eq!(streamed.finish(), by_table.finish());
     }
 
