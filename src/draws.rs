@@ -533,6 +533,18 @@ mod tests {
     use crate::fit::Covariance;
     use crate::units::TimeUnit;
 
+    /// Builds a Weibull curve (no adjustments) from natural parameters in `unit`.
+    fn weibull_builder(
+        unit: TimeUnit,
+    ) -> impl Fn(&[f64]) -> std::result::Result<Box<dyn Curve>, String> + Sync {
+        move |p| Ok(Box::new(ParametricCurve::new(&Weibull, p.to_vec(), unit)?))
+    }
+
+    /// One `unit`, as a cycle.
+    fn one(unit: TimeUnit) -> Duration {
+        Duration { value: 1.0, unit }
+    }
+
     fn weibull_fit(estimates: Vec<f64>, matrix: Vec<Vec<f64>>) -> FamilyFit {
         FamilyFit {
             family: "weibull".into(),
@@ -654,17 +666,7 @@ mod tests {
         let params = Sampler::from_fit(&Weibull, &fit)
             .unwrap()
             .draw_natural(150, 5);
-        let build = |p: &[f64]| -> std::result::Result<Box<dyn Curve>, String> {
-            Ok(Box::new(ParametricCurve::new(
-                &Weibull,
-                p.to_vec(),
-                TimeUnit::Weeks,
-            )?))
-        };
-        let cycle = Duration {
-            value: 1.0,
-            unit: TimeUnit::Months,
-        };
+        let (build, cycle) = (weibull_builder(TimeUnit::Weeks), one(TimeUnit::Months));
         let mut seen = Vec::new();
         tables_in_chunks(&params, &build, cycle, 12, &Control::none(), |first, t| {
             assert_eq!(first, seen.len());
@@ -711,17 +713,7 @@ mod tests {
     #[test]
     fn a_failed_group_or_sink_stops_the_stream_with_its_error() {
         let params = vec![vec![1.0, 10.0]; 200];
-        let build = |p: &[f64]| -> std::result::Result<Box<dyn Curve>, String> {
-            Ok(Box::new(ParametricCurve::new(
-                &Weibull,
-                p.to_vec(),
-                TimeUnit::Days,
-            )?))
-        };
-        let cycle = Duration {
-            value: 1.0,
-            unit: TimeUnit::Days,
-        };
+        let (build, cycle) = (weibull_builder(TimeUnit::Days), one(TimeUnit::Days));
         let mut sunk = Vec::new();
         let result = groups_streamed(
             &params,
@@ -773,13 +765,7 @@ mod tests {
     #[test]
     fn interruption_stops_between_chunks() {
         let params = vec![vec![1.0, 10.0]; 3 * CHUNK];
-        let build = |p: &[f64]| -> std::result::Result<Box<dyn Curve>, String> {
-            Ok(Box::new(ParametricCurve::new(
-                &Weibull,
-                p.to_vec(),
-                TimeUnit::Days,
-            )?))
-        };
+        let (build, cycle) = (weibull_builder(TimeUnit::Days), one(TimeUnit::Days));
         let done = std::sync::atomic::AtomicU64::new(0);
         let advance = |k: u64| {
             done.fetch_add(k, std::sync::atomic::Ordering::SeqCst);
@@ -791,10 +777,6 @@ mod tests {
         let control = Control {
             stop: &stop,
             advance: &advance,
-        };
-        let cycle = Duration {
-            value: 1.0,
-            unit: TimeUnit::Days,
         };
         let result = tables_in_chunks(&params, &build, cycle, 3, &control, |_, _| Ok(()));
         assert!(result.is_err());
