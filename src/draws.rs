@@ -712,15 +712,28 @@ mod tests {
 
     #[test]
     fn a_failed_group_or_sink_stops_the_stream_with_its_error() {
+        // Groups of 5 daily Weibull draws of 4 tunnels, at most 3 in flight.
+        fn stream(
+            params: &[Vec<f64>],
+            per_group: impl Fn(usize, Vec<TunnelTable>) -> Result<usize> + Sync,
+            sink: impl FnMut(usize, usize) -> Result<()>,
+        ) -> Result<()> {
+            let build = weibull_builder(TimeUnit::Days);
+            let cycle = (one(TimeUnit::Days), 4);
+            groups_streamed(
+                params,
+                (5, 3),
+                &build,
+                cycle,
+                &Control::none(),
+                per_group,
+                sink,
+            )
+        }
         let params = vec![vec![1.0, 10.0]; 200];
-        let (build, cycle) = (weibull_builder(TimeUnit::Days), one(TimeUnit::Days));
         let mut sunk = Vec::new();
-        let result = groups_streamed(
+        let result = stream(
             &params,
-            (5, 3),
-            &build,
-            (cycle, 4),
-            &Control::none(),
             |start, _| match start {
                 100 => Err(Error::Computation("group at draw 101 failed".into())),
                 _ => Ok(start),
@@ -734,12 +747,8 @@ mod tests {
         // Everything before the failed group was sunk in order, nothing after it.
         assert!(sunk.iter().enumerate().all(|(i, &first)| first == 5 * i));
         assert!(sunk.len() <= 20);
-        let result = groups_streamed(
+        let result = stream(
             &params,
-            (5, 3),
-            &build,
-            (cycle, 4),
-            &Control::none(),
             |start, _| Ok(start),
             |first, _| match first {
                 50 => Err(Error::Computation("cannot write".into())),
@@ -750,15 +759,7 @@ mod tests {
         // A draw whose curve cannot be built names the draw.
         let mut bad = params.clone();
         bad[42] = vec![-1.0, 10.0];
-        let result = groups_streamed(
-            &bad,
-            (5, 3),
-            &build,
-            (cycle, 4),
-            &Control::none(),
-            |start, _| Ok(start),
-            |_, _| Ok(()),
-        );
+        let result = stream(&bad, |start, _| Ok(start), |_, _| Ok(()));
         assert!(result.unwrap_err().to_string().contains("draw 43"));
     }
 
