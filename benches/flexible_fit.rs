@@ -73,7 +73,7 @@ fn main() {
         data.time.len(),
         start.elapsed().as_secs_f64()
     );
-    for name in ["spline-hazard-3", "spline-odds-3", "spline-normal-3"] {
+    for name in ["spline-ph-3", "spline-po-3", "spline-probit-3"] {
         let start = Instant::now();
         let family = families::by_name(name)
             .unwrap()

@@ -932,7 +932,7 @@ pub struct FitFile {
     pub fits: Vec<FamilyFit>,
 }
 
-/// Resolves `--families` (empty = the default families: the standard five plus `gengamma`).
+/// Resolves `--families` (empty = the default families: the standard five plus `generalized-gamma`).
 pub fn select_families(names: &[String]) -> Result<Vec<&'static dyn Family>> {
     select_families_with(names, &families::FamilyOptions::default())
 }
@@ -963,7 +963,7 @@ pub fn select_families_with(
     }
     if options.knots.is_some() && !selected.iter().any(|f| f.name().starts_with("spline-")) {
         return Err(Error::Usage(
-            "--knots sets the knots of the spline families; add one (e.g. spline-hazard-2) to --families".into(),
+            "--knots sets the knots of the spline families; add one (e.g. spline-ph-2) to --families".into(),
         ));
     }
     selected

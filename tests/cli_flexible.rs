@@ -112,7 +112,7 @@ fn spline_knots_are_recorded_settable_and_reused() {
     write_piecewise_data(dir.path());
     tunnelcast(dir.path())
         .args(["fit", "trial.csv", "--time-unit", "months", "--families"])
-        .args(["spline-hazard-2,spline-odds-1", "--json", "fit.json"])
+        .args(["spline-ph-2,spline-po-1", "--json", "fit.json"])
         .assert()
         .success();
     let file: FitFile =
@@ -120,10 +120,10 @@ fn spline_knots_are_recorded_settable_and_reused() {
     let fit = file
         .fits
         .iter()
-        .find(|f| f.family == "spline-hazard-2")
+        .find(|f| f.family == "spline-ph-2")
         .unwrap();
     let settings = fit.settings.as_ref().unwrap();
-    assert_eq!(settings.scale.as_deref(), Some("hazard"));
+    assert_eq!(settings.scale.as_deref(), Some("ph"));
     let knots = settings.knots.clone().unwrap();
     assert_eq!(knots.len(), 4);
     assert_eq!(fit.params.len(), 4);
@@ -131,7 +131,7 @@ fn spline_knots_are_recorded_settable_and_reused() {
     tunnelcast(dir.path())
         .args(["fit", "trial.csv", "--time-unit", "months", "--families"])
         .args([
-            "spline-hazard-2",
+            "spline-ph-2",
             "--knots",
             "4 months,1 year",
             "--json",
@@ -154,13 +154,7 @@ fn spline_knots_are_recorded_settable_and_reused() {
     );
     assert_eq!((set[0], set[3]), (knots[0], knots[3]));
     tunnelcast(dir.path())
-        .args([
-            "tunnels",
-            "--fit",
-            "fit.json",
-            "--family",
-            "spline-hazard-2",
-        ])
+        .args(["tunnels", "--fit", "fit.json", "--family", "spline-ph-2"])
         .args(["--cycle", "1 month", "--count", "24", "--out", "t.csv"])
         .assert()
         .success();
@@ -169,7 +163,7 @@ fn spline_knots_are_recorded_settable_and_reused() {
             "fit",
             "trial.csv",
             "--families",
-            "spline-hazard-2",
+            "spline-ph-2",
             "--knots",
             "4 months",
         ])
@@ -248,7 +242,7 @@ fn published_piecewise_and_spline_parameters_give_the_fitted_tables() {
     write_piecewise_data(dir.path());
     tunnelcast(dir.path())
         .args(["fit", "trial.csv", "--time-unit", "months", "--families"])
-        .args(["piecewise,spline-hazard-2", "--cuts", "6 months,1 year"])
+        .args(["piecewise,spline-ph-2", "--cuts", "6 months,1 year"])
         .args(["--json", "fit.json"])
         .assert()
         .success();
@@ -258,7 +252,7 @@ fn published_piecewise_and_spline_parameters_give_the_fitted_tables() {
     let fit = file
         .fits
         .iter()
-        .find(|f| f.family == "spline-hazard-2")
+        .find(|f| f.family == "spline-ph-2")
         .unwrap();
     let knots: Vec<String> = fit
         .settings
@@ -270,7 +264,7 @@ fn published_piecewise_and_spline_parameters_give_the_fitted_tables() {
         .iter()
         .map(|k| format!("{k} months"))
         .collect();
-    published_table_equals_fitted(dir.path(), "spline-hazard-2", ["--knots", &knots.join(",")]);
+    published_table_equals_fitted(dir.path(), "spline-ph-2", ["--knots", &knots.join(",")]);
 }
 
 #[test]
@@ -292,13 +286,13 @@ fn published_settings_errors_are_one_line_and_leave_no_file() {
     ];
     let spline = [
         "--param",
-        "gamma0=-3",
+        "c0=-3",
         "--param",
-        "gamma1=1",
+        "c1=1",
         "--param",
-        "gamma2=0",
+        "c2=0",
         "--param",
-        "gamma3=0",
+        "c3=0",
         "--time-unit",
         "months",
     ];
@@ -357,15 +351,15 @@ fn published_settings_errors_are_one_line_and_leave_no_file() {
                 &spline,
             ]
             .concat(),
-            "piecewise has no parameter \"gamma0\"",
+            "piecewise has no parameter \"c0\"",
         ),
         (
-            [&["--family", "spline-hazard-2"][..], &spline].concat(),
+            [&["--family", "spline-ph-2"][..], &spline].concat(),
             "needs all 4 knots",
         ),
         (
             [
-                &["--family", "spline-hazard-2", "--knots", "4 months,1 year"][..],
+                &["--family", "spline-ph-2", "--knots", "4 months,1 year"][..],
                 &spline,
             ]
             .concat(),
@@ -375,7 +369,7 @@ fn published_settings_errors_are_one_line_and_leave_no_file() {
             [
                 &[
                     "--family",
-                    "spline-hazard-2",
+                    "spline-ph-2",
                     "--knots",
                     "1 month,1 year,4 months,2 years",
                 ][..],

@@ -14,13 +14,13 @@ struct Reference {
     source: String,
     #[allow(dead_code)]
     data: String,
-    gengamma_points: Vec<GenGammaPoint>,
+    generalized_gamma_points: Vec<GeneralizedGammaPoint>,
     fits: Vec<ReferenceFit>,
 }
 
 #[derive(Deserialize)]
 #[serde(deny_unknown_fields)]
-struct GenGammaPoint {
+struct GeneralizedGammaPoint {
     mu: f64,
     sigma: f64,
     q: f64,
@@ -61,10 +61,10 @@ fn heart() -> Vec<Record> {
 }
 
 #[test]
-fn gengamma_matches_mpmath_in_body_and_tails() {
+fn generalized_gamma_matches_mpmath_in_body_and_tails() {
     // mpmath's regularised incomplete gamma at 50 digits (script above); Prentice (1974) form.
-    let family = families::by_name("gengamma").unwrap();
-    let points = reference().gengamma_points;
+    let family = families::by_name("generalized-gamma").unwrap();
+    let points = reference().generalized_gamma_points;
     assert!(points.len() >= 80);
     for p in points {
         let params = [p.mu, p.sigma, p.q];
@@ -140,7 +140,7 @@ fn spline_reference() -> SplineReference {
     serde_json::from_str(&text).unwrap()
 }
 
-/// GBSG2 (Schumacher et al., 1994; from the PyPI package lifelines) as sorted records, days.
+/// GBSG2 (Schumacher et al., 1994; Rdatasets collection) as sorted records, days.
 fn gbsg2() -> Vec<Record> {
     let text = std::fs::read_to_string("tests/reference/gbsg2.csv").unwrap();
     let mut records: Vec<Record> = text
@@ -204,7 +204,7 @@ fn default_spline_knots_follow_the_documented_centile_rule() {
     // default), computed independently by make_spline_reference.py.
     let data = FitData::from_records(&gbsg2());
     for (k, expected) in spline_reference().rule_knots {
-        let name = format!("spline-hazard-{k}");
+        let name = format!("spline-ph-{k}");
         let family = families::by_name(&name)
             .unwrap()
             .for_data(&data)

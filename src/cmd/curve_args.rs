@@ -560,8 +560,8 @@ mod tests {
     fn published_spline_knots_are_durations_in_the_parameter_unit() {
         // A month is a twelfth of 365.25 days, a year 365.25 days (interface, common practice).
         let mut args = published(
-            "spline-odds-1",
-            &["gamma0=-2", "gamma1=1.1", "gamma2=0.001"],
+            "spline-po-1",
+            &["c0=-2", "c1=1.1", "c2=0.001"],
             Some("months"),
         );
         args.knots = Some("30.4375 days,1 year,3 years".into());

@@ -33,7 +33,7 @@ pub struct FitArgs {
     /// Time unit of the data (days, weeks, months, years).
     #[arg(long, default_value = "days")]
     pub time_unit: TimeUnit,
-    /// Families to fit, comma-separated (default: the five standard families plus gengamma).
+    /// Families to fit, comma-separated (default: the five standard families plus generalized-gamma).
     #[arg(long, value_delimiter = ',')]
     pub families: Vec<String>,
     /// Cut points of the piecewise family, comma-separated durations (e.g. "6 months,12 months").

@@ -17,7 +17,7 @@ use std::sync::Mutex;
 
 mod cure;
 mod exponential;
-mod gengamma;
+mod generalized_gamma;
 mod gompertz;
 mod incomplete_gamma;
 mod loglogistic;
@@ -28,7 +28,7 @@ mod weibull;
 
 pub use cure::{Cure, CURE_LOGLOGISTIC, CURE_LOGNORMAL, CURE_WEIBULL};
 pub use exponential::Exponential;
-pub use gengamma::GenGamma;
+pub use generalized_gamma::GeneralizedGamma;
 pub use gompertz::Gompertz;
 pub use loglogistic::LogLogistic;
 pub use lognormal::LogNormal;
@@ -156,7 +156,7 @@ pub trait Family: Sync + Send {
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize, Default)]
 #[serde(deny_unknown_fields)]
 pub struct FamilySettings {
-    /// Spline scale: `hazard`, `odds` or `normal`.
+    /// Spline scale: `ph` (proportional hazards), `po` (proportional odds) or `probit`.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub scale: Option<String>,
     /// Spline knots as times (curve's time unit), boundary knots first and last, ascending.
@@ -238,7 +238,7 @@ pub static STANDARD: [&dyn Family; 5] =
 pub fn all() -> Vec<&'static dyn Family> {
     let mut families = STANDARD.to_vec();
     families.extend([
-        &GenGamma as &dyn Family,
+        &GeneralizedGamma as &dyn Family,
         &CURE_WEIBULL,
         &CURE_LOGNORMAL,
         &CURE_LOGLOGISTIC,
@@ -249,7 +249,7 @@ pub fn all() -> Vec<&'static dyn Family> {
 /// The families `fit` uses when none are named: the five standard ones plus the generalized gamma.
 pub fn defaults() -> Vec<&'static dyn Family> {
     let mut families = STANDARD.to_vec();
-    families.push(&GenGamma);
+    families.push(&GeneralizedGamma);
     families
 }
 
@@ -316,18 +316,18 @@ pub fn by_name(name: &str) -> Result<&'static dyn Family, String> {
 
 /// Names of the configured families (spline K = 0–3 internal knots, piecewise exponential).
 pub const FLEXIBLE_NAMES: [&str; 13] = [
-    "spline-hazard-0",
-    "spline-hazard-1",
-    "spline-hazard-2",
-    "spline-hazard-3",
-    "spline-odds-0",
-    "spline-odds-1",
-    "spline-odds-2",
-    "spline-odds-3",
-    "spline-normal-0",
-    "spline-normal-1",
-    "spline-normal-2",
-    "spline-normal-3",
+    "spline-ph-0",
+    "spline-ph-1",
+    "spline-ph-2",
+    "spline-ph-3",
+    "spline-po-0",
+    "spline-po-1",
+    "spline-po-2",
+    "spline-po-3",
+    "spline-probit-0",
+    "spline-probit-1",
+    "spline-probit-2",
+    "spline-probit-3",
     "piecewise",
 ];
 
@@ -342,9 +342,9 @@ fn flexible_template(name: &str) -> Option<&'static dyn Family> {
     let rest = name.strip_prefix("spline-")?;
     let (scale, internal) = rest.split_once('-')?;
     let scale = match scale {
-        "hazard" => SplineScale::Hazard,
-        "odds" => SplineScale::Odds,
-        _ => SplineScale::Normal,
+        "ph" => SplineScale::ProportionalHazards,
+        "po" => SplineScale::ProportionalOdds,
+        _ => SplineScale::Probit,
     };
     let internal: usize = internal.parse().ok()?;
     Some(intern(name, None, || {
@@ -389,7 +389,7 @@ pub(crate) mod tests {
             "cure-weibull" => vec![vec![1.5, 10.0, 0.3], vec![0.7, 3.0, 0.02]],
             "cure-lognormal" => vec![vec![2.0, 0.8, 0.25]],
             "cure-loglogistic" => vec![vec![2.2, 6.0, 0.4]],
-            "gengamma" => vec![
+            "generalized-gamma" => vec![
                 vec![1.0, 0.5, 1.0],
                 vec![3.0, 1.2, -0.7],
                 vec![2.0, 0.8, 0.004],

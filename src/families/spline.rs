@@ -1,7 +1,7 @@
 //! Royston–Parmar spline families (Royston and Parmar, 2002): a natural cubic spline s(x) in
-//! x = ln t for the log cumulative hazard (`spline-hazard-K`: S = exp(-e^s)), the log
-//! cumulative odds (`spline-odds-K`: S = 1/(1 + e^s)) or the probit (`spline-normal-K`:
-//! S = 1 - Φ(s)), with K = 0–3 internal knots. Parameters `gamma0` … `gamma{K+1}` (estimated
+//! x = ln t for the log cumulative hazard (`spline-ph-K`: S = exp(-e^s)), the log
+//! cumulative odds (`spline-po-K`: S = 1/(1 + e^s)) or the probit (`spline-probit-K`:
+//! S = 1 - Φ(s)), with K = 0–3 internal knots. Parameters `c0` … `c{K+1}` (estimated
 //! as they are); knots are settings, recorded in the fit file as times.
 //!
 //! Basis (Royston and Parmar, 2002, eq. 2): 1, x, and for each internal knot k_j,
@@ -23,20 +23,20 @@ use crate::numeric::{inverse_mills, log_normal_sf, logistic, normal_quantile, so
 /// The scale on which the spline models the curve.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum SplineScale {
-    /// ln H(t) = s(ln t).
-    Hazard,
-    /// ln((1 - S)/S) = s(ln t).
-    Odds,
-    /// Φ⁻¹(1 - S) = s(ln t).
-    Normal,
+    /// ln H(t) = s(ln t): proportional hazards (`ph`).
+    ProportionalHazards,
+    /// ln((1 - S)/S) = s(ln t): proportional odds (`po`).
+    ProportionalOdds,
+    /// Φ⁻¹(1 - S) = s(ln t): probit (`probit`).
+    Probit,
 }
 
 impl SplineScale {
     fn word(self) -> &'static str {
         match self {
-            SplineScale::Hazard => "hazard",
-            SplineScale::Odds => "odds",
-            SplineScale::Normal => "normal",
+            SplineScale::ProportionalHazards => "ph",
+            SplineScale::ProportionalOdds => "po",
+            SplineScale::Probit => "probit",
         }
     }
 
@@ -44,16 +44,16 @@ impl SplineScale {
     #[inline]
     fn terms(self, s: f64) -> (f64, f64, f64, f64) {
         match self {
-            SplineScale::Hazard => {
+            SplineScale::ProportionalHazards => {
                 let e = s.exp();
                 (-e, -e, s - e, 1.0 - e)
             }
-            SplineScale::Odds => {
+            SplineScale::ProportionalOdds => {
                 let sp = softplus(s);
                 let p = logistic(s);
                 (-sp, -p, s - 2.0 * sp, 1.0 - 2.0 * p)
             }
-            SplineScale::Normal => (
+            SplineScale::Probit => (
                 log_normal_sf(s),
                 -inverse_mills(s),
                 -0.5 * s * s - LN_SQRT_2PI,
@@ -65,15 +65,15 @@ impl SplineScale {
     /// The transform of S that the spline models, for starting values from Kaplan–Meier.
     fn link(self, survival: f64) -> f64 {
         match self {
-            SplineScale::Hazard => (-survival.ln()).ln(),
-            SplineScale::Odds => ((1.0 - survival) / survival).ln(),
-            SplineScale::Normal => normal_quantile(1.0 - survival),
+            SplineScale::ProportionalHazards => (-survival.ln()).ln(),
+            SplineScale::ProportionalOdds => ((1.0 - survival) / survival).ln(),
+            SplineScale::Probit => normal_quantile(1.0 - survival),
         }
     }
 }
 
 /// Parameter names, of which a spline with K internal knots uses the first K + 2.
-const GAMMA_NAMES: [&str; 5] = ["gamma0", "gamma1", "gamma2", "gamma3", "gamma4"];
+const COEFFICIENT_NAMES: [&str; 5] = ["c0", "c1", "c2", "c3", "c4"];
 
 /// A Royston–Parmar spline family; unconfigured until its knots are placed.
 pub struct Spline {
@@ -237,10 +237,10 @@ impl Family for Spline {
         self.name
     }
     fn param_names(&self) -> &'static [&'static str] {
-        &GAMMA_NAMES[..self.internal + 2]
+        &COEFFICIENT_NAMES[..self.internal + 2]
     }
     fn estimation_names(&self) -> &'static [&'static str] {
-        &GAMMA_NAMES[..self.internal + 2]
+        &COEFFICIENT_NAMES[..self.internal + 2]
     }
     fn to_natural(&self, theta: &[f64]) -> Vec<f64> {
         theta.to_vec()
@@ -293,7 +293,7 @@ impl Family for Spline {
         quantile_by_bisection(|t| self.log_survival(p, t), prob)
     }
     fn rescale_time(&self, p: &[f64], factor: f64) -> Vec<f64> {
-        // s(x) with knots k equals s'(x + c) with knots k + c when gamma0' = gamma0 - gamma1·c.
+        // s(x) with knots k equals s'(x + c) with knots k + c when c0' = c0 - c1·c.
         let mut q = p.to_vec();
         q[0] -= p[1] * factor.ln();
         q
@@ -303,8 +303,8 @@ impl Family for Spline {
         self.with_knot_times(&times).ok()
     }
     fn proportional_hazards(&self) -> bool {
-        // A hazard ratio adds ln HR to gamma0 on the hazard scale.
-        self.scale == SplineScale::Hazard
+        // A hazard ratio adds ln HR to c0 on the hazard scale.
+        self.scale == SplineScale::ProportionalHazards
     }
     fn accelerated_failure_time(&self) -> bool {
         false
@@ -499,13 +499,13 @@ mod tests {
 
     #[test]
     fn zero_knots_reproduce_weibull_loglogistic_lognormal() {
-        // Royston and Parmar (2002), section 2: with no internal knots the hazard, odds and
-        // normal scales are the Weibull, log-logistic and log-normal models.
+        // Royston and Parmar (2002), section 2: with no internal knots the ph, po and
+        // probit scales are the Weibull, log-logistic and log-normal models.
         let data = FitData::from_records(&records(400));
         for (spline, plain) in [
-            ("spline-hazard-0", &Weibull as &dyn Family),
-            ("spline-odds-0", &LogLogistic),
-            ("spline-normal-0", &LogNormal),
+            ("spline-ph-0", &Weibull as &dyn Family),
+            ("spline-po-0", &LogLogistic),
+            ("spline-probit-0", &LogNormal),
         ] {
             let a = fitted(spline, &data);
             let b = fit_family(plain, &data, None);
@@ -518,7 +518,7 @@ mod tests {
     #[test]
     fn gradient_matches_differences_on_every_scale() {
         let data = FitData::from_records(&records(150));
-        for name in ["spline-hazard-3", "spline-odds-2", "spline-normal-1"] {
+        for name in ["spline-ph-3", "spline-po-2", "spline-probit-1"] {
             let family = by_name(name).unwrap().for_data(&data).unwrap().unwrap();
             let fit = fit_family(family, &data, None);
             assert!(fit.converged, "{name}: {:?}", fit.message);
@@ -531,7 +531,7 @@ mod tests {
     fn knots_sit_at_centiles_of_event_log_times_and_round_trip() {
         let recs = records(400);
         let data = FitData::from_records(&recs);
-        let fit = fitted("spline-hazard-3", &data);
+        let fit = fitted("spline-ph-3", &data);
         let knots = fit.settings.as_ref().unwrap().knots.clone().unwrap();
         let mut logs: Vec<f64> = recs
             .iter()
@@ -551,8 +551,8 @@ mod tests {
         assert!((knots[0] - logs[0].exp()).abs() < 1e-12);
         assert!((knots[4] - logs[logs.len() - 1].exp()).abs() < 1e-12 * knots[4]);
         // The family rebuilt from the recorded settings is the very same instance.
-        let rebuilt = configured("spline-hazard-3", fit.settings.as_ref()).unwrap();
-        let original = by_name("spline-hazard-3")
+        let rebuilt = configured("spline-ph-3", fit.settings.as_ref()).unwrap();
+        let original = by_name("spline-ph-3")
             .unwrap()
             .for_data(&data)
             .unwrap()
@@ -574,7 +574,7 @@ mod tests {
     #[test]
     fn non_monotone_survival_is_rejected_with_the_time() {
         let data = FitData::from_records(&records(200));
-        let family = by_name("spline-hazard-1")
+        let family = by_name("spline-ph-1")
             .unwrap()
             .for_data(&data)
             .unwrap()
@@ -593,9 +593,9 @@ mod tests {
                 after < before
             });
             match family.check_params(&p) {
-                Ok(()) => assert!(grid_ok, "gamma2 = {g2} accepted but not monotone"),
+                Ok(()) => assert!(grid_ok, "c2 = {g2} accepted but not monotone"),
                 Err(e) => {
-                    assert!(!grid_ok, "gamma2 = {g2} rejected but monotone: {e}");
+                    assert!(!grid_ok, "c2 = {g2} rejected but monotone: {e}");
                     assert!(e.contains("survival would rise near t ="), "{e}");
                     rejected += 1;
                 }
@@ -603,7 +603,7 @@ mod tests {
         }
         assert!(rejected > 0, "no parameter set was rejected");
         assert!(family.check_params(&[-3.0, -0.5, 0.0]).is_err());
-        let bare = by_name("spline-odds-2").unwrap();
+        let bare = by_name("spline-po-2").unwrap();
         assert!(bare
             .check_params(&[0.0; 4])
             .unwrap_err()
@@ -613,7 +613,7 @@ mod tests {
     #[test]
     fn curve_functions_agree_with_each_other() {
         let data = FitData::from_records(&records(300));
-        for name in ["spline-hazard-2", "spline-odds-3", "spline-normal-2"] {
+        for name in ["spline-ph-2", "spline-po-3", "spline-probit-2"] {
             let fit = fitted(name, &data);
             let family = fit.family().unwrap();
             let p = fit.param_vector(family).unwrap();

