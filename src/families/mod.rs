@@ -486,4 +486,21 @@ pub(crate) mod tests {
         assert!(err.contains("did you mean \"weibull\""), "{err}");
         assert_eq!(by_name("LogNormal").unwrap().name(), "lognormal");
     }
+
+    #[test]
+    fn earlier_family_names_are_not_aliases() {
+        // The renamed identifiers are refused like any unknown name, listing the known ones.
+        for (old, new) in [
+            ("gengamma", "generalized-gamma"),
+            ("spline-hazard-2", "spline-ph-2"),
+            ("spline-odds-1", "spline-po-1"),
+            ("spline-normal-3", "spline-probit-3"),
+        ] {
+            let err = by_name(old).err().expect(old);
+            assert!(err.contains("unknown family"), "{err}");
+            assert!(err.contains(new), "{old}: {err}");
+        }
+        let spline = by_name("spline-ph-1").unwrap();
+        assert_eq!(spline.param_names(), ["c0", "c1", "c2"]);
+    }
 }
