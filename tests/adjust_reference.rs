@@ -86,7 +86,10 @@ fn waning_and_floor_match_scipy_quadrature() {
             other => panic!("unknown kind {other}"),
         };
         let base = ParametricCurve::new(family, case.params.clone(), unit).unwrap();
-        let adjusted = adjust::apply(base, &adjustments).unwrap();
+        let adjusted = adjust::Adjuster::load(adjustments)
+            .unwrap()
+            .adjust(base)
+            .unwrap();
         for (t, expected) in case.times.iter().zip(&case.cumulative_hazard) {
             // SciPy quad asked for 1e-14 absolute / 1e-13 relative; 1e-12 leaves room for both sides.
             let got = -adjusted.log_survival(*t);

@@ -1,6 +1,7 @@
 //! `tunnelcast run` and `tunnelcast demo`: the output folder, the report's structure and
 //! numbers (read back and compared with the JSON outputs), re-run stability, and bad input.
 
+mod closed_form;
 mod shell;
 use shell::{listing, read_table, tunnelcast};
 
@@ -344,15 +345,13 @@ fn demo_runs_in_a_fresh_folder_and_replaces_only_its_own_output() {
 }
 
 /// The demo's `[adjust]` (hazard ratio with waning, background mortality added) and `[draws]`:
-/// the cause columns add up to p_exit, and the draws summary equals what the library gives
-/// for the same fit, adjustments and seed, computed here without the `run` code.
+/// the tunnel table and the draws summary against an independent computation (the Weibull
+/// closed form with the waning integral and the life table's piecewise-constant hazard,
+/// `tests/closed_form/mod.rs`), and the draws summary equal to what `tunnelcast draws` gives
+/// for the same fit, adjustments and seed.
 #[test]
 fn adjustments_and_draws_of_the_analysis_file_reach_the_outputs() {
-    use tunnelcast::adjust::{self, background::BeyondTable, lifetable::Sex};
-    use tunnelcast::adjust::{Adjustments, BackgroundMode, BackgroundSettings};
-    use tunnelcast::curve::{Curve, ParametricCurve};
-    use tunnelcast::draws::{self, Sampler, SummaryBuilder};
-    use tunnelcast::units::Duration;
+    use closed_form::{added_life_table, close, Adjust, LifeTableBackground, Weibull};
 
     let dir = tempfile::tempdir().unwrap();
     setup(dir.path(), |a| {
@@ -368,6 +367,7 @@ fn adjustments_and_draws_of_the_analysis_file_reach_the_outputs() {
     assert_eq!(tunnels.metadata["hazard_ratio"], "0.6");
     assert_eq!(tunnels.metadata["background_mode"], "add");
     assert_eq!(tunnels.metadata["seed"], "20261202");
+    assert_eq!(tunnels.metadata["family"], "weibull");
     let col = |name: &str| {
         tunnels.tables[0]
             .columns
@@ -380,77 +380,124 @@ fn adjustments_and_draws_of_the_analysis_file_reach_the_outputs() {
         col("p_exit_disease"),
         col("p_exit_background"),
     );
-    for row in &tunnels.tables[0].rows {
+
+    // The demo's treated arm: hazard ratio 0.6 waning over 3–6 years on the standard-care
+    // Weibull (parameters from the run's fit.json), the female column of the demo life table
+    // added from age 62.
+    let fits: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(out.join("fit.json")).unwrap()).unwrap();
+    let fit = fits["fits"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|f| f["family"] == "weibull" && f["arm"] == "standard-care")
+        .unwrap();
+    let curve = |params: &serde_json::Value| Weibull {
+        shape: params["shape"].as_f64().unwrap(),
+        scale: params["scale"].as_f64().unwrap(),
+    };
+    let effect = Adjust::Waning {
+        ratio: 0.6,
+        start: 36.0,
+        end: 72.0,
+    };
+    let table = LifeTableBackground::from_csv(LIFETABLE, "qx_female", 62.0);
+    let expected =
+        |w: Weibull, k: usize| added_life_table(w, effect, &table, k as f64 - 1.0, k as f64);
+    let point = curve(&fit["params"]);
+    let count = tunnels.tables[0].rows.len();
+    for (k, row) in tunnels.tables[0].rows.iter().enumerate() {
         let x = |i: usize| row[i].as_f64().unwrap();
         // Identity: the two causes of exit partition the exits (common practice).
         assert!((x(d) + x(b) - x(p)).abs() < 1e-12, "{row:?}");
-        assert!(x(b) > 0.0);
+        let (p_exit, background) = expected(point, k + 1);
+        assert!(
+            close(x(p), p_exit, 1e-9),
+            "tunnel {}: {} vs {p_exit}",
+            k + 1,
+            x(p)
+        );
+        assert!(
+            close(x(b), background, 1e-9),
+            "tunnel {}: {} vs {background}",
+            k + 1,
+            x(b)
+        );
     }
 
-    // The same draws through the library.
-    let fits = tunnelcast::fit::FitFile::load(&out.join("fit.json")).unwrap();
-    let fit = fits.find("weibull", Some("standard-care")).unwrap().clone();
-    assert_eq!(tunnels.metadata["family"], "weibull");
-    let family = fit.family().unwrap();
-    let base = ParametricCurve::new(
-        family,
-        fit.param_vector(family).unwrap(),
-        tunnelcast::units::TimeUnit::Months,
-    )
-    .unwrap();
-    let settings = Adjustments {
-        hazard_ratio: Some(0.6),
-        acceleration_factor: None,
-        waning: Some("3 years..6 years".parse().unwrap()),
-        background: Some(BackgroundSettings {
-            path: dir.path().join("demo_lifetable.csv"),
-            start_age: 62.0,
-            sex: Some(Sex::Female),
-            mode: BackgroundMode::Add,
-            beyond: BeyondTable::Error,
-        }),
-    };
-    let adjusted = adjust::apply(base, &settings).unwrap();
-    let cycle: Duration = "1 month".parse().unwrap();
-    let count = tunnels.tables[0].rows.len();
-    let point = tunnelcast::discretise::tunnel_table(&adjusted, cycle, count);
-    let params = Sampler::from_fit(family, &fit)
-        .unwrap()
-        .draw_natural(20, 20261202);
-    let build = |p: &[f64]| -> Result<Box<dyn Curve>, String> {
-        let base = ParametricCurve::new(family, p.to_vec(), tunnelcast::units::TimeUnit::Months)?;
-        Ok(Box::new(adjusted.rebuild(base).map_err(|e| e.to_string())?))
-    };
-    let mut summary = SummaryBuilder::new(point, params.len());
-    draws::tables_in_chunks(
-        &params,
-        &build,
-        cycle,
-        count,
-        &draws::Control::none(),
-        |_, ts| {
-            ts.iter().for_each(|t| summary.add(t));
-            Ok(())
-        },
-    )
-    .unwrap();
-    let expected = summary.finish();
+    // The same draws through `tunnelcast draws` (same fit, adjustments, seed): the same
+    // summary, and drawn parameters whose closed forms give the summary's mean.
+    let n = count.to_string();
+    tunnelcast(dir.path())
+        .args(["draws", "--fit", "a/fit.json", "--family", "weibull"])
+        .args(["--arm", "standard-care", "--hazard-ratio", "0.6"])
+        .args([
+            "--waning",
+            "3 years..6 years",
+            "--background",
+            "demo_lifetable.csv",
+        ])
+        .args([
+            "--start-age",
+            "62",
+            "--sex",
+            "female",
+            "--background-mode",
+            "add",
+        ])
+        .args(["--cycle", "1 month", "--count", &n, "--draws", "20"])
+        .args(["--seed", "20261202", "--quiet", "--out", "d.json"])
+        .args(["--summary-out", "s.json"])
+        .assert()
+        .success();
     let written = read_table(&out.join("draws_summary.json"));
+    let again = read_table(&dir.path().join("s.json"));
     assert_eq!(written.metadata["draws"], "20");
-    assert_eq!(written.tables[0].rows.len(), expected.len());
-    for (row, e) in written.tables[0].rows.iter().zip(&expected) {
+    assert_eq!(written.tables[0].rows, again.tables[0].rows);
+    let drawn = read_table(&dir.path().join("d.json"));
+    let parameters = drawn
+        .tables
+        .iter()
+        .find(|t| t.name == "parameters")
+        .unwrap();
+    assert_eq!(parameters.columns, ["draw", "shape", "scale"]);
+    let params: Vec<Weibull> = parameters
+        .rows
+        .iter()
+        .map(|r| Weibull {
+            shape: r[1].as_f64().unwrap(),
+            scale: r[2].as_f64().unwrap(),
+        })
+        .collect();
+    assert_eq!(params.len(), 20);
+    assert_eq!(written.tables[0].rows.len(), count);
+    for (k, row) in written.tables[0].rows.iter().enumerate() {
         let x = |i: usize| row[i].as_f64().unwrap();
-        for (got, want) in [
-            (x(3), e.point),
-            (x(4), e.mean),
-            (x(5), e.lower),
-            (x(6), e.upper),
-        ] {
-            assert!((got - want).abs() <= 1e-12 * want.abs(), "{got} vs {want}");
-        }
-        assert!(e.lower < e.mean && e.mean < e.upper);
+        let values: Vec<f64> = params.iter().map(|w| expected(*w, k + 1).0).collect();
+        let mean = values.iter().sum::<f64>() / values.len() as f64;
+        assert!(
+            close(x(3), expected(point, k + 1).0, 1e-9),
+            "point {}",
+            k + 1
+        );
+        assert!(
+            close(x(4), mean, 1e-9),
+            "mean {}: {} vs {mean}",
+            k + 1,
+            x(4)
+        );
+        let (lo, hi) = values
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), v| {
+                (l.min(*v), h.max(*v))
+            });
+        assert!(
+            lo <= x(5) && x(5) < x(4) && x(4) < x(6) && x(6) <= hi,
+            "{row:?}"
+        );
     }
     assert!(out.join("draws_summary.csv").is_file());
+    let expected_rows = written.tables[0].rows.len();
 
     // The report shows both sections.
     let html = std::fs::read_to_string(out.join("report.html")).unwrap();
@@ -474,6 +521,6 @@ fn adjustments_and_draws_of_the_analysis_file_reach_the_outputs() {
     assert!(!section("adjustments").contains("None:"));
     assert!(section("adjustments").contains("hazard_ratio"));
     assert!(!section("draws").contains("None requested"));
-    assert_eq!(html_rows(&doc, "table-draws").len(), expected.len());
+    assert_eq!(html_rows(&doc, "table-draws").len(), expected_rows);
     assert!(section("reproducibility").contains("20261202"));
 }

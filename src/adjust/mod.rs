@@ -3,8 +3,10 @@
 //! life table (added as a competing cause, or as a floor under an all-cause hazard).
 //!
 //! The order is fixed: the treatment effect acts on the reference curve, then background
-//! mortality is combined with the treated curve. [`apply`] checks the settings, builds the
-//! adjusted curve and returns it with its warnings and the metadata every output records.
+//! mortality is combined with the treated curve. An [`Adjuster`] holds the checked settings
+//! with the life table read once; [`Adjuster::adjust`] is the one way from a parametric curve
+//! to the curve every command works on (point estimate and every draw alike), returned with
+//! its warnings and the metadata every output records.
 //! Conventions and exactness are described in `docs/adjustments.md`.
 
 pub mod add;
@@ -15,6 +17,7 @@ pub mod lifetable;
 
 use crate::curve::{Curve, ParametricCurve};
 use crate::error::{Error, Result};
+use crate::families::Family;
 use crate::units::{Duration, TimeUnit};
 use add::AddedCurve;
 use background::{BackgroundHazard, BeyondTable};
@@ -181,8 +184,6 @@ pub struct AdjustedCurve {
     pub warnings: Vec<String>,
     /// Adjustment settings as ordered key–value pairs for output metadata.
     pub metadata: Vec<(String, String)>,
-    /// The settings the curve was built with (to rebuild it on another base curve).
-    settings: Adjustments,
 }
 
 impl AdjustedCurve {
@@ -192,16 +193,6 @@ impl AdjustedCurve {
             Combined::Added(c) => c,
             Combined::Floored(c) => c,
         }
-    }
-
-    /// The same adjustments on another base curve (e.g. a parameter draw), reusing the life
-    /// table already read and checked.
-    pub fn rebuild(&self, base: ParametricCurve) -> Result<AdjustedCurve> {
-        build(
-            base,
-            &self.settings,
-            self.background().map(|b| b.table.clone()),
-        )
     }
 
     /// The background hazard, when there is one.
@@ -286,6 +277,9 @@ impl Curve for AdjustedCurve {
     fn time_unit(&self) -> TimeUnit {
         self.inner().time_unit()
     }
+    fn survival(&self, t: f64) -> f64 {
+        self.inner().survival(t)
+    }
     fn exit_by_cause(&self, t0: f64, t1: f64) -> Option<Vec<(&'static str, f64)>> {
         self.inner().exit_by_cause(t0, t1)
     }
@@ -300,18 +294,74 @@ impl Curve for AdjustedCurve {
     }
 }
 
-/// Checks `adjustments`, reads the life table if any, and builds the adjusted curve.
-pub fn apply(base: ParametricCurve, adjustments: &Adjustments) -> Result<AdjustedCurve> {
-    adjustments.validate()?;
-    let table = match &adjustments.background {
-        Some(b) => Some(lifetable::load(&b.path, b.sex)?),
-        None => None,
-    };
-    build(base, adjustments, table)
+/// Checked adjustment settings with the life table read once: [`Adjuster::adjust`] is the one
+/// function from a parametric curve to the adjusted curve, used by `tunnels`, `horizon`, `draws`
+/// (point estimate, every draw and every bootstrap refit) and `run`, so the paths cannot diverge.
+#[derive(Clone, Default)]
+pub struct Adjuster {
+    settings: Adjustments,
+    table: Option<LifeTable>,
+}
+
+impl Adjuster {
+    /// Checks `settings` and keeps them with the life table already read (needed exactly when
+    /// background mortality is asked for).
+    pub fn new(settings: Adjustments, table: Option<LifeTable>) -> Result<Adjuster> {
+        settings.validate()?;
+        match (&settings.background, table) {
+            (Some(b), None) => Err(Error::Usage(format!(
+                "the life table {} was not read",
+                b.path.display()
+            ))),
+            (None, Some(t)) => Err(Error::Computation(format!(
+                "the life table {} was read but no background mortality was asked for",
+                t.file
+            ))),
+            (_, table) => Ok(Adjuster { settings, table }),
+        }
+    }
+
+    /// Checks `settings` and reads the life table, if any, from its path.
+    pub fn load(settings: Adjustments) -> Result<Adjuster> {
+        settings.validate()?;
+        let table = match &settings.background {
+            Some(b) => Some(lifetable::load(&b.path, b.sex)?),
+            None => None,
+        };
+        Adjuster::new(settings, table)
+    }
+
+    /// The settings.
+    pub fn settings(&self) -> &Adjustments {
+        &self.settings
+    }
+
+    /// Whether anything is adjusted.
+    pub fn is_empty(&self) -> bool {
+        self.settings.is_empty()
+    }
+
+    /// The adjusted curve of `base` (the parametric curve itself, behind the same type, when
+    /// nothing is adjusted).
+    pub fn adjust(&self, base: ParametricCurve) -> Result<AdjustedCurve> {
+        build(base, &self.settings, self.table.clone())
+    }
+
+    /// The adjusted curve of natural parameters `params` of `family` in `unit`: what an
+    /// uncertainty draw or a bootstrap refit becomes (errors as text, for the draw's message).
+    pub fn adjust_params(
+        &self,
+        family: &'static dyn Family,
+        params: &[f64],
+        unit: TimeUnit,
+    ) -> std::result::Result<AdjustedCurve, String> {
+        let base = ParametricCurve::new(family, params.to_vec(), unit)?;
+        self.adjust(base).map_err(|e| e.to_string())
+    }
 }
 
 /// Builds the adjusted curve from checked settings and an already-read life table.
-pub fn build(
+fn build(
     base: ParametricCurve,
     adjustments: &Adjustments,
     table: Option<LifeTable>,
@@ -397,7 +447,6 @@ pub fn build(
         combined,
         warnings,
         metadata,
-        settings: adjustments.clone(),
     })
 }
 
@@ -493,31 +542,48 @@ mod tests {
     }
 
     #[test]
-    fn rebuild_on_a_draw_equals_a_fresh_build() {
-        // Rebuilding must give exactly what building from scratch gives (consistency, common practice).
+    fn each_draw_gets_its_own_adjusted_curve() {
+        // A draw's adjusted curve is the adjusted curve of its own parameters: with a hazard
+        // ratio X (no waning, no background) S = S0^X, so ln S = X·ln S0 at the draw's
+        // parameters (the definition of a hazard ratio, common practice).
         let table =
             lifetable::parse("life.csv", b"age,qx\n60,0.02\n61,0.03\n62,0.05\n", None).unwrap();
+        let background = BackgroundSettings {
+            path: "life.csv".into(),
+            start_age: 60.5,
+            sex: None,
+            mode: BackgroundMode::Add,
+            beyond: BeyondTable::HoldLast,
+        };
         let settings = Adjustments {
             hazard_ratio: Some(0.8),
-            waning: Some("3 months..1 year".parse().unwrap()),
-            background: Some(BackgroundSettings {
-                path: "life.csv".into(),
-                start_age: 60.5,
-                sex: None,
-                mode: BackgroundMode::Add,
-                beyond: BeyondTable::HoldLast,
-            }),
             ..Default::default()
         };
-        let adjusted = build(weibull(), &settings, Some(table.clone())).unwrap();
-        let draw = ParametricCurve::new(&Weibull, vec![1.1, 26.0], TimeUnit::Months).unwrap();
-        let rebuilt = adjusted.rebuild(draw.clone()).unwrap();
-        let fresh = build(draw, &settings, Some(table)).unwrap();
+        let adjuster = Adjuster::new(settings, None).unwrap();
+        let point = adjuster.adjust(weibull()).unwrap();
+        let drawn = adjuster
+            .adjust_params(&Weibull, &[1.1, 26.0], TimeUnit::Months)
+            .unwrap();
+        let base = ParametricCurve::new(&Weibull, vec![1.1, 26.0], TimeUnit::Months).unwrap();
         for t in [0.5, 6.0, 18.0, 40.0] {
-            assert_eq!(rebuilt.log_survival(t), fresh.log_survival(t));
-            assert_ne!(rebuilt.log_survival(t), adjusted.log_survival(t));
+            let expected = 0.8 * base.log_survival(t);
+            assert!((drawn.log_survival(t) - expected).abs() <= 1e-15 * expected.abs());
+            assert_ne!(drawn.log_survival(t), point.log_survival(t));
         }
-        assert_eq!(rebuilt.metadata, fresh.metadata);
+        assert_eq!(drawn.metadata, point.metadata);
+        // Background mortality needs its life table, and a table needs background settings.
+        let with_background = Adjustments {
+            background: Some(background),
+            ..Default::default()
+        };
+        assert!(Adjuster::new(with_background.clone(), None).is_err());
+        assert!(Adjuster::new(Adjustments::default(), Some(table.clone())).is_err());
+        let added = Adjuster::new(with_background, Some(table)).unwrap();
+        assert!(added.adjust(weibull()).unwrap().background().is_some());
+        // Nothing adjusted: the parametric curve itself.
+        let plain = Adjuster::default().adjust(weibull()).unwrap();
+        assert_eq!(plain.log_survival(17.0), weibull().log_survival(17.0));
+        assert!(plain.metadata.is_empty() && plain.warnings.is_empty());
     }
 
     #[test]

@@ -1,15 +1,18 @@
-//! The curve options shared by `tunnels`, `horizon` (and later `draws`): one clap struct,
-//! flattened into each command, that turns either a fit file or published parameters into a
-//! curve plus the metadata lines describing where it came from.
+//! The curve options shared by `tunnels`, `horizon` and `draws`: one clap struct, flattened
+//! into each command, that turns either a fit file or published parameters into a curve plus
+//! the metadata lines describing where it came from.
 //!
-//! Adding an option (e.g. an adjustment) is a field here and a step in [`CurveArgs::build`]
-//! that wraps [`BuiltCurve::curve`] and pushes a metadata line.
+//! Adding an adjustment is a field here, a setting in [`CurveArgs::adjustments`] and a step in
+//! [`crate::adjust::Adjuster::adjust`], the one function from a parametric curve to the
+//! adjusted curve (so the point estimate and every draw get it alike).
 
 use crate::adjust::background::BeyondTable;
 use crate::adjust::lifetable::Sex;
-use crate::adjust::{self, AdjustedCurve, Adjustments, BackgroundMode, BackgroundSettings, Waning};
+use crate::adjust::{
+    AdjustedCurve, Adjuster, Adjustments, BackgroundMode, BackgroundSettings, Waning,
+};
 use crate::cmd::fit::parse_durations;
-use crate::curve::{Curve, ParametricCurve};
+use crate::curve::ParametricCurve;
 use crate::error::{Error, Result};
 use crate::export::number_text;
 use crate::families::{self, Family, FamilyOptions};
@@ -17,7 +20,6 @@ use crate::fit::{FamilyFit, FitFile};
 use crate::units::TimeUnit;
 use clap::Args;
 use std::path::PathBuf;
-use std::sync::Arc;
 
 /// Where the survival curve comes from: `--fit FIT.json --family NAME [--arm NAME]`, or
 /// `--family NAME --param NAME=VALUE … --time-unit UNIT` (parameters from a publication).
@@ -99,22 +101,13 @@ pub struct CurveArgs {
     pub beyond_table: Option<String>,
 }
 
-/// Turns a parametric curve into the curve downstream code works on, applying the command's
-/// adjustments; built once (e.g. with a life table loaded) and applied to the point estimate and
-/// to every uncertainty draw alike.
-pub type Wrap = std::sync::Arc<dyn Fn(ParametricCurve) -> Box<dyn Curve> + Send + Sync>;
-
-/// The wrap of a command without adjustments: the parametric curve itself.
-pub fn no_adjustment() -> Wrap {
-    std::sync::Arc::new(|base: ParametricCurve| Box::new(base) as Box<dyn Curve>)
-}
-
 /// A curve ready for use, with what every output header says about it.
 pub struct BuiltCurve {
-    /// The curve downstream code works on: `wrap(base)`.
-    pub curve: Box<dyn Curve>,
-    /// The adjustments, as a function of the parametric curve (used again for each draw).
-    pub wrap: Wrap,
+    /// The curve downstream code works on: `adjuster.adjust(base)`.
+    pub curve: AdjustedCurve,
+    /// The checked adjustments with the life table read once: the one way from a parametric
+    /// curve to the adjusted curve, used again for every draw.
+    pub adjuster: Adjuster,
     /// The parametric curve before any adjustment (for draws and parameter listings).
     pub base: ParametricCurve,
     /// The fit it came from, when it came from a fit file (covariance for draws).
@@ -123,28 +116,28 @@ pub struct BuiltCurve {
     pub metadata: Vec<(String, String)>,
     /// Warnings to print on stderr (also recorded in `metadata`).
     pub warnings: Vec<String>,
-    /// The adjusted curve, when any adjustment was asked for (`curve` is then this curve).
-    pub adjustment: Option<Arc<AdjustedCurve>>,
 }
 
 impl BuiltCurve {
     /// Checks that the background life table covers the cohort up to `t_end` (curve's time
     /// unit); call before computing with the last time the command will evaluate.
     pub fn check_horizon(&self, t_end: f64) -> Result<()> {
-        match &self.adjustment {
-            Some(a) => a.check_horizon(t_end),
-            None => Ok(()),
-        }
+        self.curve.check_horizon(t_end)
     }
 
     /// Metadata lines on where a background-mortality floor binds among `count` cycles of
     /// length `cycle` (curve's time unit); empty unless the floor mode is used.
     pub fn floor_report(&self, cycle: f64, count: usize) -> Vec<(String, String)> {
-        match &self.adjustment {
-            Some(a) => a.floor_report(cycle, count),
-            None => Vec::new(),
-        }
+        self.curve.floor_report(cycle, count)
     }
+}
+
+/// Where a curve came from, before any adjustment.
+struct Source {
+    base: ParametricCurve,
+    fit: Option<FamilyFit>,
+    metadata: Vec<(String, String)>,
+    warnings: Vec<String>,
 }
 
 /// One of a fixed set of words, case-insensitive, with a suggestion on a typo.
@@ -191,40 +184,43 @@ impl CurveArgs {
     pub fn build(&self) -> Result<BuiltCurve> {
         let family =
             families::by_name(&self.family).map_err(|e| Error::Usage(format!("--family: {e}")))?;
-        let mut built = match &self.fit {
+        let Source {
+            base,
+            fit,
+            mut metadata,
+            mut warnings,
+        } = match &self.fit {
             Some(path) => self.curve_from_fit(path, family)?,
             None => self.curve_from_params(family)?,
         };
         // The curve's own family: for configured families (cut points, knots) the fit file's.
-        let family = built.base.family;
-        built.metadata.push(("family".into(), family.name().into()));
-        built.metadata.push((
-            "parameters".into(),
-            parameter_text(family, &built.base.params),
-        ));
+        let family = base.family;
+        metadata.push(("family".into(), family.name().into()));
+        metadata.push(("parameters".into(), parameter_text(family, &base.params)));
         if let Some(settings) = family.settings() {
             if let Ok(text) = serde_json::to_string(&settings) {
-                built.metadata.push(("family_settings".into(), text));
+                metadata.push(("family_settings".into(), text));
             }
         }
-        built
-            .metadata
-            .push(("parameter_time_unit".into(), built.base.unit.name().into()));
-        let adjustments = self.adjustments()?;
-        if !adjustments.is_empty() {
-            let adjusted = Arc::new(adjust::apply(built.base.clone(), &adjustments)?);
-            built.metadata.extend(adjusted.metadata.iter().cloned());
-            built.warnings.extend(adjusted.warnings.iter().cloned());
-            built.curve = Box::new(adjusted.clone());
-            built.adjustment = Some(adjusted);
+        metadata.push(("parameter_time_unit".into(), base.unit.name().into()));
+        let adjuster = Adjuster::load(self.adjustments()?)?;
+        let curve = adjuster.adjust(base.clone())?;
+        metadata.extend(curve.metadata.iter().cloned());
+        warnings.extend(curve.warnings.iter().cloned());
+        for w in &warnings {
+            metadata.push(("warning".into(), w.clone()));
         }
-        for w in &built.warnings {
-            built.metadata.push(("warning".into(), w.clone()));
-        }
-        Ok(built)
+        Ok(BuiltCurve {
+            curve,
+            adjuster,
+            base,
+            fit,
+            metadata,
+            warnings,
+        })
     }
 
-    /// The adjustment options, parsed and checked (the life table is read later, by `adjust::apply`).
+    /// The adjustment options, parsed and checked (the life table is read later, by [`Adjuster::load`]).
     pub fn adjustments(&self) -> Result<Adjustments> {
         let hazard_ratio = match &self.hazard_ratio {
             Some(x) => Some(option_number("--hazard-ratio", x)?),
@@ -311,7 +307,7 @@ impl CurveArgs {
         &self,
         path: &std::path::Path,
         family: &'static dyn Family,
-    ) -> Result<BuiltCurve> {
+    ) -> Result<Source> {
         if !self.params.is_empty() || self.time_unit.is_some() {
             return Err(Error::Usage(
                 "--param and --time-unit describe published parameters; they cannot be combined with --fit (the fit file fixes both)".into(),
@@ -374,15 +370,11 @@ impl CurveArgs {
         if let Some(arm) = &fit.arm {
             metadata.push(("arm".into(), arm.clone()));
         }
-        let wrap = no_adjustment();
-        Ok(BuiltCurve {
-            curve: wrap(base.clone()),
-            wrap,
+        Ok(Source {
             base,
             fit: Some(fit),
             metadata,
             warnings,
-            adjustment: None,
         })
     }
 
@@ -443,7 +435,7 @@ impl CurveArgs {
         families::with_options(family, &FamilyOptions { cuts, knots }).map_err(Error::Usage)
     }
 
-    fn curve_from_params(&self, family: &'static dyn Family) -> Result<BuiltCurve> {
+    fn curve_from_params(&self, family: &'static dyn Family) -> Result<Source> {
         if self.arm.is_some() {
             return Err(Error::Usage("--arm needs --fit".into()));
         }
@@ -518,15 +510,11 @@ impl CurveArgs {
         let params: Vec<f64> = values.into_iter().flatten().collect();
         let base = ParametricCurve::new(family, params, unit)
             .map_err(|e| Error::Usage(format!("--param: {e}")))?;
-        let wrap = no_adjustment();
-        Ok(BuiltCurve {
-            curve: wrap(base.clone()),
-            wrap,
+        Ok(Source {
             base,
             fit: None,
             metadata: vec![("source".into(), "published parameters".into())],
             warnings: Vec::new(),
-            adjustment: None,
         })
     }
 }
@@ -534,6 +522,7 @@ impl CurveArgs {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::curve::Curve;
 
     fn published(family: &str, params: &[&str], unit: Option<&str>) -> CurveArgs {
         CurveArgs {

@@ -7,7 +7,7 @@
 
 use crate::cmd::curve_args::{BuiltCurve, CurveArgs};
 use crate::cmd::tunnels::{header, parse_count, parse_duration};
-use crate::curve::{Curve, ParametricCurve};
+use crate::curve::Curve;
 use crate::discretise::{count_until, tunnel_table, TunnelTable};
 use crate::draws::{self, Bootstrap, CurveBuilder, Sampler, SummaryBuilder, SummaryRow};
 use crate::error::{Error, Result};
@@ -342,6 +342,25 @@ fn bootstrap_records(
     Ok((name, records))
 }
 
+/// Checks that the tables of the draws from `first` (0-based) carry the point estimate's extra
+/// columns, in its order: every row of a draws file then has its header's fields.
+fn same_columns(point: &TunnelTable, first: usize, tables: &[TunnelTable]) -> Result<()> {
+    let names = |t: &TunnelTable| t.extra.iter().map(|(n, _)| n.clone()).collect::<Vec<_>>();
+    let expected = names(point);
+    for (i, table) in tables.iter().enumerate() {
+        let got = names(table);
+        if got != expected {
+            return Err(Error::Computation(format!(
+                "draw {}: its table has the extra columns [{}], the point estimate's [{}]",
+                first + i + 1,
+                got.join(", "),
+                expected.join(", ")
+            )));
+        }
+    }
+    Ok(())
+}
+
 /// Ordered metadata lines of an output file.
 type Metadata = Vec<(String, String)>;
 
@@ -461,13 +480,15 @@ pub fn run(args: DrawsArgs) -> Result<()> {
         value: cycle.in_unit(table_unit),
         unit: table_unit,
     };
-    let point = tunnel_table(built.curve.as_ref(), cycle_in_table, count);
+    built.check_horizon(count as f64 * cycle.in_unit(built.curve.time_unit()))?;
+    let point = tunnel_table(&built.curve, cycle_in_table, count);
 
+    // Every draw goes through the adjuster that made the point estimate's curve.
     let family = built.base.family;
     let unit = built.base.unit;
-    let wrap = built.wrap.clone();
+    let adjuster = &built.adjuster;
     let build = move |p: &[f64]| -> std::result::Result<Box<dyn Curve>, String> {
-        Ok(wrap(ParametricCurve::new(family, p.to_vec(), unit)?))
+        Ok(Box::new(adjuster.adjust_params(family, p, unit)?))
     };
 
     let label = if args.bootstrap { "refits" } else { "draws" };
@@ -522,6 +543,7 @@ pub fn run(args: DrawsArgs) -> Result<()> {
                 count,
                 &run.control(),
                 |first, tables| {
+                    same_columns(&point, first, &tables)?;
                     for (i, table) in tables.iter().enumerate() {
                         summary.add(table);
                         if keep_long {
@@ -631,6 +653,7 @@ fn write_streaming(
             (cycle, count),
             &run.control(),
             |first, tables| {
+                same_columns(point, first, &tables)?;
                 let reused = spare.lock().ok().and_then(|mut s| s.pop());
                 let mut bytes = reused.unwrap_or_default();
                 bytes.reserve(100 * count * tables.len());

@@ -4,6 +4,7 @@
 
 use crate::cmd::curve_args::CurveArgs;
 use crate::cmd::tunnels::parse_duration;
+use crate::curve::Curve;
 use crate::discretise::count_until;
 use crate::error::{Error, Result};
 use crate::export::json::MetadataMap;
@@ -125,7 +126,7 @@ pub fn run(args: HorizonArgs) -> Result<()> {
     for w in &built.warnings {
         eprintln!("warning: {w}");
     }
-    let curve = built.curve.as_ref();
+    let curve: &dyn Curve = &built.curve;
     let unit = cycle.unit;
     let (n, horizon_note) = match given_horizon {
         Some(h) => {

@@ -3,7 +3,7 @@
 //! writes the fit JSON, the tables in every requested format, the plots and `report.html`
 //! into a temporary folder that is renamed into place only when everything succeeded.
 
-use crate::adjust::{lifetable, AdjustedCurve};
+use crate::adjust::{lifetable, AdjustedCurve, Adjuster};
 use crate::analysis::{Analysis, Choice, Count, CurveSource, NamedFile, REBUILT_FILE};
 use crate::cmd::rebuild::{
     overlay_plot, rebuild_inputs, InputNames, RebuildInputs, RebuildOutcome,
@@ -588,30 +588,20 @@ pub fn compute(
     let curve = ParametricCurve::new(family, params, analysis.time_unit)
         .map_err(|e| Error::Computation(format!("the {} fit: {e}", family.name())))?;
 
-    let adjusted = if analysis.adjustments.is_empty() {
-        None
-    } else {
-        let settings = &analysis.adjustments;
-        settings.validate()?;
-        let table = match (&settings.background, lifetable_bytes) {
-            (None, _) => None,
-            (Some(b), None) => Some(lifetable::load(&b.path, b.sex)?),
-            (Some(b), Some(bytes)) => Some(lifetable::parse(
-                &b.path.display().to_string(),
-                bytes,
-                b.sex,
-            )?),
-        };
-        Some(Arc::new(crate::adjust::build(
-            curve.clone(),
-            settings,
-            table,
-        )?))
+    // The one way from the chosen curve to the adjusted curve, also taken by every draw.
+    let settings = &analysis.adjustments;
+    let table = match (&settings.background, lifetable_bytes) {
+        (None, _) => None,
+        (Some(b), None) => Some(lifetable::load(&b.path, b.sex)?),
+        (Some(b), Some(bytes)) => Some(lifetable::parse(
+            &b.path.display().to_string(),
+            bytes,
+            b.sex,
+        )?),
     };
-    let table_curve: &dyn Curve = match &adjusted {
-        Some(a) => a.as_ref(),
-        None => &curve,
-    };
+    let adjuster = Adjuster::new(settings.clone(), table)?;
+    let table_curve = Arc::new(adjuster.adjust(curve.clone())?);
+    let adjusted = (!adjuster.is_empty()).then(|| table_curve.clone());
 
     let cycle = analysis.cycle;
     let (horizon_cycles, horizon_rule) = match analysis.horizon {
@@ -632,7 +622,7 @@ pub fn compute(
             (n, format!("horizon = {h}"))
         }
         None => {
-            let (n, by_threshold) = default_horizon(table_curve, cycle);
+            let (n, by_threshold) = default_horizon(table_curve.as_ref(), cycle);
             let why = if by_threshold {
                 format!("default: survival first falls below {DEFAULT_HORIZON_SURVIVAL}")
             } else {
@@ -641,7 +631,7 @@ pub fn compute(
             (n, why)
         }
     };
-    let log_s = boundary_log_survival(table_curve, cycle, horizon_cycles);
+    let log_s = boundary_log_survival(table_curve.as_ref(), cycle, horizon_cycles);
     let truncation = truncation_table(&log_s, cycle.value);
     let suggested = suggested_count(&truncation, analysis.tolerance);
     let p_exit: Vec<f64> = truncation.iter().map(|r| r.p_exit_last).collect();
@@ -650,13 +640,17 @@ pub fn compute(
         Count::Auto => (suggested, "auto: the suggested count".to_string()),
         Count::Fixed(n) => (n, "fixed in the analysis file".to_string()),
     };
-    if let Some(a) = &adjusted {
-        let last = horizon_cycles.max(count) as f64 * cycle.in_unit(curve.unit);
-        a.check_horizon(last)
-            .map_err(|e| analysis.error_at(analysis.adjust_place, format!("[adjust] {e}")))?;
-    }
-    let tunnels = tunnel_table(table_curve, cycle, count);
-    let within_cycle = within_cycle_table(table_curve, cycle, horizon_cycles, analysis.discount);
+    let last = horizon_cycles.max(count) as f64 * cycle.in_unit(curve.unit);
+    table_curve
+        .check_horizon(last)
+        .map_err(|e| analysis.error_at(analysis.adjust_place, format!("[adjust] {e}")))?;
+    let tunnels = tunnel_table(table_curve.as_ref(), cycle, count);
+    let within_cycle = within_cycle_table(
+        table_curve.as_ref(),
+        cycle,
+        horizon_cycles,
+        analysis.discount,
+    );
     let draws = match analysis.draws {
         None => None,
         Some(settings) => {
@@ -665,13 +659,9 @@ pub fn compute(
             })?;
             let params = sampler.draw_natural(settings.count, settings.seed);
             let unit = curve.unit;
-            let adjusted = adjusted.clone();
+            let adjuster = &adjuster;
             let build = move |p: &[f64]| -> std::result::Result<Box<dyn Curve>, String> {
-                let base = ParametricCurve::new(family, p.to_vec(), unit)?;
-                Ok(match &adjusted {
-                    Some(a) => Box::new(a.rebuild(base).map_err(|e| e.to_string())?),
-                    None => Box::new(base),
-                })
+                Ok(Box::new(adjuster.adjust_params(family, p, unit)?))
             };
             let mut summary = SummaryBuilder::new(tunnels.clone(), params.len());
             crate::draws::tables_in_chunks(

@@ -2,6 +2,7 @@
 //! as an aligned table or written as CSV/JSON in the long or matrix layout.
 
 use crate::cmd::curve_args::{parse_unit, CurveArgs};
+use crate::curve::Curve;
 use crate::discretise::{count_until, tunnel_table, TunnelTable, MAX_COUNT};
 use crate::error::{Error, Result};
 use crate::export::tunnel::{
@@ -328,7 +329,7 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
     };
     let cycle_in_curve = cycle.in_unit(built.curve.time_unit());
     built.check_horizon(count as f64 * cycle_in_curve)?;
-    let table = tunnel_table(built.curve.as_ref(), cycle_in_table, count);
+    let table = tunnel_table(&built.curve, cycle_in_table, count);
     if args.layout == Layout::MatrixByCause && crate::discretise::exit_causes(&table).is_empty() {
         return Err(Error::Usage(
             "--layout matrix-by-cause needs a curve whose exit is split by cause: add background mortality with --background LIFETABLE.csv --background-mode add".into(),
