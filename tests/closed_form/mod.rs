@@ -445,6 +445,67 @@ pub fn integrate_panels(f: impl Fn(f64) -> f64, a: f64, b: f64, panels: usize) -
         .sum()
 }
 
+/// Nodes and weights of the n-point Gauss–Hermite rule, ∫ e^(-x²) f(x) dx ≈ Σ w_i f(x_i): the
+/// roots of the orthonormal Hermite polynomials by Newton's method from the usual asymptotic
+/// starting values (Press et al., Numerical Recipes, 3rd ed., 2007, section 4.6, routine gauher
+/// — from memory).
+pub fn gauss_hermite(n: usize) -> (Vec<f64>, Vec<f64>) {
+    let pim4 = std::f64::consts::PI.powf(-0.25);
+    let mut x = vec![0.0; n];
+    let mut w = vec![0.0; n];
+    let nf = n as f64;
+    let mut z: f64 = 0.0;
+    for i in 0..n.div_ceil(2) {
+        z = match i {
+            0 => (2.0 * nf + 1.0).sqrt() - 1.85575 * (2.0 * nf + 1.0).powf(-0.16667),
+            1 => z - 1.14 * nf.powf(0.426) / z,
+            2 => 1.86 * z - 0.86 * x[0],
+            3 => 1.91 * z - 0.91 * x[1],
+            _ => 2.0 * z - x[i - 2],
+        };
+        let mut derivative = 0.0;
+        for _ in 0..100 {
+            let (mut p1, mut p2) = (pim4, 0.0);
+            for j in 0..n {
+                let p3 = p2;
+                p2 = p1;
+                let jf = j as f64;
+                p1 = z * (2.0 / (jf + 1.0)).sqrt() * p2 - (jf / (jf + 1.0)).sqrt() * p3;
+            }
+            derivative = (2.0 * nf).sqrt() * p2;
+            let previous = z;
+            z = previous - p1 / derivative;
+            if (z - previous).abs() <= 1e-14 {
+                break;
+            }
+        }
+        x[i] = z;
+        x[n - 1 - i] = -z;
+        w[i] = 2.0 / (derivative * derivative);
+        w[n - 1 - i] = w[i];
+    }
+    (x, w)
+}
+
+/// E f(θ) for θ bivariate normal with `mean` and covariance `cov`: θ = mean + L·√2·(x_i, x_j)
+/// with L the Cholesky factor of `cov`, weighted by the 40-point Gauss–Hermite weights / π.
+pub fn normal_expectation(mean: [f64; 2], cov: [[f64; 2]; 2], f: impl Fn([f64; 2]) -> f64) -> f64 {
+    let l11 = cov[0][0].sqrt();
+    let l21 = cov[1][0] / l11;
+    let l22 = (cov[1][1] - l21 * l21).sqrt();
+    let (x, w) = gauss_hermite(40);
+    let root2 = std::f64::consts::SQRT_2;
+    let mut total = 0.0;
+    for (xi, wi) in x.iter().zip(&w) {
+        for (xj, wj) in x.iter().zip(&w) {
+            let (z1, z2) = (root2 * xi, root2 * xj);
+            let theta = [mean[0] + l11 * z1, mean[1] + l21 * z1 + l22 * z2];
+            total += wi * wj * f(theta);
+        }
+    }
+    total / std::f64::consts::PI
+}
+
 #[test]
 fn quadrature_integrates_known_integrals() {
     // ∫_0^1 x^9 dx = 1/10, ∫_0^π sin = 2, ∫_0^1 √x = 2/3, ∫_0^1 x^0.3 = 1/1.3, ∫_2^5 e^-x =
@@ -455,4 +516,15 @@ fn quadrature_integrates_known_integrals() {
     assert!((integrate(|x| x.powf(0.3), 0.0, 1.0) - 1.0 / 1.3).abs() < 1e-12);
     let e = |x: f64| (-x).exp();
     assert!((integrate(e, 2.0, 5.0) - (e(2.0) - e(5.0))).abs() < 1e-15);
+    // ∫ e^(-x²) x^(2m) dx = Γ(m + 1/2): √π, √π/2, 3√π/4 (calculus); and for a normal θ,
+    // E θ₁θ₂ = μ₁μ₂ + Σ₁₂ (definition of the covariance).
+    let (x, w) = gauss_hermite(40);
+    let pi = std::f64::consts::PI;
+    for (m, want) in [(0, pi.sqrt()), (1, pi.sqrt() / 2.0), (2, 0.75 * pi.sqrt())] {
+        let got: f64 = x.iter().zip(&w).map(|(x, w)| w * x.powi(2 * m)).sum();
+        assert!((got - want).abs() < 1e-13, "moment {m}: {got}");
+    }
+    let cov = [[0.04, -0.01], [-0.01, 0.09]];
+    let e12 = normal_expectation([0.3, 2.0], cov, |t| t[0] * t[1]);
+    assert!((e12 - (0.6 - 0.01)).abs() < 1e-13, "{e12}");
 }
