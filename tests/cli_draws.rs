@@ -1,20 +1,18 @@
 //! Command-line tests of `draws` (and the XLSX output of `tunnels`): outputs read back with
 //! independent readers (csv + serde with `deny_unknown_fields`, serde_json, the calamine
-//! XLSX reader) and compared with the library's own computation; reproducibility across
-//! thread counts; every bad-input case of the draws issue; a clean stop on SIGINT/SIGTERM.
+//! XLSX reader) and compared with closed forms at the drawn parameters and with the fit
+//! file's distribution; reproducibility across thread counts; every bad-input case of the
+//! draws issue; a clean stop on SIGINT/SIGTERM.
 
+mod closed_form;
 mod shell;
-use shell::{listing, tunnelcast};
+use shell::{listing, read_csv_rows, tunnelcast};
 
 use calamine::{Data, Reader, Xlsx};
+use closed_form::{close, long_table, Adjust, Weibull};
 use serde::Deserialize;
 use std::path::Path;
-use tunnelcast::curve::ParametricCurve;
-use tunnelcast::discretise::tunnel_table;
-use tunnelcast::draws::Sampler;
-use tunnelcast::families;
 use tunnelcast::fit::FitFile;
-use tunnelcast::units::{Duration, TimeUnit};
 
 /// Invented trial (two arms, no external source): times from a fixed list, and its fit file.
 fn write_fit(dir: &Path) {
@@ -83,22 +81,8 @@ struct SummaryRow {
     p_exit_pct97_5: f64,
 }
 
-/// Rows of a CSV file after its `#` header block.
-fn read_csv<T: for<'de> Deserialize<'de>>(path: &Path) -> Vec<T> {
-    let text = std::fs::read_to_string(path).unwrap();
-    let body: String = text
-        .lines()
-        .filter(|l| !l.starts_with('#'))
-        .map(|l| format!("{l}\n"))
-        .collect();
-    csv::Reader::from_reader(body.as_bytes())
-        .deserialize()
-        .map(|r| r.unwrap())
-        .collect()
-}
-
 #[test]
-fn long_csv_equals_the_library_draws_and_is_identical_across_thread_counts() {
+fn long_csv_follows_the_drawn_parameters_and_is_identical_across_thread_counts() {
     check_long_csv(18, 150, 77);
 }
 
@@ -110,8 +94,11 @@ fn long_csv_larger_than_a_write_chunk_lands_whole() {
     assert!(bytes > 9 << 20, "only {bytes} bytes");
 }
 
-/// Runs `draws` with one and with two threads, checks the two long CSV files are identical
-/// and that every row equals the library's own draw and table; returns the file's size.
+/// Runs `draws` with one and with two threads and checks that the two long CSV files are
+/// identical; then checks every row against the Weibull closed form at its draw's parameters
+/// (written by the JSON output of the same seed, whose rows equal the CSV's), and the drawn
+/// parameters' sample mean and covariance on the estimation scale against the fit file's
+/// estimates and covariance. Returns the CSV file's size.
 fn check_long_csv(count: usize, draws: usize, seed: u64) -> usize {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
@@ -126,7 +113,7 @@ fn check_long_csv(count: usize, draws: usize, seed: u64) -> usize {
         "--seed",
         &seed_text,
     ]);
-    for (threads, name) in [("1", "one.csv"), ("2", "two.csv")] {
+    for (threads, name) in [("1", "one.csv"), ("2", "two.csv"), ("2", "one.json")] {
         let mut a = args.clone();
         a.extend(["--out", name]);
         tunnelcast(d)
@@ -138,41 +125,110 @@ fn check_long_csv(count: usize, draws: usize, seed: u64) -> usize {
     let one = std::fs::read(d.join("one.csv")).unwrap();
     assert!(one == std::fs::read(d.join("two.csv")).unwrap());
 
-    // The same draws computed here through the library: sampler, natural parameters, table.
-    let file = FitFile::load(&d.join("fit.json")).unwrap();
-    let fit = file.find("weibull", Some("north")).unwrap();
-    let weibull = families::by_name("weibull").unwrap();
-    let params = Sampler::from_fit(weibull, fit)
-        .unwrap()
-        .draw_natural(draws, seed);
-    let cycle = Duration {
-        value: 1.0,
-        unit: TimeUnit::Months,
-    };
-    let rows: Vec<LongRow> = read_csv(&d.join("one.csv"));
+    #[derive(Deserialize)]
+    struct Doc {
+        metadata: std::collections::BTreeMap<String, String>,
+        tables: Vec<DocTable>,
+    }
+    #[derive(Deserialize)]
+    struct DocTable {
+        name: String,
+        rows: Vec<Vec<f64>>,
+    }
+    let doc: Doc = serde_json::from_slice(&std::fs::read(d.join("one.json")).unwrap()).unwrap();
+    assert_eq!(doc.metadata["seed"], seed_text);
+    assert!(doc.metadata["caution"].contains("assumption"));
+    let table = |name: &str| &doc.tables.iter().find(|t| t.name == name).unwrap().rows;
+    let params: Vec<Weibull> = table("parameters")
+        .iter()
+        .map(|r| Weibull {
+            shape: r[1],
+            scale: r[2],
+        })
+        .collect();
+    assert_eq!(params.len(), draws);
+
+    let rows: Vec<LongRow> = read_csv_rows(&d.join("one.csv"));
     assert_eq!(rows.len(), draws * count);
-    for (i, p) in params.iter().enumerate() {
-        let curve = ParametricCurve::new(weibull, p.clone(), TimeUnit::Months).unwrap();
-        let table = tunnel_table(&curve, cycle, count);
-        for (r, back) in table.rows.iter().zip(&rows[i * count..(i + 1) * count]) {
-            let expected = LongRow {
-                draw: i + 1,
-                tunnel: r.tunnel,
-                t_start: r.t_start,
-                t_end: r.t_end,
-                surv_start: r.surv_start,
-                surv_end: r.surv_end,
-                p_exit: r.p_exit,
-                p_next: r.p_next,
-            };
-            assert_eq!(back, &expected);
+    for (row, json) in rows.iter().zip(table("draws")) {
+        let csv = [
+            row.draw as f64,
+            row.tunnel as f64,
+            row.t_start,
+            row.t_end,
+            row.surv_start,
+            row.surv_end,
+            row.p_exit,
+            row.p_next,
+        ];
+        assert_eq!(&csv[..], &json[..], "CSV and JSON rows differ");
+    }
+    // Each row against S(t) = exp(-(t/scale)^shape) at its draw's parameters, monthly cycles
+    // (closed form, interface.md).
+    for (i, w) in params.iter().enumerate() {
+        let expected = long_table(*w, Adjust::None, 1.0, count);
+        for (back, e) in rows[i * count..(i + 1) * count].iter().zip(&expected) {
+            assert_eq!((back.draw, back.tunnel), (i + 1, e.tunnel));
+            let got = [
+                back.t_start,
+                back.t_end,
+                back.surv_start,
+                back.surv_end,
+                back.p_exit,
+                back.p_next,
+            ];
+            let want = [
+                e.t_start,
+                e.t_end,
+                e.surv_start,
+                e.surv_end,
+                e.p_exit,
+                e.p_next,
+            ];
+            for (g, w) in got.iter().zip(want) {
+                assert!(
+                    close(*g, w, 1e-10),
+                    "draw {} tunnel {}: {g} vs {w}",
+                    i + 1,
+                    e.tunnel
+                );
+            }
         }
     }
-    let size = one.len();
-    let text = String::from_utf8(one).unwrap();
-    assert!(text.contains(&format!("# seed: {seed}\n")));
-    assert!(text.contains("# caution: "));
-    size
+
+    // The draws' distribution: ln shape and ln scale are normal with the fit file's estimates
+    // and covariance. The sample mean of n draws has standard error sqrt(Σᵢᵢ/n), the sample
+    // covariance sᵢⱼ variance (Σᵢⱼ² + ΣᵢᵢΣⱼⱼ)/n (Anderson, 2003, An Introduction to
+    // Multivariate Statistical Analysis, section 3.4 — from memory); tolerance 4 standard errors.
+    let file = FitFile::load(&d.join("fit.json")).unwrap();
+    let fit = file.find("weibull", Some("north")).unwrap();
+    let sigma = &fit.covariance.as_ref().unwrap().matrix;
+    let logs: Vec<[f64; 2]> = params
+        .iter()
+        .map(|w| [w.shape.ln(), w.scale.ln()])
+        .collect();
+    let n = draws as f64;
+    let m: Vec<f64> = (0..2)
+        .map(|i| logs.iter().map(|l| l[i]).sum::<f64>() / n)
+        .collect();
+    for i in 0..2 {
+        let se = (sigma[i][i] / n).sqrt();
+        assert!(
+            (m[i] - fit.estimates[i]).abs() < 4.0 * se,
+            "mean {i}: {}",
+            m[i]
+        );
+        for j in 0..2 {
+            let s = logs
+                .iter()
+                .map(|l| (l[i] - m[i]) * (l[j] - m[j]))
+                .sum::<f64>()
+                / (n - 1.0);
+            let se = ((sigma[i][j].powi(2) + sigma[i][i] * sigma[j][j]) / n).sqrt();
+            assert!((s - sigma[i][j]).abs() < 4.0 * se, "cov {i}{j}: {s}");
+        }
+    }
+    one.len()
 }
 
 #[test]
@@ -190,10 +246,10 @@ fn summary_wide_json_and_xlsx_agree_with_the_long_layout() {
     run(&["--out", "wide.csv", "--layout", "wide"]);
     run(&["--out", "long.json"]);
     run(&["--out", "wide.xlsx", "--layout", "wide"]);
-    let long: Vec<LongRow> = read_csv(&d.join("long.csv"));
+    let long: Vec<LongRow> = read_csv_rows(&d.join("long.csv"));
 
     // Summary: mean and percentiles (Hyndman and Fan, 1996, definition 7) recomputed here.
-    let summary: Vec<SummaryRow> = read_csv(&d.join("summary.csv"));
+    let summary: Vec<SummaryRow> = read_csv_rows(&d.join("summary.csv"));
     assert_eq!(summary.len(), 10);
     for s in &summary {
         let mut p: Vec<f64> = long
@@ -217,12 +273,7 @@ fn summary_wide_json_and_xlsx_agree_with_the_long_layout() {
 
     // Wide CSV: column draw_d holds p_exit of draw d.
     let text = std::fs::read_to_string(d.join("wide.csv")).unwrap();
-    let body: String = text
-        .lines()
-        .filter(|l| !l.starts_with('#'))
-        .map(|l| format!("{l}\n"))
-        .collect();
-    let mut reader = csv::Reader::from_reader(body.as_bytes());
+    let mut reader = csv::Reader::from_reader(shell::csv_body(&text).as_bytes());
     let header = reader.headers().unwrap().clone();
     assert_eq!(header.len(), 3 + 40);
     assert_eq!(&header[3], "draw_1");
@@ -408,7 +459,7 @@ fn bootstrap_finds_the_data_beside_the_fit_file_and_reports_failures() {
     let text = std::fs::read_to_string(d.join("b.csv")).unwrap();
     assert!(text.contains("# method: nonparametric bootstrap"));
     assert!(text.contains("# bootstrap_failed: "));
-    let rows: Vec<LongRow> = read_csv(&d.join("b.csv"));
+    let rows: Vec<LongRow> = read_csv_rows(&d.join("b.csv"));
     assert_eq!(rows.len() % 6, 0);
     // A data file other than the fitted one is refused.
     std::fs::write(

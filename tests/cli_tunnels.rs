@@ -1,16 +1,14 @@
 //! Command-line tests of `tunnels` and `horizon`: outputs read back with serde, and every
 //! bad-input case of the tunnels issue (exit 2, one line, no output file).
 
+mod closed_form;
 mod shell;
-use shell::{listing, tunnelcast, TableFile};
+use shell::{listing, read_csv_rows, tunnelcast, TableFile};
 
+use closed_form::{close, long_table, Adjust, Weibull};
 use serde::Deserialize;
 use std::collections::BTreeMap;
 use std::path::Path;
-use tunnelcast::curve::ParametricCurve;
-use tunnelcast::discretise::tunnel_table;
-use tunnelcast::families::Weibull;
-use tunnelcast::units::{Duration, TimeUnit};
 
 const WEIBULL: [&str; 8] = [
     "--family",
@@ -111,54 +109,59 @@ fn split_csv(text: &str) -> (BTreeMap<String, String>, String) {
 }
 
 #[test]
-fn long_csv_reads_back_equal_to_the_library_table() {
+fn long_csv_reads_back_equal_to_the_closed_form() {
     let dir = tempfile::tempdir().unwrap();
     let mut args = vec!["tunnels"];
     args.extend(WEIBULL);
     args.extend(["--cycle", "4 weeks", "--until", "2 years"]);
-    tunnelcast(dir.path())
-        .args(&args)
-        .args(["--out", "t.csv"])
-        .assert()
-        .success();
-    let text = std::fs::read_to_string(dir.path().join("t.csv")).unwrap();
-    let (meta, body) = split_csv(&text);
-    assert_eq!(meta["time_unit"], "weeks");
-    assert_eq!(meta["family"], "weibull");
-    assert!(meta["caution"].contains("assumption"));
-    let rows: Vec<LongRow> = csv::Reader::from_reader(body.as_bytes())
-        .deserialize()
-        .map(|r| r.unwrap())
-        .collect();
+    for out in ["t.csv", "t.json"] {
+        tunnelcast(dir.path())
+            .args(&args)
+            .args(["--out", out])
+            .assert()
+            .success();
+    }
+    let doc: TableFile =
+        serde_json::from_slice(&std::fs::read(dir.path().join("t.json")).unwrap()).unwrap();
+    assert_eq!(doc.metadata["time_unit"], "weeks");
+    assert_eq!(doc.metadata["family"], "weibull");
+    assert!(doc.metadata["caution"].contains("assumption"));
+    let rows: Vec<LongRow> = read_csv_rows(&dir.path().join("t.csv"));
     // 2 years = 730.5 days = 26.09 four-week cycles: 27 tunnels.
     assert_eq!(rows.len(), 27);
-    let curve = ParametricCurve::new(&Weibull, vec![1.2, 30.0], TimeUnit::Months).unwrap();
-    let cycle = Duration {
-        value: 4.0,
-        unit: TimeUnit::Weeks,
+    // S(t) = exp(-(t/30)^1.2), t in months; a four-week cycle is 28/30.4375 months (a month is
+    // a twelfth of 365.25 days; interface.md); times in the table in weeks.
+    let weibull = Weibull {
+        shape: 1.2,
+        scale: 30.0,
     };
-    let table = tunnel_table(&curve, cycle, 27);
-    for (got, want) in rows.iter().zip(&table.rows) {
+    let expected = long_table(weibull, Adjust::None, 28.0 / 30.4375, 27);
+    for (got, want) in rows.iter().zip(&expected) {
         assert_eq!(got.tunnel, want.tunnel);
-        // Full precision: the file holds the same f64s.
-        assert_eq!(
-            [
-                got.t_start,
-                got.t_end,
-                got.surv_start,
-                got.surv_end,
-                got.p_exit,
-                got.p_next
-            ],
-            [
-                want.t_start,
-                want.t_end,
-                want.surv_start,
-                want.surv_end,
-                want.p_exit,
-                want.p_next
-            ]
-        );
+        let k = got.tunnel as f64;
+        assert_eq!([got.t_start, got.t_end], [4.0 * (k - 1.0), 4.0 * k]);
+        for (g, w) in [
+            (got.surv_start, want.surv_start),
+            (got.surv_end, want.surv_end),
+            (got.p_exit, want.p_exit),
+            (got.p_next, want.p_next),
+        ] {
+            assert!(close(g, w, 1e-12), "tunnel {k}: {g} vs closed form {w}");
+        }
+    }
+    // The JSON holds the same numbers, to the bit.
+    for (row, got) in doc.tables[0].rows.iter().zip(&rows) {
+        let json: Vec<f64> = row.iter().map(|v| v.as_f64().unwrap()).collect();
+        let csv = [
+            got.tunnel as f64,
+            got.t_start,
+            got.t_end,
+            got.surv_start,
+            got.surv_end,
+            got.p_exit,
+            got.p_next,
+        ];
+        assert_eq!(json, csv);
     }
 }
 
