@@ -14,11 +14,10 @@ mod closed_form;
 mod scenario;
 mod shell;
 
-use calamine::{Data, Reader, Xlsx};
 use closed_form::{close, long_columns, long_table, Adjust, Row, Weibull};
 use scenario::{
-    adjust_args, adjust_toml, write_fit, write_lifetable, JsonTables, ADJUSTMENTS, COVARIANCE,
-    CURVE, FROM_FIT, PUBLISHED,
+    adjust_args, adjust_toml, read_xlsx, write_fit, write_lifetable, JsonTables, ADJUSTMENTS,
+    COVARIANCE, CURVE, FROM_FIT, PUBLISHED,
 };
 use shell::{read_csv, tunnelcast};
 use std::path::Path;
@@ -70,27 +69,6 @@ fn check_long(what: &str, columns: &[String], rows: &[Vec<f64>], expected: &[Row
             );
         }
     }
-}
-
-/// The first sheet named `sheet` of an XLSX file, read by calamine: header and numeric rows.
-fn read_xlsx(path: &Path, sheet: &str) -> (Vec<String>, Vec<Vec<f64>>) {
-    let mut book: Xlsx<_> = calamine::open_workbook(path).unwrap();
-    let range = book.worksheet_range(sheet).unwrap();
-    let mut rows = range.rows();
-    let columns = rows.next().unwrap().iter().map(|c| c.to_string()).collect();
-    let values = rows
-        .map(|r| {
-            r.iter()
-                .map(|c| match c {
-                    Data::Float(x) => *x,
-                    Data::Int(i) => *i as f64,
-                    Data::Empty => f64::NAN,
-                    other => panic!("{}: unexpected cell {other:?}", path.display()),
-                })
-                .collect()
-        })
-        .collect();
-    (columns, values)
 }
 
 /// Rows of a matrix table (first column the state's name) as numbers, without that column.
@@ -168,6 +146,43 @@ fn check_tunnels(d: &Path, adjust: Adjust, expected: &[Row]) -> Vec<Vec<f64>> {
                 states[i],
                 states[j]
             );
+        }
+    }
+
+    // With background mortality added, the matrix by cause: one exit state per cause.
+    if let Adjust::Add { .. } = adjust {
+        tunnels(
+            d,
+            &PUBLISHED,
+            adjust,
+            &["--layout", "matrix-by-cause", "--out", "c.json"],
+        );
+        let by_cause = JsonTables::read(&d.join("c.json"));
+        let columns = by_cause.columns("matrix_by_cause");
+        assert_eq!(columns[1..=COUNT], states[..COUNT]);
+        assert_eq!(columns[COUNT + 1..], ["exit_disease", "exit_background"]);
+        for (k, (row, e)) in by_cause
+            .rows("matrix_by_cause")
+            .iter()
+            .zip(expected)
+            .enumerate()
+        {
+            let cause = |name: &str| e.extra.iter().find(|(n, _)| *n == name).unwrap().1;
+            let next = (k + 1).min(COUNT - 1);
+            for (j, got) in row[1..].iter().enumerate() {
+                let want = match j {
+                    j if j == next => e.p_next,
+                    j if j == COUNT => cause("p_exit_disease"),
+                    j if j == COUNT + 1 => cause("p_exit_background"),
+                    _ => 0.0,
+                };
+                assert!(
+                    close(*got, want, REL),
+                    "matrix by cause tunnel {} → {}: {got} vs closed form {want}",
+                    k + 1,
+                    columns[j + 1]
+                );
+            }
         }
     }
     rows
@@ -461,4 +476,74 @@ fn added_background_mortality_gives_the_same_numbers_on_every_path() {
 #[test]
 fn a_background_floor_gives_the_same_numbers_on_every_path() {
     check_paths("floor");
+}
+
+/// The same curve given in years, four-week cycles and tables in days: the unit conversions of
+/// every adjustment (waning durations in months, background ages in years) on the tunnels and
+/// draws paths, against the closed form in months (a four-week cycle is 28/30.4375 months: a
+/// month is a twelfth of 365.25 days; interface.md, Time).
+#[test]
+fn every_adjustment_converts_units_alike_on_every_path() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    write_fit(d);
+    write_lifetable(d);
+    let in_years = [
+        "--family",
+        "weibull",
+        "--param",
+        "shape=1.5",
+        "--param",
+        "scale=5",
+        "--time-unit",
+        "years",
+    ];
+    let cycle = 28.0 / 30.4375;
+    let count = 30;
+    for (name, adjust) in ADJUSTMENTS {
+        let expected = long_table(CURVE, adjust, cycle, count);
+        let extra = ["--count", "30", "--table-unit", "days", "--force"];
+        let mut tunnels_args = extra.to_vec();
+        tunnels_args.extend(["--cycle", "4 weeks", "--out", "u.csv"]);
+        tunnelcast(d)
+            .arg("tunnels")
+            .args(in_years)
+            .args(adjust_args(adjust))
+            .args(&tunnels_args)
+            .assert()
+            .success();
+        let mut draws_args = extra.to_vec();
+        draws_args.extend(["--cycle", "4 weeks", "--draws", "20", "--quiet"]);
+        draws_args.extend(["--summary-out", "us.csv"]);
+        tunnelcast(d)
+            .arg("draws")
+            .args(FROM_FIT)
+            .args(adjust_args(adjust))
+            .args(&draws_args)
+            .assert()
+            .success();
+        let table = read_csv(&d.join("u.csv"));
+        assert_eq!(table.columns, long_columns(adjust), "{name}");
+        let summary = read_csv(&d.join("us.csv"));
+        for (k, (row, e)) in table.numbers().iter().zip(&expected).enumerate() {
+            // Times in days: tunnel k covers [28(k - 1), 28k).
+            assert_eq!([row[1], row[2]], [28.0 * k as f64, 28.0 * (k + 1) as f64]);
+            for (j, (got, want)) in row.iter().zip(e.values()).enumerate().skip(3) {
+                assert!(
+                    close(*got, want, REL),
+                    "{name} tunnel {} {}: {got} vs closed form {want}",
+                    k + 1,
+                    table.columns[j]
+                );
+            }
+            let point = summary.number(k, "p_exit_point");
+            assert!(
+                close(point, e.p_exit, REL),
+                "{name} draws point {}: {point} vs closed form {}",
+                k + 1,
+                e.p_exit
+            );
+            assert_eq!(summary.number(k, "t_end"), 28.0 * (k + 1) as f64);
+        }
+    }
 }

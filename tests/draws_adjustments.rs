@@ -12,7 +12,7 @@ mod scenario;
 mod shell;
 
 use closed_form::{close, long_columns, long_table, Adjust, Weibull};
-use scenario::{adjust_args, write_fit, write_lifetable, JsonTables, FROM_FIT};
+use scenario::{adjust_args, read_xlsx, write_fit, write_lifetable, JsonTables, FROM_FIT};
 use shell::{read_csv, tunnelcast};
 use std::path::Path;
 
@@ -136,14 +136,32 @@ fn parameters(d: &Path, adjust: Adjust) -> Vec<Weibull> {
     params
 }
 
+/// The drawn parameters of an XLSX draws file's `parameters` sheet.
+fn xlsx_parameters(path: &Path) -> Vec<Weibull> {
+    let (columns, rows) = read_xlsx(path, "parameters");
+    assert_eq!(columns, ["draw", "shape", "scale"]);
+    rows.iter()
+        .map(|r| Weibull {
+            shape: r[1],
+            scale: r[2],
+        })
+        .collect()
+}
+
 #[test]
-fn long_json_draws_follow_each_adjustment() {
+fn long_json_and_xlsx_draws_follow_each_adjustment() {
     // With a hazard ratio of 0.5 the drawn p_exit were those of the unadjusted curve, about
     // twice the adjusted point estimate's; with a floor, many fell below the background's.
     for_each_adjustment(|d, adjust| {
         let params = parameters(d, adjust);
         let json = JsonTables::read(&d.join("params.json"));
-        check_long(&json.columns("draws"), &json.rows("draws"), &params, adjust)
+        check_long(&json.columns("draws"), &json.rows("draws"), &params, adjust)?;
+        let n = DRAWS.to_string();
+        draws(d, adjust, &["--draws", &n, "--out", "long.xlsx"]);
+        let xlsx = d.join("long.xlsx");
+        assert_eq!(xlsx_parameters(&xlsx), params);
+        let (columns, rows) = read_xlsx(&xlsx, "draws");
+        check_long(&columns, &rows, &params, adjust)
     });
 }
 
@@ -168,7 +186,7 @@ fn long_csv_draws_follow_each_adjustment_and_fill_their_header() {
 }
 
 #[test]
-fn wide_draws_follow_each_adjustment() {
+fn wide_draws_follow_each_adjustment_in_csv_and_xlsx() {
     for_each_adjustment(|d, adjust| {
         let params = parameters(d, adjust);
         let n = DRAWS.to_string();
@@ -177,9 +195,17 @@ fn wide_draws_follow_each_adjustment() {
             adjust,
             &["--draws", &n, "--layout", "wide", "--out", "w.csv"],
         );
-        // Column draw_d holds p_exit of draw d.
+        draws(
+            d,
+            adjust,
+            &["--draws", &n, "--layout", "wide", "--out", "w.xlsx"],
+        );
+        // Column draw_d holds p_exit of draw d, in CSV and in XLSX.
         let wide = read_csv(&d.join("w.csv"));
         assert_eq!(wide.columns.len(), 3 + DRAWS);
+        let (xlsx_columns, xlsx_rows) = read_xlsx(&d.join("w.xlsx"), "draws_wide");
+        assert_eq!(xlsx_columns, wide.columns);
+        assert_eq!(xlsx_rows, wide.numbers(), "wide XLSX and CSV differ");
         for (k, row) in wide.numbers().iter().enumerate() {
             for (i, w) in params.iter().enumerate() {
                 let want = closed_form::p_exit(*w, adjust, k as f64, k as f64 + 1.0);

@@ -7,6 +7,7 @@
 
 use crate::closed_form::{Adjust, Weibull};
 use crate::shell::tunnelcast;
+use calamine::{Data, Reader, Xlsx};
 use std::path::Path;
 
 /// The curve of the scenario: Weibull shape 1.5, scale 60 months (invented).
@@ -223,4 +224,25 @@ impl JsonTables {
             .find(|t| t["name"] == name)
             .unwrap_or_else(|| panic!("no table {name}"))
     }
+}
+
+/// The sheet named `sheet` of an XLSX file, read by calamine: header and numeric rows.
+pub fn read_xlsx(path: &Path, sheet: &str) -> (Vec<String>, Vec<Vec<f64>>) {
+    let mut book: Xlsx<_> = calamine::open_workbook(path).unwrap();
+    let range = book.worksheet_range(sheet).unwrap();
+    let mut rows = range.rows();
+    let columns = rows.next().unwrap().iter().map(|c| c.to_string()).collect();
+    let values = rows
+        .map(|r| {
+            r.iter()
+                .map(|c| match c {
+                    Data::Float(x) => *x,
+                    Data::Int(i) => *i as f64,
+                    Data::Empty => f64::NAN,
+                    other => panic!("{}: unexpected cell {other:?}", path.display()),
+                })
+                .collect()
+        })
+        .collect();
+    (columns, values)
 }
