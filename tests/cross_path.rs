@@ -547,3 +547,51 @@ fn every_adjustment_converts_units_alike_on_every_path() {
         }
     }
 }
+
+/// The reference tables of `tests/reference/cross_path.json`, written by
+/// `tests/reference/cross_path_reference.py` (mpmath quadrature of each adjusted hazard at 40
+/// digits, not the closed forms): they check the closed forms of `tests/closed_form` that the
+/// other tests trust, and the tunnel tables of the published curve directly.
+#[test]
+fn mpmath_reference_tables_agree_with_the_closed_forms_and_the_tunnel_tables() {
+    let reference: serde_json::Value =
+        serde_json::from_str(include_str!("reference/cross_path.json")).unwrap();
+    let crossing = reference["floor_crossing_months"].as_f64().unwrap();
+    let level = closed_form::background_hazard(scenario::QX);
+    assert!(close(closed_form::crossing(CURVE, level), crossing, 1e-12));
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    write_lifetable(d);
+    for (name, adjust) in ADJUSTMENTS {
+        let rows = reference["tables"][name].as_array().unwrap();
+        assert_eq!(rows.len(), COUNT, "{name}");
+        let expected = long_table(CURVE, adjust, 1.0, COUNT);
+        tunnels(d, &PUBLISHED, adjust, &["--out", "t.csv", "--force"]);
+        let table = read_csv(&d.join("t.csv"));
+        for (k, (row, e)) in rows.iter().zip(&expected).enumerate() {
+            let mut checks = vec![("surv_end", e.surv_end), ("p_exit", e.p_exit)];
+            checks.extend(e.extra.iter().copied());
+            // p_exit_disease is p_exit less p_exit_background (the reference has the two).
+            for (column, closed) in checks {
+                let want = match column {
+                    "p_exit_disease" => {
+                        row["p_exit"].as_f64().unwrap() - row["p_exit_background"].as_f64().unwrap()
+                    }
+                    _ => row[column].as_f64().unwrap(),
+                };
+                // The test's closed forms and Gauss–Legendre against mpmath.
+                assert!(
+                    close(closed, want, 1e-11),
+                    "{name} tunnel {} {column}: closed form {closed} vs mpmath {want}",
+                    k + 1
+                );
+                let got = table.number(k, column);
+                assert!(
+                    close(got, want, REL),
+                    "{name} tunnel {} {column}: tunnels {got} vs mpmath {want}",
+                    k + 1
+                );
+            }
+        }
+    }
+}
