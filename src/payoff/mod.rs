@@ -2,10 +2,16 @@
 //! been in the chain (a costly first year, then maintenance; a one-off on entry or on exit).
 //!
 //! One module per concern: [`schedule`] (the checked payoff schedule, built from rows a CSV
-//! reader has split) and [`discount`] (the annual rate).
+//! reader has split), [`discount`] (the annual rate), [`integral`] (the exact integrals: closed
+//! forms for a piecewise-constant hazard, quadrature otherwise) and [`tunnel`] (payoff columns
+//! per tunnel state).
 
 pub mod discount;
+pub mod integral;
 pub mod schedule;
+pub mod tunnel;
 
 pub use discount::Discount;
+pub use integral::{CurveHint, Exactness, PiecewiseHazard};
 pub use schedule::{Payoff, PayoffColumns, PayoffKind, PayoffRow, RatePiece, Schedule};
+pub use tunnel::{tunnel_payoffs, TunnelPayoffs};
