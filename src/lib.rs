@@ -25,6 +25,7 @@ pub mod input;
 pub mod km;
 pub mod numeric;
 pub mod output;
+pub mod payoff;
 pub mod plot;
 pub mod progress;
 pub mod rebuild;

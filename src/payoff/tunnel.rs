@@ -1,0 +1,252 @@
+//! Payoffs per tunnel state: for each tunnel k, covering [(k-1)·cycle, k·cycle) since entry, the
+//! expected amount accrued during that cycle by one person at the start of tunnel k,
+//!
+//!   ∫ c(u) S(u)/S(t_start) (1+R)^-(u - t_start) du over the cycle
+//!   + `at_entry` (tunnel 1 only)
+//!   + `at_exit` · ∫ f(u)/S(t_start) (1+R)^-(u - t_start) du over the cycle,
+//!
+//! discounted within the cycle only. A cohort engine multiplies it by the membership at the start
+//! of the cycle (and its own discount factor for that time): no within-cycle correction is needed.
+
+use super::discount::Discount;
+use super::integral::{CurveHint, Exactness, Integrator};
+use super::schedule::{PayoffKind, Schedule};
+use crate::curve::Curve;
+use crate::discretise::TunnelTable;
+use crate::units::Duration;
+use rayon::prelude::*;
+
+/// Per-tunnel payoffs of a schedule, ready to be appended to a tunnel table's extra columns.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TunnelPayoffs {
+    /// Column names `payoff_NAME`, in the schedule's order.
+    pub columns: Vec<String>,
+    /// `values[p][k - 1]`: payoff p in tunnel k.
+    pub values: Vec<Vec<f64>>,
+    /// The annual discount rate applied within each cycle.
+    pub discount: Discount,
+    /// How the integrals were computed.
+    pub exactness: Exactness,
+}
+
+impl TunnelPayoffs {
+    /// The payoff columns as (name, one value per tunnel), the shape of [`TunnelTable::extra`].
+    pub fn extra_columns(&self) -> Vec<(String, Vec<f64>)> {
+        self.columns
+            .iter()
+            .cloned()
+            .zip(self.values.iter().cloned())
+            .collect()
+    }
+
+    /// Appends the payoff columns after the table's other extra columns, so every export format
+    /// that writes the long layout (CSV, JSON, XLSX, draws) carries them. The table must have
+    /// been computed for the same curve, cycle and count.
+    pub fn append_to(&self, table: &mut TunnelTable) {
+        debug_assert!(self.values.iter().all(|v| v.len() == table.rows.len()));
+        table.extra.extend(self.extra_columns());
+    }
+}
+
+/// The payoffs of `schedule` for `count` tunnel states of length `cycle` on `curve`, discounted
+/// within each cycle at `discount` (from the cycle's start).
+pub fn tunnel_payoffs(
+    curve: &dyn Curve,
+    hint: &CurveHint,
+    schedule: &Schedule,
+    cycle: Duration,
+    count: usize,
+    discount: Discount,
+) -> TunnelPayoffs {
+    let unit = curve.time_unit();
+    let h = cycle.in_unit(unit);
+    let bound = |k: usize| k as f64 * h;
+    let integrator = Integrator::new(
+        curve,
+        hint,
+        discount.per_unit(unit),
+        &schedule.changes_in(unit),
+        (0..=2 * count).map(|i| 0.5 * i as f64 * h),
+    );
+    let rates: Vec<Vec<(f64, f64)>> = schedule.payoffs.iter().map(|p| p.rates_in(unit)).collect();
+    let want_exit = schedule
+        .payoffs
+        .iter()
+        .any(|p| matches!(p.kind, PayoffKind::AtExit(_)));
+    let per_tunnel: Vec<Vec<f64>> = (1..=count)
+        .into_par_iter()
+        .map(|k| {
+            let (t0, t1) = (bound(k - 1), bound(k));
+            let window = integrator.window(
+                t0,
+                t1,
+                curve.log_survival(t0),
+                curve.log_survival(t1),
+                &[],
+                want_exit,
+            );
+            schedule
+                .payoffs
+                .iter()
+                .zip(&rates)
+                .map(|(payoff, pieces)| match payoff.kind {
+                    PayoffKind::Rate(_) => window
+                        .pieces
+                        .iter()
+                        .map(|&(a, b, stay)| rate_on(pieces, a, b) * stay)
+                        .sum(),
+                    PayoffKind::AtEntry(amount) => {
+                        if k == 1 {
+                            amount
+                        } else {
+                            0.0
+                        }
+                    }
+                    PayoffKind::AtExit(amount) => amount * window.exit,
+                })
+                .collect()
+        })
+        .collect();
+    let values = (0..schedule.payoffs.len())
+        .map(|p| per_tunnel.iter().map(|row| row[p]).collect())
+        .collect();
+    TunnelPayoffs {
+        columns: schedule.payoffs.iter().map(|p| p.column()).collect(),
+        values,
+        discount,
+        exactness: integrator.exactness(),
+    }
+}
+
+/// The rate of a payoff (pieces as (start, rate)) on a piece [a, b] lying between two changes:
+/// the rate at its middle.
+pub(crate) fn rate_on(pieces: &[(f64, f64)], a: f64, b: f64) -> f64 {
+    let mid = 0.5 * (a + b);
+    pieces
+        .iter()
+        .rev()
+        .find(|(from, _)| *from <= mid)
+        .map_or(0.0, |(_, rate)| *rate)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::curve::ParametricCurve;
+    use crate::discretise::tunnel_table;
+    use crate::families::{Exponential, Weibull};
+    use crate::payoff::schedule::{PayoffColumns, PayoffRow};
+    use crate::units::TimeUnit;
+
+    fn schedule(rows: &[[&str; 5]]) -> Schedule {
+        let rows: Vec<PayoffRow> = rows
+            .iter()
+            .enumerate()
+            .map(|(i, f)| PayoffRow {
+                line: i as u64 + 2,
+                payoff: f[0].into(),
+                kind: f[1].into(),
+                from: f[2].into(),
+                amount: f[3].into(),
+                per: f[4].into(),
+            })
+            .collect();
+        Schedule::from_rows("payoffs.csv", &PayoffColumns::default(), &rows).unwrap()
+    }
+
+    fn months(value: f64) -> Duration {
+        Duration {
+            value,
+            unit: TimeUnit::Months,
+        }
+    }
+
+    #[test]
+    fn exponential_tunnels_match_the_closed_form_by_both_routes() {
+        // Constant hazard λ, constant rate c: c·(1 - e^(-(λ+δ)Δ))/(λ+δ) per tunnel, and the
+        // exit integral λ·(1 - e^(-(λ+δ)Δ))/(λ+δ) (calculus of the exponential; memoryless, so
+        // the same in every tunnel).
+        let curve = ParametricCurve::new(&Exponential, vec![0.5], TimeUnit::Years).unwrap();
+        let s = schedule(&[
+            ["drug", "rate", "0", "120", "1 month"],
+            ["death", "at_exit", "", "3000", ""],
+            ["start", "at_entry", "", "1500", ""],
+        ]);
+        let d = Discount::annual(0.035).unwrap();
+        let (lambda, delta, width) = (0.5, 0.035f64.ln_1p(), 0.25);
+        let common = -(-(lambda + delta) * width).exp_m1() / (lambda + delta);
+        for hint in [CurveHint::of_parametric(&curve), CurveHint::none()] {
+            let t = tunnel_payoffs(&curve, &hint, &s, months(3.0), 12, d);
+            assert_eq!(t.columns, ["payoff_drug", "payoff_death", "payoff_start"]);
+            for k in 0..12 {
+                assert!((t.values[0][k] - 1440.0 * common).abs() < 1e-10 * 1440.0 * common);
+                let exit = 3000.0 * lambda * common;
+                assert!((t.values[1][k] - exit).abs() < 1e-10 * exit);
+                assert_eq!(t.values[2][k], if k == 0 { 1500.0 } else { 0.0 });
+            }
+        }
+    }
+
+    #[test]
+    fn far_tail_keeps_its_digits_where_survival_underflows() {
+        // A constant hazard of 3 a month: by tunnel 400 S is e^-1197, below the smallest double,
+        // but the conditional payoff is the same as in tunnel 1 (memoryless; closed form as above).
+        let curve = ParametricCurve::new(&Exponential, vec![3.0], TimeUnit::Months).unwrap();
+        let s = schedule(&[
+            ["c", "rate", "0", "1", "1 month"],
+            ["x", "at_exit", "", "1", ""],
+        ]);
+        let d = Discount::annual(0.5).unwrap();
+        let t = tunnel_payoffs(&curve, &CurveHint::none(), &s, months(1.0), 400, d);
+        let delta = 0.5f64.ln_1p() / 12.0;
+        let stay = -(-(3.0 + delta)).exp_m1() / (3.0 + delta);
+        assert!(curve.survival(399.0) == 0.0);
+        for k in [0, 200, 399] {
+            assert!(
+                (t.values[0][k] - stay).abs() < 1e-10 * stay,
+                "tunnel {}",
+                k + 1
+            );
+            assert!((t.values[1][k] - 3.0 * stay).abs() < 1e-10 * stay);
+        }
+    }
+
+    #[test]
+    fn without_discount_exit_payoff_is_amount_times_p_exit() {
+        // Undiscounted, ∫ f/S(t0) over the cycle is p_exit (definition of the conditional
+        // probability; discretise.rs), for a hazard unbounded at 0 (Weibull shape 0.6) too.
+        let curve = ParametricCurve::new(&Weibull, vec![0.6, 30.0], TimeUnit::Months).unwrap();
+        let s = schedule(&[["x", "at_exit", "", "2", ""]]);
+        let t = tunnel_payoffs(
+            &curve,
+            &CurveHint::none(),
+            &s,
+            months(1.0),
+            30,
+            Discount::NONE,
+        );
+        let table = tunnel_table(&curve, months(1.0), 30);
+        for (k, row) in table.rows.iter().enumerate() {
+            assert!((t.values[0][k] - 2.0 * row.p_exit).abs() < 1e-14);
+        }
+    }
+
+    #[test]
+    fn payoff_columns_travel_with_the_table() {
+        let curve = ParametricCurve::new(&Weibull, vec![1.3, 15.0], TimeUnit::Months).unwrap();
+        let s = schedule(&[["cost", "rate", "0", "500", "1 month"]]);
+        let mut table = tunnel_table(&curve, months(1.0), 5);
+        let t = tunnel_payoffs(
+            &curve,
+            &CurveHint::none(),
+            &s,
+            months(1.0),
+            5,
+            Discount::NONE,
+        );
+        t.append_to(&mut table);
+        let long = crate::export::tunnel::long_table(&table);
+        assert_eq!(long.columns.last().unwrap(), "payoff_cost");
+        assert!(crate::discretise::exit_causes(&table).is_empty());
+    }
+}
