@@ -213,17 +213,13 @@ fn rerun_writes_byte_identical_tables_and_needs_force() {
         .args(["run", "../analysis.toml", "--out", "../b"])
         .assert()
         .success();
-    for name in [
-        "fit.json",
-        "tunnels.csv",
-        "tunnels.json",
-        "truncation.csv",
-        "within_cycle.json",
-        "draws_summary.csv",
-    ] {
-        assert_eq!(
-            std::fs::read(dir.path().join("a").join(name)).unwrap(),
-            std::fs::read(dir.path().join("b").join(name)).unwrap(),
+    // Every file, the report and the plots included.
+    let names = listing(&dir.path().join("a"));
+    assert_eq!(names, listing(&dir.path().join("b")));
+    for name in &names {
+        assert!(
+            std::fs::read(dir.path().join("a").join(name)).unwrap()
+                == std::fs::read(dir.path().join("b").join(name)).unwrap(),
             "{name} differs between runs"
         );
     }

@@ -709,9 +709,10 @@ pub fn compute(
     })
 }
 
-/// Every output file of a finished analysis, by name; `date` goes into the report only, so
-/// that the tables of a re-run are byte-identical.
-pub fn render_files(result: &RunResult, date: &str) -> Result<Vec<(String, Vec<u8>)>> {
+/// Every output file of a finished analysis, by name. `created` (seconds since 1970, from
+/// `SOURCE_DATE_EPOCH`) is the only time any file records (the report's date); without it a
+/// rerun writes the same bytes.
+pub fn render_files(result: &RunResult, created: Option<u64>) -> Result<Vec<(String, Vec<u8>)>> {
     let mut files: Vec<(String, Vec<u8>)> = Vec::new();
     let mut fit_json = serde_json::to_vec_pretty(&result.fits)
         .map_err(|e| Error::Computation(format!("cannot render JSON: {e}")))?;
@@ -774,7 +775,7 @@ pub fn render_files(result: &RunResult, date: &str) -> Result<Vec<(String, Vec<u
             &overlay_plot(outcome, Some(result.analysis.time_unit)),
         )?);
     }
-    let html = crate::report::render(result, &figures, date)?;
+    let html = crate::report::render(result, &figures, created)?;
     files.extend(figures);
     files.push(("report.html".into(), html.into_bytes()));
     files.push((
@@ -846,7 +847,7 @@ pub fn execute(
 ) -> Result<String> {
     let mut result = compute(analysis, data_bytes, lifetable_bytes)?;
     result.rebuild = rebuilt;
-    let files = render_files(&result, &crate::report::utc_now())?;
+    let files = render_files(&result, output::source_date_epoch()?)?;
     let staged = StagedFolder::new(folder)?;
     for (name, bytes) in &files {
         staged.write(name, bytes)?;
