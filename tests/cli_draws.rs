@@ -4,7 +4,7 @@
 //! thread counts; every bad-input case of the draws issue; a clean stop on SIGINT/SIGTERM.
 
 mod shell;
-use shell::{listing, tunnelcast};
+use shell::{listing, read_csv, read_csv_records, read_descriptor, tunnelcast};
 
 use calamine::{Data, Reader, Xlsx};
 use serde::Deserialize;
@@ -83,20 +83,6 @@ struct SummaryRow {
     p_exit_pct97_5: f64,
 }
 
-/// Rows of a CSV file after its `#` header block.
-fn read_csv<T: for<'de> Deserialize<'de>>(path: &Path) -> Vec<T> {
-    let text = std::fs::read_to_string(path).unwrap();
-    let body: String = text
-        .lines()
-        .filter(|l| !l.starts_with('#'))
-        .map(|l| format!("{l}\n"))
-        .collect();
-    csv::Reader::from_reader(body.as_bytes())
-        .deserialize()
-        .map(|r| r.unwrap())
-        .collect()
-}
-
 #[test]
 fn long_csv_equals_the_library_draws_and_is_identical_across_thread_counts() {
     check_long_csv(18, 150, 77);
@@ -168,11 +154,14 @@ fn check_long_csv(count: usize, draws: usize, seed: u64) -> usize {
             assert_eq!(back, &expected);
         }
     }
-    let size = one.len();
-    let text = String::from_utf8(one).unwrap();
-    assert!(text.contains(&format!("# seed: {seed}\n")));
-    assert!(text.contains("# caution: "));
-    size
+    // The provenance is in the descriptor beside the file, not in the file.
+    let descriptor = read_descriptor(&d.join("one.csv"));
+    assert_eq!(descriptor["tunnelcast"]["seed"], seed.to_string());
+    assert!(descriptor["tunnelcast"]["caution"]
+        .as_str()
+        .unwrap()
+        .contains("assumption"));
+    one.len()
 }
 
 #[test]
@@ -216,18 +205,10 @@ fn summary_wide_json_and_xlsx_agree_with_the_long_layout() {
     }
 
     // Wide CSV: column draw_d holds p_exit of draw d.
-    let text = std::fs::read_to_string(d.join("wide.csv")).unwrap();
-    let body: String = text
-        .lines()
-        .filter(|l| !l.starts_with('#'))
-        .map(|l| format!("{l}\n"))
-        .collect();
-    let mut reader = csv::Reader::from_reader(body.as_bytes());
-    let header = reader.headers().unwrap().clone();
+    let (header, records) = read_csv_records(&d.join("wide.csv"));
     assert_eq!(header.len(), 3 + 40);
     assert_eq!(&header[3], "draw_1");
-    for record in reader.records() {
-        let record = record.unwrap();
+    for record in records {
         let tunnel: usize = record[0].parse().unwrap();
         for draw in 1..=40 {
             let v: f64 = record[2 + draw].parse().unwrap();
@@ -405,9 +386,12 @@ fn bootstrap_finds_the_data_beside_the_fit_file_and_reports_failures() {
         "b.csv",
     ]);
     tunnelcast(d).args(&a).assert().success();
-    let text = std::fs::read_to_string(d.join("b.csv")).unwrap();
-    assert!(text.contains("# method: nonparametric bootstrap"));
-    assert!(text.contains("# bootstrap_failed: "));
+    let provenance = &read_descriptor(&d.join("b.csv"))["tunnelcast"];
+    assert!(provenance["method"]
+        .as_str()
+        .unwrap()
+        .starts_with("nonparametric bootstrap"));
+    assert!(provenance["bootstrap_failed"].is_string());
     let rows: Vec<LongRow> = read_csv(&d.join("b.csv"));
     assert_eq!(rows.len() % 6, 0);
     // A data file other than the fitted one is refused.

@@ -7,7 +7,7 @@
 //! environment sets it, else the fixed [`UNDATED`], never the clock: the same document gives
 //! the same bytes (the zip members carry a fixed date of their own).
 
-use super::{Cell, Document, Exporter, Table};
+use super::{unique_keys, Cell, Document, Exporter, Table};
 use crate::error::{Error, Result};
 use rust_xlsxwriter::{DocProperties, ExcelDateTime, Format, Workbook, Worksheet, XlsxError};
 
@@ -121,10 +121,9 @@ fn write_table(sheet: &mut Worksheet, table: &Table, header: &Format) -> Result<
 
 /// The `notes` sheet: every metadata pair, then the caution unless the metadata already holds it.
 fn notes_table(document: &Document) -> Table {
-    let mut rows: Vec<Vec<Cell>> = document
-        .metadata
-        .iter()
-        .map(|(k, v)| vec![Cell::Text(k.clone()), Cell::Text(v.clone())])
+    let mut rows: Vec<Vec<Cell>> = unique_keys(&document.metadata)
+        .into_iter()
+        .map(|(k, v)| vec![Cell::Text(k), Cell::Text(v)])
         .collect();
     if !document.metadata.iter().any(|(_, v)| v == crate::CAUTION) {
         rows.push(vec![
