@@ -6,10 +6,11 @@
 use assert_cmd::Command;
 use std::path::Path;
 
-/// The `tunnelcast` binary, run with `dir` as its working folder.
+/// The `tunnelcast` binary, run with `dir` as its working folder and without
+/// `SOURCE_DATE_EPOCH` (a build environment may set it; a test that wants it sets it again).
 pub fn tunnelcast(dir: &Path) -> Command {
     let mut cmd = Command::cargo_bin("tunnelcast").unwrap();
-    cmd.current_dir(dir);
+    cmd.current_dir(dir).env_remove("SOURCE_DATE_EPOCH");
     cmd
 }
 
