@@ -37,8 +37,10 @@ pub enum Command {
     Rebuild(cmd::rebuild::RebuildArgs),
 }
 
-/// Runs the parsed command.
+/// Runs the parsed command. A malformed `SOURCE_DATE_EPOCH` stops every command before any
+/// work (the reproducible-builds convention), so later readers of it can trust it.
 pub fn run(cli: Cli) -> Result<()> {
+    crate::output::source_date_epoch()?;
     match cli.command {
         Command::Fit(args) => cmd::fit::run(args),
         Command::Demo(args) => cmd::demo::run(args),

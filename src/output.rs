@@ -1,6 +1,8 @@
 //! Writing output files safely: paths are checked before any long computation, and every
 //! file is written to a temporary file beside its target and renamed into place, so a
-//! failure or an interruption never leaves a half-written file.
+//! failure or an interruption never leaves a half-written file. Files that belong together (a
+//! CSV file and its descriptor) are staged first and put in place together ([`commit`]).
+//! Also the one place that says what time an output may record ([`source_date_epoch`]).
 
 use crate::error::{Error, Result};
 use std::io::Write;
@@ -37,10 +39,7 @@ fn parent_dir(path: &Path) -> PathBuf {
 
 /// Writes `bytes` to `path` through a temporary file in the same folder and a rename.
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
-    write_atomic_with(path, |out| {
-        out.write_all(bytes)
-            .map_err(|e| Error::output(path, format!("cannot write: {e}")))
-    })
+    commit(vec![stage(path, bytes)?])
 }
 
 /// Streams a file into place: `fill` writes to a temporary file beside `path`, which is
@@ -48,23 +47,184 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
 /// interruption reported by `fill`) the temporary file is removed and `fill`'s error returned.
 /// For outputs too large to hold in memory.
 pub fn write_atomic_with(path: &Path, fill: impl FnOnce(&mut Staged) -> Result<()>) -> Result<()> {
-    let parent = parent_dir(path);
+    commit(vec![stage_with(path, fill)?])
+}
+
+/// A file written in full (and synced) to a temporary file beside its target, waiting for
+/// [`commit`] to put it in place. Dropped without being committed, it removes its temporary file.
+#[derive(Debug)]
+pub struct Pending {
+    tmp: PathBuf,
+    target: PathBuf,
+    bytes: u64,
+    done: bool,
+}
+
+impl Pending {
+    /// Length of the staged file in bytes.
+    pub fn bytes(&self) -> u64 {
+        self.bytes
+    }
+}
+
+impl Drop for Pending {
+    fn drop(&mut self) {
+        if !self.done {
+            let _ = std::fs::remove_file(&self.tmp);
+        }
+    }
+}
+
+/// Stages `bytes` for `path` (see [`Pending`]).
+pub fn stage(path: &Path, bytes: &[u8]) -> Result<Pending> {
+    stage_with(path, |out| {
+        out.write_all(bytes)
+            .map_err(|e| Error::output(path, format!("cannot write: {e}")))
+    })
+}
+
+/// Stages the bytes `fill` writes for `path` (see [`Pending`]); on any error from `fill` the
+/// temporary file is removed and the error returned.
+pub fn stage_with(path: &Path, fill: impl FnOnce(&mut Staged) -> Result<()>) -> Result<Pending> {
+    let tmp = sibling(path, "tmp");
+    let io_error = |e: std::io::Error| Error::output(path, format!("cannot write: {e}"));
+    // Created first, so that a failure anywhere below removes the temporary file.
+    let mut pending = Pending {
+        tmp: tmp.clone(),
+        target: path.to_path_buf(),
+        bytes: 0,
+        done: false,
+    };
+    let mut out = Staged::create(&tmp, true).map_err(io_error)?;
+    fill(&mut out)?;
+    pending.bytes = out.written;
+    out.finish().map_err(io_error)?;
+    Ok(pending)
+}
+
+/// A hidden name beside `path` for this process: `.NAME.KIND-PID`.
+fn sibling(path: &Path, kind: &str) -> PathBuf {
     let name = path
         .file_name()
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_else(|| "output".into());
-    let tmp = parent.join(format!(".{name}.tmp-{}", std::process::id()));
-    let io_error = |e: std::io::Error| Error::output(path, format!("cannot write: {e}"));
-    let result = (|| -> Result<()> {
-        let mut out = Staged::create(&tmp, true).map_err(io_error)?;
-        fill(&mut out)?;
-        out.finish().map_err(io_error)?;
-        std::fs::rename(&tmp, path).map_err(io_error)
-    })();
-    if result.is_err() {
-        let _ = std::fs::remove_file(&tmp);
+    parent_dir(path).join(format!(".{name}.{kind}-{}", std::process::id()))
+}
+
+/// Puts staged files in place, in the order given (a descriptor before the data file it
+/// describes, so that the data file never appears alone). Each rename replaces its target
+/// in one step; when several files go together and one rename fails, the files already put
+/// in place are taken back (earlier versions restored from hard links made beforehand), so
+/// either all of them land or none.
+pub fn commit(mut files: Vec<Pending>) -> Result<()> {
+    let together = files.len() > 1;
+    // (index, hard link to the file it replaced) of the files in place so far.
+    let mut placed: Vec<(usize, Option<PathBuf>)> = Vec::new();
+    let mut failure = None;
+    for (i, file) in files.iter().enumerate() {
+        let backup = if together && file.target.is_file() {
+            let link = sibling(&file.target, "old");
+            let _ = std::fs::remove_file(&link);
+            // Where the file system offers no hard links, the old file cannot be restored.
+            std::fs::hard_link(&file.target, &link).ok().map(|_| link)
+        } else {
+            None
+        };
+        match std::fs::rename(&file.tmp, &file.target) {
+            Ok(()) => placed.push((i, backup)),
+            Err(e) => {
+                if let Some(link) = backup {
+                    let _ = std::fs::remove_file(link);
+                }
+                failure = Some(Error::output(&file.target, format!("cannot write: {e}")));
+                break;
+            }
+        }
     }
-    result
+    for (i, backup) in placed.iter().rev() {
+        let target = &files[*i].target;
+        match (&failure, backup) {
+            (None, Some(link)) => {
+                let _ = std::fs::remove_file(link);
+            }
+            (None, None) => {}
+            (Some(_), Some(link)) => {
+                let _ = std::fs::rename(link, target);
+            }
+            (Some(_), None) => {
+                let _ = std::fs::remove_file(target);
+            }
+        }
+    }
+    for (i, _) in &placed {
+        files[*i].done = failure.is_none();
+    }
+    match failure {
+        Some(e) => Err(e),
+        None => Ok(()),
+    }
+}
+
+/// Name of the environment variable that sets the time outputs record, the reproducible-builds
+/// convention (reproducible-builds.org, "SOURCE_DATE_EPOCH" specification): seconds since
+/// 1970-01-01 00:00 UTC, as `date +%s` prints them.
+pub const SOURCE_DATE_EPOCH: &str = "SOURCE_DATE_EPOCH";
+
+/// The latest time an XLSX workbook's properties can hold, 9999-12-31 23:59:59 UTC.
+const LATEST_RECORDED_TIME: u64 = 253_402_300_799;
+
+/// The time outputs record (XLSX document properties, the report's date, `datapackage.json`'s
+/// `created`), in seconds since 1970-01-01 00:00 UTC: `SOURCE_DATE_EPOCH` when the environment
+/// sets it, else `None`, and then no file holds a time, so reruns give identical files.
+pub fn source_date_epoch() -> Result<Option<u64>> {
+    match std::env::var_os(SOURCE_DATE_EPOCH) {
+        None => Ok(None),
+        Some(value) => parse_source_date_epoch(&value.to_string_lossy()),
+    }
+}
+
+/// Reads a `SOURCE_DATE_EPOCH` value: empty means unset; otherwise a whole number of seconds
+/// from 0 to the end of the year 9999, or a usage error (the convention asks tools to stop on
+/// a malformed value rather than fall back to the clock).
+pub fn parse_source_date_epoch(text: &str) -> Result<Option<u64>> {
+    if text.is_empty() {
+        return Ok(None);
+    }
+    let shown = crate::format::shown(text);
+    match text.parse::<u64>() {
+        Ok(secs) if text.bytes().all(|b| b.is_ascii_digit()) && secs <= LATEST_RECORDED_TIME => {
+            Ok(Some(secs))
+        }
+        Ok(_) => Err(Error::Usage(format!(
+            "{SOURCE_DATE_EPOCH}={shown}: later than 9999-12-31 23:59:59 UTC, the last time an XLSX file can hold"
+        ))),
+        Err(_) => Err(Error::Usage(format!(
+            "{SOURCE_DATE_EPOCH}={shown}: not a whole number of seconds since 1970-01-01 00:00 UTC (as `date +%s` prints)"
+        ))),
+    }
+}
+
+/// The civil date and time of `secs` seconds after 1970-01-01 00:00 UTC: year, month, day,
+/// hour, minute, second (Hinnant's days-to-civil algorithm, from memory).
+pub fn civil_time(secs: u64) -> (i64, u32, u32, u32, u32, u32) {
+    let days = (secs / 86_400) as i64;
+    let rem = (secs % 86_400) as u32;
+    let z = days + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z - era * 146_097;
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let day = (doy - (153 * mp + 2) / 5 + 1) as u32;
+    let month = (if mp < 10 { mp + 3 } else { mp - 9 }) as u32;
+    let year = yoe + era * 400 + i64::from(month <= 2);
+    (year, month, day, rem / 3600, (rem % 3600) / 60, rem % 60)
+}
+
+/// `secs` as an RFC 3339 time in UTC, e.g. `2000-02-29T00:00:00Z`.
+pub fn rfc3339(secs: u64) -> String {
+    let (y, mo, d, h, mi, s) = civil_time(secs);
+    format!("{y:04}-{mo:02}-{d:02}T{h:02}:{mi:02}:{s:02}Z")
 }
 
 /// Size and alignment of the blocks written past the page cache (a multiple of every common
@@ -89,6 +249,8 @@ pub struct Staged {
     store: Vec<u8>,
     start: usize,
     filled: usize,
+    /// Bytes handed to [`Write::write`] so far.
+    written: u64,
 }
 
 impl Staged {
@@ -108,6 +270,7 @@ impl Staged {
             store,
             start,
             filled: 0,
+            written: 0,
         })
     }
 
@@ -196,6 +359,7 @@ impl Write for Staged {
         let at = self.start + self.filled;
         self.store[at..at + n].copy_from_slice(&bytes[..n]);
         self.filled += n;
+        self.written += n as u64;
         if self.filled == CHUNK {
             self.write_gathered(CHUNK)?;
         }
@@ -429,6 +593,80 @@ mod tests {
         });
         assert!(result.is_err());
         assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 0);
+    }
+
+    #[test]
+    fn files_staged_together_land_together_or_not_at_all() {
+        let dir = tempfile::tempdir().unwrap();
+        let (a, b) = (dir.path().join("a.resource.json"), dir.path().join("a.csv"));
+        commit(vec![
+            stage(&a, b"{}").unwrap(),
+            stage(&b, b"x\r\n").unwrap(),
+        ])
+        .unwrap();
+        assert_eq!(std::fs::read(&a).unwrap(), b"{}");
+        assert_eq!(std::fs::read(&b).unwrap(), b"x\r\n");
+        assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 2);
+        // The second rename fails (its target is a non-empty folder): the first file is taken
+        // back, the earlier version restored, and no temporary file or link is left.
+        let blocked = dir.path().join("blocked");
+        std::fs::create_dir(&blocked).unwrap();
+        std::fs::write(blocked.join("inside"), b"1").unwrap();
+        let err = commit(vec![
+            stage(&a, b"{\"new\": 1}").unwrap(),
+            stage(&blocked, b"y").unwrap(),
+        ]);
+        assert!(err.is_err());
+        assert_eq!(std::fs::read(&a).unwrap(), b"{}");
+        let mut names: Vec<String> = std::fs::read_dir(dir.path())
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .collect();
+        names.sort();
+        assert_eq!(names, ["a.csv", "a.resource.json", "blocked"]);
+        // A new file (no earlier version) is removed again.
+        let c = dir.path().join("c.json");
+        assert!(commit(vec![
+            stage(&c, b"1").unwrap(),
+            stage(&blocked, b"y").unwrap()
+        ])
+        .is_err());
+        assert!(!c.exists());
+        // Staged but never committed: nothing left.
+        drop(stage(&dir.path().join("d.csv"), b"z").unwrap());
+        assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 3);
+    }
+
+    #[test]
+    fn source_date_epoch_is_whole_seconds_or_a_usage_error() {
+        // Reproducible-builds SOURCE_DATE_EPOCH specification: an integer as `date +%s` prints;
+        // a malformed value should stop the tool. Empty is taken as unset (common practice).
+        assert_eq!(parse_source_date_epoch("").unwrap(), None);
+        assert_eq!(
+            parse_source_date_epoch("951782400").unwrap(),
+            Some(951_782_400)
+        );
+        assert_eq!(
+            parse_source_date_epoch("253402300799").unwrap(),
+            Some(253_402_300_799)
+        );
+        for bad in ["-1", "+5", "1.5", "1e9", " 12", "yesterday", "253402300800"] {
+            let err = parse_source_date_epoch(bad).unwrap_err();
+            assert_eq!(err.exit_code(), 2, "{bad}");
+            assert!(err.to_string().starts_with("SOURCE_DATE_EPOCH="), "{err}");
+        }
+    }
+
+    #[test]
+    fn civil_times_follow_the_calendar() {
+        // 0 is 1970-01-01 (Unix epoch); 951_782_400 = 11_016 days = 2000-02-29, a leap day
+        // (10_957 days to 2000-01-01, then 31 + 28); 1_700_000_000 is 2023-11-14 22:13:20 UTC
+        // (common practice: well-known timestamps); 253_402_300_799 the last second of 9999.
+        assert_eq!(rfc3339(0), "1970-01-01T00:00:00Z");
+        assert_eq!(rfc3339(951_782_400), "2000-02-29T00:00:00Z");
+        assert_eq!(rfc3339(1_700_000_000), "2023-11-14T22:13:20Z");
+        assert_eq!(rfc3339(315_532_800), "1980-01-01T00:00:00Z");
+        assert_eq!(rfc3339(253_402_300_799), "9999-12-31T23:59:59Z");
     }
 
     #[test]

@@ -34,35 +34,14 @@ pub fn escape(text: &str) -> String {
     out
 }
 
-/// The current date and time in UTC, `YYYY-MM-DD HH:MM UTC` (civil calendar from Unix days;
-/// Hinnant's days-to-civil algorithm, from memory).
-pub fn utc_now() -> String {
-    let secs = std::time::SystemTime::now()
-        .duration_since(std::time::UNIX_EPOCH)
-        .map(|d| d.as_secs())
-        .unwrap_or(0);
-    format_utc(secs)
+/// Seconds since 1970-01-01 00:00 UTC as `YYYY-MM-DD HH:MM UTC`.
+pub fn format_utc(secs: u64) -> String {
+    let (year, month, day, hour, minute, _) = crate::output::civil_time(secs);
+    format!("{year:04}-{month:02}-{day:02} {hour:02}:{minute:02} UTC")
 }
 
-/// Formats seconds since 1970-01-01 00:00 UTC.
-pub fn format_utc(secs: u64) -> String {
-    let days = (secs / 86_400) as i64;
-    let rem = secs % 86_400;
-    let z = days + 719_468;
-    let era = z.div_euclid(146_097);
-    let doe = z - era * 146_097;
-    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
-    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
-    let mp = (5 * doy + 2) / 153;
-    let day = doy - (153 * mp + 2) / 5 + 1;
-    let month = if mp < 10 { mp + 3 } else { mp - 9 };
-    let year = yoe + era * 400 + i64::from(month <= 2);
-    format!(
-        "{year:04}-{month:02}-{day:02} {:02}:{:02} UTC",
-        rem / 3600,
-        (rem % 3600) / 60
-    )
-}
+/// What the report says in place of a date when `SOURCE_DATE_EPOCH` is not set.
+pub const NO_DATE: &str = "not recorded (set SOURCE_DATE_EPOCH to record one)";
 
 /// Text of a cell as shown in the report.
 fn cell_text(cell: &Cell) -> String {
@@ -157,8 +136,10 @@ code{font-family:'DejaVu Sans Mono',monospace}
 @media print{body{max-width:none;padding:0}h2{break-after:avoid}figure,table{break-inside:avoid}}
 ";
 
-/// Renders the report.
-pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<String> {
+/// Renders the report; `created` (seconds since 1970, from `SOURCE_DATE_EPOCH`) is the only
+/// date it shows, so that without it a rerun writes the same bytes.
+pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> Result<String> {
+    let date = created.map(format_utc);
     let a = &result.analysis;
     let unit = a.time_unit;
     let fits = &result.fits;
@@ -172,11 +153,13 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
     h.push_str(&format!("<style>{STYLE}</style>\n</head>\n<body>\n"));
     h.push_str(&format!("<h1>{}</h1>\n", escape(&title)));
     h.push_str(&format!(
-        "<p class=\"meta\">tunnelcast {} · analysis file <code>{}</code> · data <code>{}</code> · {}</p>\n",
+        "<p class=\"meta\">tunnelcast {} · analysis file <code>{}</code> · data <code>{}</code>{}</p>\n",
         crate::VERSION,
         escape(&file_name(&a.file)),
         escape(&a.data_name),
-        escape(date)
+        date.as_deref()
+            .map(|d| format!(" · {}", escape(d)))
+            .unwrap_or_default()
     ));
     h.push_str(&format!(
         "<p class=\"caution\">{}</p>\n",
@@ -508,7 +491,7 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
                 None => "none (no random draws)".to_string(),
             },
         ),
-        ("date", date.to_string()),
+        ("date", date.clone().unwrap_or_else(|| NO_DATE.to_string())),
     ]) {
         h.push_str(&format!(
             "<dt>{}</dt><dd><code>{}</code></dd>\n",

@@ -6,7 +6,7 @@
 
 mod closed_form;
 mod shell;
-use shell::{listing, read_csv_rows, tunnelcast};
+use shell::{listing, read_csv, read_csv_records, read_descriptor, tunnelcast};
 
 use calamine::{Data, Reader, Xlsx};
 use closed_form::{close, long_table, Adjust, Weibull};
@@ -148,7 +148,7 @@ fn check_long_csv(count: usize, draws: usize, seed: u64) -> usize {
         .collect();
     assert_eq!(params.len(), draws);
 
-    let rows: Vec<LongRow> = read_csv_rows(&d.join("one.csv"));
+    let rows: Vec<LongRow> = read_csv(&d.join("one.csv"));
     assert_eq!(rows.len(), draws * count);
     for (row, json) in rows.iter().zip(table("draws")) {
         let csv = [
@@ -228,6 +228,13 @@ fn check_long_csv(count: usize, draws: usize, seed: u64) -> usize {
             assert!((s - sigma[i][j]).abs() < 4.0 * se, "cov {i}{j}: {s}");
         }
     }
+    // The provenance is in the descriptor beside the file, not in the file.
+    let descriptor = read_descriptor(&d.join("one.csv"));
+    assert_eq!(descriptor["tunnelcast"]["seed"], seed.to_string());
+    assert!(descriptor["tunnelcast"]["caution"]
+        .as_str()
+        .unwrap()
+        .contains("assumption"));
     one.len()
 }
 
@@ -246,10 +253,10 @@ fn summary_wide_json_and_xlsx_agree_with_the_long_layout() {
     run(&["--out", "wide.csv", "--layout", "wide"]);
     run(&["--out", "long.json"]);
     run(&["--out", "wide.xlsx", "--layout", "wide"]);
-    let long: Vec<LongRow> = read_csv_rows(&d.join("long.csv"));
+    let long: Vec<LongRow> = read_csv(&d.join("long.csv"));
 
     // Summary: mean and percentiles (Hyndman and Fan, 1996, definition 7) recomputed here.
-    let summary: Vec<SummaryRow> = read_csv_rows(&d.join("summary.csv"));
+    let summary: Vec<SummaryRow> = read_csv(&d.join("summary.csv"));
     assert_eq!(summary.len(), 10);
     for s in &summary {
         let mut p: Vec<f64> = long
@@ -272,13 +279,10 @@ fn summary_wide_json_and_xlsx_agree_with_the_long_layout() {
     }
 
     // Wide CSV: column draw_d holds p_exit of draw d.
-    let text = std::fs::read_to_string(d.join("wide.csv")).unwrap();
-    let mut reader = csv::Reader::from_reader(shell::csv_body(&text).as_bytes());
-    let header = reader.headers().unwrap().clone();
+    let (header, records) = read_csv_records(&d.join("wide.csv"));
     assert_eq!(header.len(), 3 + 40);
     assert_eq!(&header[3], "draw_1");
-    for record in reader.records() {
-        let record = record.unwrap();
+    for record in records {
         let tunnel: usize = record[0].parse().unwrap();
         for draw in 1..=40 {
             let v: f64 = record[2 + draw].parse().unwrap();
@@ -456,10 +460,13 @@ fn bootstrap_finds_the_data_beside_the_fit_file_and_reports_failures() {
         "b.csv",
     ]);
     tunnelcast(d).args(&a).assert().success();
-    let text = std::fs::read_to_string(d.join("b.csv")).unwrap();
-    assert!(text.contains("# method: nonparametric bootstrap"));
-    assert!(text.contains("# bootstrap_failed: "));
-    let rows: Vec<LongRow> = read_csv_rows(&d.join("b.csv"));
+    let provenance = &read_descriptor(&d.join("b.csv"))["tunnelcast"];
+    assert!(provenance["method"]
+        .as_str()
+        .unwrap()
+        .starts_with("nonparametric bootstrap"));
+    assert!(provenance["bootstrap_failed"].is_string());
+    let rows: Vec<LongRow> = read_csv(&d.join("b.csv"));
     assert_eq!(rows.len() % 6, 0);
     // A data file other than the fitted one is refused.
     std::fs::write(

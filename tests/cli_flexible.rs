@@ -64,13 +64,9 @@ fn piecewise_cuts_reach_the_fit_file_and_the_tunnel_table() {
         .assert()
         .success();
     drop(out);
-    let table = std::fs::read_to_string(dir.path().join("t.csv")).unwrap();
-    let mut rows = csv::ReaderBuilder::new()
-        .comment(Some(b'#'))
-        .from_reader(table.as_bytes());
-    let headers = rows.headers().unwrap().clone();
+    let (headers, records) = shell::read_csv_records(&dir.path().join("t.csv"));
     let column = headers.iter().position(|h| h == "p_exit").unwrap();
-    let first = rows.records().next().unwrap().unwrap();
+    let first = &records[0];
     let p_exit: f64 = first[column].parse().unwrap();
     assert!((p_exit - (1.0 - (-rate).exp())).abs() < 1e-12, "{p_exit}");
 }

@@ -3,7 +3,7 @@
 //! exit status 2 and nothing written.
 
 mod shell;
-use shell::listing;
+use shell::{listing, read_csv, read_descriptor};
 
 use assert_cmd::Command;
 use serde::Deserialize;
@@ -45,11 +45,17 @@ fn the_bundled_figure_rebuilds_into_data_that_fit_accepts() {
         .arg(&out)
         .assert()
         .success();
-    let rows: Vec<Row> = csv::Reader::from_path(&out)
-        .unwrap()
-        .deserialize()
-        .collect::<Result<_, _>>()
-        .unwrap();
+    let rows: Vec<Row> = read_csv(&out);
+    // The descriptor records the inputs and their SHA-256 (FIPS 180-4, by the sha2 crate).
+    let provenance = &read_descriptor(&out)["tunnelcast"];
+    use sha2::Digest;
+    let digitised = std::fs::read(repo("data/demo_digitised.csv")).unwrap();
+    let sha: String = sha2::Sha256::digest(&digitised)
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect();
+    assert_eq!(provenance["curve_sha256"], sha.as_str());
+    assert_eq!(provenance["events"], "veltranib=137,standard=155");
     // Patients and events of the invented trial, as printed by scripts/make_digitised.py.
     let count = |arm: &str, events: bool| {
         rows.iter()
@@ -231,11 +237,7 @@ fn an_existing_output_is_kept_without_force() {
         "keep"
     );
     run(true).success();
-    let rows: Vec<(f64, u8)> = csv::Reader::from_path(dir.path().join("ipd.csv"))
-        .unwrap()
-        .deserialize()
-        .collect::<Result<_, _>>()
-        .unwrap();
+    let rows: Vec<(f64, u8)> = read_csv(&dir.path().join("ipd.csv"));
     assert_eq!(rows.len(), 100);
 }
 

@@ -3,7 +3,7 @@
 
 mod closed_form;
 mod shell;
-use shell::{listing, read_csv_rows, tunnelcast, TableFile};
+use shell::{listing, read_csv, read_descriptor, tunnelcast, TableFile};
 
 use closed_form::{close, long_table, Adjust, Weibull};
 use serde::Deserialize;
@@ -89,23 +89,9 @@ struct LongRow {
     p_next: f64,
 }
 
-/// Splits a tunnelcast CSV into its `# key: value` header and its table text.
-fn split_csv(text: &str) -> (BTreeMap<String, String>, String) {
-    let mut meta = BTreeMap::new();
-    let mut body = String::new();
-    for line in text.lines() {
-        match line.strip_prefix("# ") {
-            Some(m) => {
-                let (k, v) = m.split_once(": ").unwrap();
-                meta.insert(k.to_string(), v.to_string());
-            }
-            None => {
-                body.push_str(line);
-                body.push('\n');
-            }
-        }
-    }
-    (meta, body)
+/// The provenance recorded in the descriptor of a CSV file (checked on the way).
+fn provenance(csv: &Path) -> BTreeMap<String, String> {
+    serde_json::from_value(read_descriptor(csv)["tunnelcast"].clone()).unwrap()
 }
 
 #[test]
@@ -126,7 +112,11 @@ fn long_csv_reads_back_equal_to_the_closed_form() {
     assert_eq!(doc.metadata["time_unit"], "weeks");
     assert_eq!(doc.metadata["family"], "weibull");
     assert!(doc.metadata["caution"].contains("assumption"));
-    let rows: Vec<LongRow> = read_csv_rows(&dir.path().join("t.csv"));
+    // The CSV's descriptor carries the same provenance as the JSON's metadata.
+    let meta = provenance(&dir.path().join("t.csv"));
+    assert_eq!(meta["time_unit"], "weeks");
+    assert_eq!(meta["family"], "weibull");
+    let rows: Vec<LongRow> = read_csv(&dir.path().join("t.csv"));
     // 2 years = 730.5 days = 26.09 four-week cycles: 27 tunnels.
     assert_eq!(rows.len(), 27);
     // S(t) = exp(-(t/30)^1.2), t in months; a four-week cycle is 28/30.4375 months (a month is
@@ -217,13 +207,15 @@ fn from_a_fit_file_records_its_hash() {
         .args(["--cycle", "1 month", "--count", "12", "--out", "t.csv"])
         .assert()
         .success();
-    let text = std::fs::read_to_string(dir.path().join("t.csv")).unwrap();
-    let (meta, _) = split_csv(&text);
+    let meta = provenance(&dir.path().join("t.csv"));
+    // Reference: SHA-256 (FIPS 180-4) by the sha2 crate, on the fit file's bytes.
+    use sha2::Digest;
     let bytes = std::fs::read(dir.path().join("fit.json")).unwrap();
-    assert_eq!(
-        meta["fit_file_sha256"],
-        tunnelcast::input::sha256_hex(&bytes)
-    );
+    let expected: String = sha2::Sha256::digest(&bytes)
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect();
+    assert_eq!(meta["fit_file_sha256"], expected);
     assert_eq!(meta["source"], "fit file");
     assert_eq!(meta["parameter_time_unit"], "months");
 }
@@ -454,4 +446,11 @@ fn output_problems_are_refused_before_computing() {
     a.extend(["--cycle", "1 month", "--count", "5", "--out", "t.csv"]);
     refuses(d, &a, "already exists");
     assert_eq!(std::fs::read_to_string(d.join("t.csv")).unwrap(), "mine");
+    // An existing descriptor is not replaced without --force either, even without its CSV.
+    std::fs::remove_file(d.join("t.csv")).unwrap();
+    std::fs::write(d.join("t.resource.json"), "{}").unwrap();
+    refuses(d, &a, "t.resource.json: already exists");
+    a.push("--force");
+    tunnelcast(d).args(&a).assert().success();
+    assert_eq!(read_csv::<LongRow>(&d.join("t.csv")).len(), 5);
 }

@@ -19,7 +19,7 @@ use scenario::{
     adjust_args, adjust_toml, read_xlsx, write_fit, write_lifetable, JsonTables, ADJUSTMENTS,
     COVARIANCE, CURVE, FROM_FIT, PUBLISHED,
 };
-use shell::{read_csv, tunnelcast};
+use shell::{read_csv_table, tunnelcast};
 use std::path::Path;
 
 /// Tunnel states of the tables.
@@ -84,7 +84,7 @@ fn check_tunnels(d: &Path, adjust: Adjust, expected: &[Row]) -> Vec<Vec<f64>> {
         tunnels(d, &PUBLISHED, adjust, &["--out", out]);
     }
     tunnels(d, &FROM_FIT, adjust, &["--out", "f.json"]);
-    let csv = read_csv(&d.join("t.csv"));
+    let csv = read_csv_table(&d.join("t.csv"));
     let rows = csv.numbers();
     check_long("tunnels CSV", &csv.columns, &rows, expected, adjust);
     let json = JsonTables::read(&d.join("t.json"));
@@ -123,7 +123,7 @@ fn check_tunnels(d: &Path, adjust: Adjust, expected: &[Row]) -> Vec<Vec<f64>> {
         &["--layout", "matrix", "--out", "m.csv"],
     );
     let m_json = JsonTables::read(&d.join("m.json"));
-    let m_csv = read_csv(&d.join("m.csv"));
+    let m_csv = read_csv_table(&d.join("m.csv"));
     let mut states: Vec<String> = (1..=COUNT).map(|k| format!("tunnel_{k}")).collect();
     states.push("exit".into());
     let mut header = vec!["from".to_string()];
@@ -287,7 +287,7 @@ fn check_draws(d: &Path, adjust: Adjust, tunnel_rows: &[Vec<f64>]) -> (f64, f64)
         })
         .collect();
     assert_eq!(params.len(), DRAWS);
-    let summary = read_csv(&d.join("s.csv"));
+    let summary = read_csv_table(&d.join("s.csv"));
     let p_exit = long_columns(adjust)
         .iter()
         .position(|c| *c == "p_exit")
@@ -371,7 +371,7 @@ fn check_run(d: &Path, adjust: Adjust) {
         &expected,
         adjust,
     );
-    let csv = read_csv(&out.join("tunnels.csv"));
+    let csv = read_csv_table(&out.join("tunnels.csv"));
     assert_eq!(csv.numbers(), rows, "run CSV and JSON {adjust:?}");
     let truncation = JsonTables::read(&out.join("truncation.json"));
     let columns = truncation.columns("truncation");
@@ -522,9 +522,9 @@ fn every_adjustment_converts_units_alike_on_every_path() {
             .args(&draws_args)
             .assert()
             .success();
-        let table = read_csv(&d.join("u.csv"));
+        let table = read_csv_table(&d.join("u.csv"));
         assert_eq!(table.columns, long_columns(adjust), "{name}");
-        let summary = read_csv(&d.join("us.csv"));
+        let summary = read_csv_table(&d.join("us.csv"));
         for (k, (row, e)) in table.numbers().iter().zip(&expected).enumerate() {
             // Times in days: tunnel k covers [28(k - 1), 28k).
             assert_eq!([row[1], row[2]], [28.0 * k as f64, 28.0 * (k + 1) as f64]);
@@ -567,7 +567,7 @@ fn mpmath_reference_tables_agree_with_the_closed_forms_and_the_tunnel_tables() {
         assert_eq!(rows.len(), COUNT, "{name}");
         let expected = long_table(CURVE, adjust, 1.0, COUNT);
         tunnels(d, &PUBLISHED, adjust, &["--out", "t.csv", "--force"]);
-        let table = read_csv(&d.join("t.csv"));
+        let table = read_csv_table(&d.join("t.csv"));
         for (k, (row, e)) in rows.iter().zip(&expected).enumerate() {
             let mut checks = vec![("surv_end", e.surv_end), ("p_exit", e.p_exit)];
             checks.extend(e.extra.iter().copied());

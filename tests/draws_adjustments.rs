@@ -13,7 +13,7 @@ mod shell;
 
 use closed_form::{close, long_columns, long_table, Adjust, Weibull};
 use scenario::{adjust_args, read_xlsx, write_fit, write_lifetable, JsonTables, FROM_FIT};
-use shell::{read_csv, tunnelcast};
+use shell::{read_csv_table, tunnelcast};
 use std::path::Path;
 
 /// Tunnels per draw, draws and seed of these tests.
@@ -169,18 +169,18 @@ fn long_json_and_xlsx_draws_follow_each_adjustment() {
 fn long_csv_draws_follow_each_adjustment_and_fill_their_header() {
     // With background mortality the header named p_exit_disease and p_exit_background (add)
     // or floor_share (floor) but the rows stopped at p_next: a strict reader refuses such a
-    // file, and so does `read_csv`.
+    // file, and so does `read_csv_table`.
     for_each_adjustment(|d, adjust| {
         let params = parameters(d, adjust);
         let n = DRAWS.to_string();
         draws(d, adjust, &["--draws", &n, "--out", "long.csv"]);
-        let text = std::fs::read_to_string(d.join("long.csv")).unwrap();
-        let mut reader = csv::Reader::from_reader(shell::csv_body(&text).as_bytes());
+        let text = std::fs::read(d.join("long.csv")).unwrap();
+        let mut reader = csv::Reader::from_reader(text.as_slice());
         let width = reader.headers().unwrap().len();
         if let Some(Err(e)) = reader.records().find(|r| r.is_err()) {
             return Err(format!("ragged CSV under a header of {width} fields: {e}"));
         }
-        let csv = read_csv(&d.join("long.csv"));
+        let csv = read_csv_table(&d.join("long.csv"));
         check_long(&csv.columns, &csv.numbers(), &params, adjust)
     });
 }
@@ -201,7 +201,7 @@ fn wide_draws_follow_each_adjustment_in_csv_and_xlsx() {
             &["--draws", &n, "--layout", "wide", "--out", "w.xlsx"],
         );
         // Column draw_d holds p_exit of draw d, in CSV and in XLSX.
-        let wide = read_csv(&d.join("w.csv"));
+        let wide = read_csv_table(&d.join("w.csv"));
         assert_eq!(wide.columns.len(), 3 + DRAWS);
         let (xlsx_columns, xlsx_rows) = read_xlsx(&d.join("w.xlsx"), "draws_wide");
         assert_eq!(xlsx_columns, wide.columns);
@@ -231,7 +231,7 @@ fn summary_follows_each_adjustment() {
         draws(d, adjust, &["--draws", &n, "--summary-out", "s.csv"]);
         // The point estimate is the closed form of the scenario's curve, the mean the mean over
         // the draws of the closed form at each draw's parameters.
-        let summary = read_csv(&d.join("s.csv"));
+        let summary = read_csv_table(&d.join("s.csv"));
         assert_eq!(summary.rows.len(), COUNT);
         for k in 0..COUNT {
             let (a, b) = (k as f64, k as f64 + 1.0);
@@ -273,7 +273,7 @@ fn bootstrap_refits_get_the_adjustments_too() {
         let params = drawn(&json);
         assert!(!params.is_empty());
         check_long(&json.columns("draws"), &json.rows("draws"), &params, adjust)?;
-        let csv = read_csv(&d.join("b.csv"));
+        let csv = read_csv_table(&d.join("b.csv"));
         check_long(&csv.columns, &csv.numbers(), &params, adjust)
     });
 }

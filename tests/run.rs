@@ -3,7 +3,7 @@
 
 mod closed_form;
 mod shell;
-use shell::{listing, read_table, tunnelcast};
+use shell::{listing, read_package, read_table, tunnelcast};
 
 use std::path::Path;
 
@@ -69,12 +69,35 @@ fn run_writes_every_output_and_the_report_matches_the_json() {
         "diagnostics-standard-care.png",
         "tunnels.svg",
         "horizon.png",
+        "datapackage.json",
+        "tunnels.resource.json",
+        "truncation.resource.json",
+        "within_cycle.resource.json",
+        "draws_summary.resource.json",
     ] {
         assert!(
             names.contains(&expected.to_string()),
             "{expected} missing: {names:?}"
         );
     }
+    // Every CSV file is plain and described, alone and in the folder's package, which
+    // carries the data file's SHA-256 (FIPS 180-4, computed here by the sha2 crate).
+    let package = read_package(&out);
+    let csv_files: Vec<&String> = names.iter().filter(|n| n.ends_with(".csv")).collect();
+    assert_eq!(
+        package["resources"].as_array().unwrap().len(),
+        csv_files.len()
+    );
+    use sha2::Digest;
+    let sha: String = sha2::Sha256::digest(DATA.as_bytes())
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect();
+    assert_eq!(package["tunnelcast"]["data_sha256"], sha.as_str());
+    assert!(
+        package.get("created").is_none(),
+        "a date without SOURCE_DATE_EPOCH"
+    );
     // No temporary folder left beside the output.
     assert_eq!(
         listing(dir.path()),
@@ -214,17 +237,13 @@ fn rerun_writes_byte_identical_tables_and_needs_force() {
         .args(["run", "../analysis.toml", "--out", "../b"])
         .assert()
         .success();
-    for name in [
-        "fit.json",
-        "tunnels.csv",
-        "tunnels.json",
-        "truncation.csv",
-        "within_cycle.json",
-        "draws_summary.csv",
-    ] {
-        assert_eq!(
-            std::fs::read(dir.path().join("a").join(name)).unwrap(),
-            std::fs::read(dir.path().join("b").join(name)).unwrap(),
+    // Every file, the report and the plots included.
+    let names = listing(&dir.path().join("a"));
+    assert_eq!(names, listing(&dir.path().join("b")));
+    for name in &names {
+        assert!(
+            std::fs::read(dir.path().join("a").join(name)).unwrap()
+                == std::fs::read(dir.path().join("b").join(name)).unwrap(),
             "{name} differs between runs"
         );
     }

@@ -5,7 +5,7 @@
 //! refused with one line naming the key.
 
 mod shell;
-use shell::{listing, read_table, tunnelcast};
+use shell::{listing, read_csv, read_package, read_table, tunnelcast};
 
 use serde::Deserialize;
 use std::path::Path;
@@ -30,12 +30,9 @@ struct Row {
     arm: String,
 }
 
+/// Rebuilt records, read strictly, their descriptor checked.
 fn rows(path: &Path) -> Vec<Row> {
-    csv::Reader::from_path(path)
-        .unwrap()
-        .deserialize()
-        .collect::<Result<_, _>>()
-        .unwrap()
+    read_csv(path)
 }
 
 #[test]
@@ -90,6 +87,25 @@ fn run_from_a_digitised_curve_rebuilds_as_the_rebuild_command_does() {
     // Patients and events of the invented trial, as printed by scripts/make_digitised.py.
     let count = |arm: &str| from_run.iter().filter(|r| r.arm == arm).count();
     assert_eq!((count("veltranib"), count("standard")), (180, 175));
+    // The folder's package lists rebuilt.csv with the digitised file's SHA-256 (FIPS 180-4,
+    // by the sha2 crate here) and its time unit.
+    let package = read_package(&out);
+    let rebuilt = package["resources"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|r| r["path"] == "rebuilt.csv")
+        .expect("rebuilt.csv in datapackage.json");
+    use sha2::Digest;
+    let sha: String = sha2::Sha256::digest(CURVE.as_bytes())
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect();
+    assert_eq!(rebuilt["tunnelcast"]["curve_sha256"], sha.as_str());
+    assert_eq!(
+        rebuilt["schema"]["fields"][0]["tunnelcast"]["unit"],
+        "months"
+    );
 
     // The fit saw the rebuilt data: its counts and hash are those of rebuilt.csv.
     let fit: serde_json::Value =

@@ -12,7 +12,7 @@ use crate::discretise::{count_until, tunnel_table, TunnelTable};
 use crate::draws::{self, Bootstrap, CurveBuilder, Sampler, SummaryBuilder, SummaryRow};
 use crate::error::{Error, Result};
 use crate::export::tunnel::{draw_columns, draw_rows, Layout};
-use crate::export::{exporter_for, number_text, xlsx, Cell, Document, Exporter, Table};
+use crate::export::{number_text, xlsx, Cell, Document, Table, Target};
 use crate::families::Family;
 use crate::fit::FitFile;
 use crate::format::sig;
@@ -140,21 +140,6 @@ fn parse_draws(text: &str) -> Result<usize> {
             text.trim()
         ))),
     }
-}
-
-/// An output file with its format, checked before any computation.
-struct Target {
-    path: PathBuf,
-    exporter: Box<dyn Exporter>,
-}
-
-fn target(path: &Path, format: Option<&str>, force: bool) -> Result<Target> {
-    let exporter = exporter_for(path, format)?;
-    output::check_writable(path, force)?;
-    Ok(Target {
-        path: path.to_path_buf(),
-        exporter,
-    })
 }
 
 /// The wide layout from `p_exit` per tunnel (in draw order).
@@ -450,11 +435,11 @@ pub fn run(args: DrawsArgs) -> Result<()> {
         return Err(Error::Usage("--data is used only with --bootstrap".into()));
     }
     let out = match &args.out {
-        Some(p) => Some(target(p, args.format.as_deref(), args.force)?),
+        Some(p) => Some(Target::new(p, args.format.as_deref(), args.force)?),
         None => None,
     };
     let summary_out = match &args.summary_out {
-        Some(p) => Some(target(p, None, args.force)?),
+        Some(p) => Some(Target::new(p, None, args.force)?),
         None => None,
     };
     if let (Some(a), Some(b)) = (&out, &summary_out) {
@@ -462,6 +447,12 @@ pub fn run(args: DrawsArgs) -> Result<()> {
             return Err(Error::Usage(
                 "--out and --summary-out name the same file".into(),
             ));
+        }
+        if let Some(shared) = a.paths().iter().find(|p| b.paths().contains(p)) {
+            return Err(Error::Usage(format!(
+                "--out and --summary-out would both write {} (a file or its descriptor)",
+                shared.display()
+            )));
         }
     }
     for t in out.iter() {
@@ -579,7 +570,7 @@ pub fn run(args: DrawsArgs) -> Result<()> {
                 if let Some(e) = run.interrupted() {
                     return Err(e);
                 }
-                output::write_atomic(&t.path, &bytes)?;
+                t.write_rendered(&document, &bytes)?;
             }
             rows
         }
@@ -592,11 +583,17 @@ pub fn run(args: DrawsArgs) -> Result<()> {
             metadata: summary_metadata,
             tables: vec![summary_table(&rows)],
         };
-        output::write_atomic(&t.path, &t.exporter.render(&document)?)?;
+        t.write(&document)?;
     }
     let mut text = render_summary(&point, &rows, params.len());
     for t in out.iter().chain(summary_out.iter()) {
         text.push_str(&format!("wrote {}\n", t.path.display()));
+        if let Some(descriptor) = t.exporter.descriptor_path(&t.path) {
+            text.push_str(&format!(
+                "wrote {} (its columns, units and provenance)\n",
+                descriptor.display()
+            ));
+        }
     }
     output::print(&text);
     Ok(())
@@ -615,10 +612,14 @@ const GROUPS_IN_FLIGHT: usize = 24;
 /// the file system takes no direct writes (see [`output::Staged::settle`]).
 const SETTLE_BYTES: usize = 64 << 20;
 
-/// Writes the long layout group by group: the header block and column names through
-/// [`Exporter::render`], then groups of draws formatted by worker threads
-/// ([`Exporter::append_draw_rows`]) and written in draw order by the calling thread, so the
-/// disk writes overlap the next groups' tables.
+/// Writes the long layout group by group: the header through [`Exporter::render`], then
+/// groups of draws formatted by worker threads ([`Exporter::append_draw_rows`]) and written in
+/// draw order by the calling thread, so the disk writes overlap the next groups' tables. The
+/// descriptor (for CSV) is made from the same header document once the stream is complete,
+/// and both files are put in place together.
+///
+/// [`Exporter::render`]: crate::export::Exporter::render
+/// [`Exporter::append_draw_rows`]: crate::export::Exporter::append_draw_rows
 #[allow(clippy::too_many_arguments)]
 fn write_streaming(
     target: &Target,
@@ -630,17 +631,18 @@ fn write_streaming(
     mut summary: SummaryBuilder,
     run: &LongRun,
 ) -> Result<Vec<SummaryRow>> {
-    let head = target.exporter.render(&Document {
+    let head_document = Document {
         metadata: metadata.to_vec(),
         tables: vec![Table {
             name: "draws".into(),
             columns: draw_columns(point),
             rows: Vec::new(),
         }],
-    })?;
+    };
+    let head = target.exporter.render(&head_document)?;
     let count = point.rows.len();
     let io = |e: std::io::Error| Error::output(&target.path, format!("cannot write: {e}"));
-    output::write_atomic_with(&target.path, |file| {
+    target.write_streamed(&head_document, |file| {
         file.write_all(&head).map_err(io)?;
         // Written buffers come back for reuse: fresh megabyte buffers for every group would be
         // returned to the system and faulted in again, which costs more than formatting.

@@ -3,6 +3,7 @@
 //! rebuild reproduces the figure.
 
 use crate::error::{Error, Result};
+use crate::export::{Document, Table, Target};
 use crate::format::{fixed, sig, table_aligned};
 use crate::km::KaplanMeier;
 use crate::output;
@@ -294,9 +295,12 @@ fn render_arm(curve: &DigitisedCurve, rebuilt: &Rebuilt, quality: &Quality) -> S
     out
 }
 
-/// Renders the rebuilt records as CSV (`time,event` and the arm column).
+/// Renders the rebuilt records as CSV (`time,event` and the arm column), laid out as every
+/// CSV file of the tool (RFC 4180, CRLF line ends).
 fn render_csv(arm_col: Option<&str>, arms: &[RebuiltArm]) -> Result<Vec<u8>> {
-    let mut writer = csv::Writer::from_writer(Vec::new());
+    let mut writer = csv::WriterBuilder::new()
+        .terminator(csv::Terminator::CRLF)
+        .from_writer(Vec::new());
     let fail = |e: csv::Error| Error::Computation(format!("cannot format the output: {e}"));
     let mut header = vec!["time", "event"];
     if let Some(name) = arm_col {
@@ -318,6 +322,66 @@ fn render_csv(arm_col: Option<&str>, arms: &[RebuiltArm]) -> Result<Vec<u8>> {
     writer
         .into_inner()
         .map_err(|e| Error::Computation(format!("cannot format the output: {e}")))
+}
+
+/// The document describing rebuilt records written by [`render_csv`] (for their descriptor):
+/// `metadata` and the file's columns, `time`, `event` and the arm column. No rows: the file's
+/// bytes come from [`RebuildOutcome::csv`].
+pub fn rebuilt_document(arm_col: Option<&str>, metadata: Vec<(String, String)>) -> Document {
+    let mut columns = vec!["time".to_string(), "event".to_string()];
+    columns.extend(arm_col.map(str::to_string));
+    Document {
+        metadata,
+        tables: vec![Table {
+            name: "rebuilt".into(),
+            columns,
+            rows: Vec::new(),
+        }],
+    }
+}
+
+/// What the descriptor of `rebuild --out` records: the tool, the inputs and their SHA-256,
+/// the numbers given, the method, the time unit (the figure's) and the cautions.
+fn command_metadata(
+    args: &RebuildArgs,
+    curve_name: &str,
+    risk_name: Option<&str>,
+    outcome: &RebuildOutcome,
+) -> Vec<(String, String)> {
+    let mut metadata = vec![
+        ("tool_version".to_string(), crate::VERSION.to_string()),
+        ("curve_file".into(), curve_name.to_string()),
+        ("curve_sha256".into(), outcome.curve_sha256.clone()),
+    ];
+    if let (Some(name), Some(sha)) = (risk_name, &outcome.at_risk_sha256) {
+        metadata.push(("at_risk_file".into(), name.to_string()));
+        metadata.push(("at_risk_sha256".into(), sha.clone()));
+    }
+    if !args.patients.is_empty() {
+        metadata.push(("patients".into(), args.patients.join(",")));
+    }
+    if !args.events.is_empty() {
+        metadata.push(("events".into(), args.events.join(",")));
+    }
+    if let Some(arm) = &args.arm_col {
+        metadata.push(("arm_column".into(), arm.clone()));
+    }
+    metadata.extend([
+        (
+            "method".into(),
+            "Guyot, Ades, Ouwens and Welton (2012); choices in docs/rebuild.md".into(),
+        ),
+        (
+            "time_unit".into(),
+            "the digitised figure's (not recorded in the inputs; give it to tunnelcast fit with --time-unit)".into(),
+        ),
+        (
+            "rebuild_caution".into(),
+            crate::cmd::run::REBUILD_CAUTION.into(),
+        ),
+        ("caution".into(), crate::CAUTION.into()),
+    ]);
+    metadata
 }
 
 /// How the inputs of a rebuild are named in messages: the command's options, or the keys of
@@ -546,11 +610,12 @@ pub fn overlay_plot(outcome: &RebuildOutcome, unit: Option<TimeUnit>) -> Rebuild
 
 /// Runs `rebuild`.
 pub fn run(args: RebuildArgs) -> Result<()> {
-    output::check_writable(&args.out, args.force)?;
+    // Whatever its extension, the output is CSV, described beside it.
+    let target = Target::new(&args.out, Some("csv"), args.force)?;
     if let Some(plot) = &args.plot {
         plot::check_plot_path(plot, "--plot")?;
         output::check_writable(plot, args.force)?;
-        if plot == &args.out {
+        if target.paths().contains(plot) {
             return Err(Error::Usage("--plot and --out name the same file".into()));
         }
     }
@@ -572,12 +637,25 @@ pub fn run(args: RebuildArgs) -> Result<()> {
         Some(path) => Some(plot::render_to(path, &overlay_plot(&outcome, None))?),
         None => None,
     };
+    let metadata = command_metadata(
+        &args,
+        &curve_name,
+        risk.as_ref().map(|(n, _)| n.as_str()),
+        &outcome,
+    );
+    let document = rebuilt_document(args.arm_col.as_deref(), metadata);
+    target.write_rendered(&document, &outcome.csv)?;
     let mut text = outcome.report;
-    output::write_atomic(&args.out, &outcome.csv)?;
     text.push_str(&format!(
         "\nwrote {} (time in the figure's unit; pass it to `tunnelcast fit` with --time-unit)\n",
         args.out.display()
     ));
+    for descriptor in target.paths().iter().skip(1) {
+        text.push_str(&format!(
+            "wrote {} (its columns and provenance)\n",
+            descriptor.display()
+        ));
+    }
     if let (Some(path), Some(bytes)) = (&args.plot, plot_bytes) {
         output::write_atomic(path, &bytes)?;
         text.push_str(&format!(

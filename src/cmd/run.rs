@@ -12,8 +12,9 @@ use crate::curve::{Curve, ParametricCurve};
 use crate::discretise::{count_until, tunnel_table, TunnelTable};
 use crate::draws::{Sampler, SummaryBuilder, SummaryRow};
 use crate::error::{Error, Result};
+use crate::export::descriptor::{self, Package, Provenance};
 use crate::export::tunnel::{long_table, Layout};
-use crate::export::{exporter_for, number_text, Cell, Document, Table};
+use crate::export::{exporter_for, number_text, unique_keys, Cell, Document, Table};
 use crate::fit::{fit_dataset, FamilyFit, FitFile};
 use crate::horizon::{
     boundary_log_survival, default_horizon, stable_count, suggested_count, truncation_table,
@@ -210,11 +211,11 @@ impl RunResult {
         }
     }
 
-    /// The rebuild's quality tables as exported, by file stem: per arm figures, numbers at risk
-    /// against the table, and the intervals of the reconstruction. Empty without `[data] curve`.
-    pub fn rebuild_documents(&self) -> Vec<(&'static str, Document)> {
+    /// Metadata of the rebuild's files (`rebuilt.csv` and the quality tables): tool, the
+    /// digitised inputs and their SHA-256, method, time unit, caution. `None` without `[data] curve`.
+    pub fn rebuild_metadata(&self) -> Option<Vec<(String, String)>> {
         let (Some(outcome), Some(source)) = (&self.rebuild, &self.analysis.rebuild) else {
-            return Vec::new();
+            return None;
         };
         let mut metadata = vec![
             ("tool_version".to_string(), crate::VERSION.to_string()),
@@ -235,6 +236,15 @@ impl RunResult {
             ("time_unit".into(), self.analysis.time_unit.name().into()),
             ("caution".into(), REBUILD_CAUTION.into()),
         ]);
+        Some(metadata)
+    }
+
+    /// The rebuild's quality tables as exported, by file stem: per arm figures, numbers at risk
+    /// against the table, and the intervals of the reconstruction. Empty without `[data] curve`.
+    pub fn rebuild_documents(&self) -> Vec<(&'static str, Document)> {
+        let (Some(outcome), Some(metadata)) = (&self.rebuild, self.rebuild_metadata()) else {
+            return Vec::new();
+        };
         let arm_cell = |a: &Option<String>| match a {
             Some(a) => Cell::Text(a.clone()),
             None => Cell::Missing,
@@ -374,6 +384,11 @@ impl RunResult {
         metadata.extend([
             ("horizon_cycles".into(), self.horizon_cycles.to_string()),
             ("discount".into(), number_text(self.analysis.discount)),
+            // The unit of every life-year column (the cycle's, as the table is computed).
+            (
+                "life_years_unit".into(),
+                self.analysis.cycle.unit.name().into(),
+            ),
         ]);
         let rows = self
             .within_cycle
@@ -411,6 +426,28 @@ impl RunResult {
                 .to_vec(),
                 rows,
             }],
+        }
+    }
+}
+
+impl RunResult {
+    /// The Data Package of the folder's CSV files: their descriptors, the metadata they share
+    /// and, only when `SOURCE_DATE_EPOCH` gives one, the time it was made.
+    pub fn package(&self, resources: Vec<descriptor::Resource>, created: Option<u64>) -> Package {
+        let stem = Path::new(&self.analysis.file)
+            .file_stem()
+            .map(|s| s.to_string_lossy().into_owned())
+            .unwrap_or_default();
+        Package {
+            profile: "tabular-data-package",
+            name: descriptor::identifier(&stem),
+            title: self.analysis.title.clone(),
+            created: created.map(output::rfc3339),
+            description: "The CSV tables of one tunnelcast analysis (see report.html); each \
+                          is also described in NAME.resource.json beside it."
+                .into(),
+            resources,
+            tunnelcast: Provenance(unique_keys(&self.metadata())),
         }
     }
 }
@@ -699,9 +736,11 @@ pub fn compute(
     })
 }
 
-/// Every output file of a finished analysis, by name; `date` goes into the report only, so
-/// that the tables of a re-run are byte-identical.
-pub fn render_files(result: &RunResult, date: &str) -> Result<Vec<(String, Vec<u8>)>> {
+/// Every output file of a finished analysis, by name. Each CSV file gets its descriptor
+/// (`NAME.resource.json`) and all of them are gathered into `datapackage.json`. `created`
+/// (seconds since 1970, from `SOURCE_DATE_EPOCH`) is the only time any file records (the
+/// report's date, the package's `created`); without it a rerun writes the same bytes.
+pub fn render_files(result: &RunResult, created: Option<u64>) -> Result<Vec<(String, Vec<u8>)>> {
     let mut files: Vec<(String, Vec<u8>)> = Vec::new();
     let mut fit_json = serde_json::to_vec_pretty(&result.fits)
         .map_err(|e| Error::Computation(format!("cannot render JSON: {e}")))?;
@@ -716,11 +755,19 @@ pub fn render_files(result: &RunResult, date: &str) -> Result<Vec<(String, Vec<u
         documents.push(("draws_summary", d));
     }
     documents.extend(result.rebuild_documents());
+    let mut resources = Vec::new();
     for format in &result.analysis.formats {
         for (stem, document) in &documents {
             let name = format!("{stem}.{format}");
             let exporter = exporter_for(Path::new(&name), None)?;
-            files.push((name, exporter.render(document)?));
+            let bytes = exporter.render(document)?;
+            if let Some(path) = exporter.descriptor_path(Path::new(&name)) {
+                if let Some(r) = exporter.describe(document, &name, bytes.len() as u64) {
+                    files.push((crate::export::file_name(&path), descriptor::to_json(&r)?));
+                    resources.push(r);
+                }
+            }
+            files.push((name, bytes));
         }
     }
     let unit = result.analysis.time_unit;
@@ -756,7 +803,13 @@ pub fn render_files(result: &RunResult, date: &str) -> Result<Vec<(String, Vec<u
         tolerance: result.analysis.tolerance,
     };
     figures.extend(plot::both("horizon", &horizon_plot)?);
-    if let Some(outcome) = &result.rebuild {
+    if let (Some(outcome), Some(metadata)) = (&result.rebuild, result.rebuild_metadata()) {
+        let arm_column = result.analysis.arm_column.as_deref();
+        let document = crate::cmd::rebuild::rebuilt_document(arm_column, metadata);
+        let path = crate::export::csv::descriptor_path(Path::new(REBUILT_FILE));
+        let r = descriptor::resource(&document, REBUILT_FILE, outcome.csv.len() as u64);
+        files.push((crate::export::file_name(&path), descriptor::to_json(&r)?));
+        resources.push(r);
         files.push((REBUILT_FILE.into(), outcome.csv.clone()));
         files.push(("rebuild.txt".into(), outcome.report.clone().into_bytes()));
         figures.extend(plot::both(
@@ -764,7 +817,11 @@ pub fn render_files(result: &RunResult, date: &str) -> Result<Vec<(String, Vec<u
             &overlay_plot(outcome, Some(result.analysis.time_unit)),
         )?);
     }
-    let html = crate::report::render(result, &figures, date)?;
+    if !resources.is_empty() {
+        let package = result.package(resources, created);
+        files.push(("datapackage.json".into(), descriptor::to_json(&package)?));
+    }
+    let html = crate::report::render(result, &figures, created)?;
     files.extend(figures);
     files.push(("report.html".into(), html.into_bytes()));
     files.push((
@@ -836,7 +893,7 @@ pub fn execute(
 ) -> Result<String> {
     let mut result = compute(analysis, data_bytes, lifetable_bytes)?;
     result.rebuild = rebuilt;
-    let files = render_files(&result, &crate::report::utc_now())?;
+    let files = render_files(&result, output::source_date_epoch()?)?;
     let staged = StagedFolder::new(folder)?;
     for (name, bytes) in &files {
         staged.write(name, bytes)?;

@@ -8,7 +8,7 @@ use crate::error::{Error, Result};
 use crate::export::tunnel::{
     long_table, matrix_by_cause_table, matrix_table, tunnel_document, Layout,
 };
-use crate::export::{exporter_for, number_text, Cell, Table};
+use crate::export::{number_text, Cell, Table, Target};
 use crate::format::sig;
 use crate::output;
 use crate::units::{Duration, TimeUnit};
@@ -311,12 +311,8 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
         }
         (None, None) => return Err(Error::Usage("give --count N or --until DURATION".into())),
     };
-    let exporter = match &args.out {
-        Some(path) => {
-            let e = exporter_for(path, args.format.as_deref())?;
-            output::check_writable(path, args.force)?;
-            Some((path, e))
-        }
+    let target = match &args.out {
+        Some(path) => Some(Target::new(path, args.format.as_deref(), args.force)?),
         None => None,
     };
     let built = args.curve.build()?;
@@ -338,8 +334,9 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
     let mut metadata = built.metadata.clone();
     let floor = built.floor_report(cycle_in_curve, count);
     metadata.extend(floor.iter().cloned());
-    match exporter {
-        Some((path, exporter)) => {
+    match target {
+        Some(target) => {
+            let exporter = &target.exporter;
             let mut document =
                 tunnel_document(&table, args.layout, header(&table, &metadata, args.layout));
             if exporter.holds_several_tables() {
@@ -347,11 +344,14 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
                     .tables
                     .extend(workbook_tables(&table, args.layout, &built, &args.curve)?);
             }
-            let bytes = exporter.render(&document)?;
-            output::write_atomic(path, &bytes)?;
+            target.write(&document)?;
+            let described = match exporter.descriptor_path(&target.path) {
+                Some(d) => format!("; described in {}", d.display()),
+                None => String::new(),
+            };
             output::print(&format!(
-                "wrote {} ({} tunnel states of {} {}, {} layout, {})\n",
-                path.display(),
+                "wrote {} ({} tunnel states of {} {}, {} layout, {}{described})\n",
+                target.path.display(),
                 table.rows.len(),
                 number_text(table.cycle),
                 table.time_unit,

@@ -1,11 +1,35 @@
-//! CSV export: a `#`-comment header block with the document's metadata (one `# key: value`
-//! line each), then the document's first table with a header row. Numbers are written in
-//! their shortest round-trip form, so reading the file back gives the same `f64`s.
+//! CSV export: plain RFC 4180 (comma, CRLF line ends, double quotes where needed), the header
+//! on the first line and no comment lines, then the rows of the document's first table.
+//! Numbers are written in their shortest round-trip form with `.` as the decimal mark, so
+//! reading the file back gives the same `f64`s. The metadata goes into a Frictionless
+//! descriptor beside the file, `NAME.resource.json` for `NAME.csv` ([`super::descriptor`]).
 
+use super::descriptor::{self, Resource};
 use super::{push_number_bytes, push_number_text, Cell, Document, Exporter};
 use crate::discretise::{TunnelRow, TunnelTable};
 use crate::error::{Error, Result};
 use std::ops::Range;
+use std::path::{Path, PathBuf};
+
+/// Line end of every record (RFC 4180).
+const LINE_END: &[u8] = b"\r\n";
+
+/// Where the descriptor of a CSV file at `path` goes: `NAME.resource.json` beside `NAME.csv`
+/// (the file name without its last extension, then `.resource.json`).
+pub fn descriptor_path(path: &Path) -> PathBuf {
+    let stem = path
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "data".into());
+    path.with_file_name(format!("{stem}.resource.json"))
+}
+
+/// A CSV writer laid out as every CSV file of the tool.
+fn writer(out: Vec<u8>) -> csv::Writer<Vec<u8>> {
+    csv::WriterBuilder::new()
+        .terminator(csv::Terminator::CRLF)
+        .from_writer(out)
+}
 
 /// The CSV format (`.csv`).
 pub struct Csv;
@@ -16,18 +40,10 @@ impl Exporter for Csv {
     }
 
     fn render(&self, document: &Document) -> Result<Vec<u8>> {
-        let mut out = Vec::new();
-        for (key, value) in &document.metadata {
-            // A comment line must stay one line whatever the value holds.
-            let value = value.replace(['\r', '\n'], " ");
-            out.extend_from_slice(format!("# {key}: {value}\n").as_bytes());
-        }
         let Some(table) = document.tables.first() else {
-            return Ok(out);
+            return Ok(Vec::new());
         };
-        let mut writer = csv::WriterBuilder::new()
-            .terminator(csv::Terminator::Any(b'\n'))
-            .from_writer(out);
+        let mut writer = writer(Vec::new());
         let fail = |e: csv::Error| Error::Computation(format!("cannot render CSV: {e}"));
         writer.write_record(&table.columns).map_err(fail)?;
         write_rows(&mut writer, &table.rows).map_err(fail)?;
@@ -36,10 +52,16 @@ impl Exporter for Csv {
             .map_err(|e| Error::Computation(format!("cannot render CSV: {e}")))
     }
 
+    fn descriptor_path(&self, path: &Path) -> Option<PathBuf> {
+        Some(descriptor_path(path))
+    }
+
+    fn describe(&self, document: &Document, file_name: &str, bytes: u64) -> Option<Resource> {
+        Some(descriptor::resource(document, file_name, bytes))
+    }
+
     fn render_more_rows(&self, rows: &[Vec<Cell>]) -> Option<Result<Vec<u8>>> {
-        let mut writer = csv::WriterBuilder::new()
-            .terminator(csv::Terminator::Any(b'\n'))
-            .from_writer(Vec::new());
+        let mut writer = writer(Vec::new());
         let fail = |e: csv::Error| Error::Computation(format!("cannot render CSV: {e}"));
         let result = (|| {
             write_rows(&mut writer, rows).map_err(fail)?;
@@ -92,7 +114,7 @@ impl Exporter for Csv {
                         push_number_bytes(out, *v);
                     }
                 }
-                out.push(b'\n');
+                out.extend_from_slice(LINE_END);
             }
         }
         Some(Ok(()))
@@ -165,7 +187,7 @@ mod tests {
     use crate::export::Table;
 
     #[test]
-    fn header_block_then_first_table() {
+    fn header_first_then_rows_and_no_metadata() {
         let document = Document {
             metadata: vec![
                 ("tool_version".into(), "0.1.0".into()),
@@ -177,19 +199,46 @@ mod tests {
                 rows: vec![
                     vec![Cell::Int(1), Cell::Number(0.1), Cell::Text("a,b".into())],
                     vec![Cell::Int(2), Cell::Number(1e-310), Cell::Missing],
+                    vec![
+                        Cell::Int(3),
+                        Cell::Number(-2.5),
+                        Cell::Text("x\"y\nz".into()),
+                    ],
                 ],
             }],
         };
-        let text = String::from_utf8(Csv.render(&document).unwrap()).unwrap();
-        let mut lines = text.lines();
-        assert_eq!(lines.next(), Some("# tool_version: 0.1.0"));
-        assert_eq!(lines.next(), Some("# note: two lines"));
-        let body: String = lines.map(|l| format!("{l}\n")).collect();
-        let mut reader = csv::Reader::from_reader(body.as_bytes());
+        let bytes = Csv.render(&document).unwrap();
+        // RFC 4180: CRLF after every record, the header first, quotes doubled.
+        assert!(bytes.starts_with(b"tunnel,p_exit,label\r\n1,0.1,\"a,b\"\r\n"));
+        assert!(bytes.ends_with(b"3,-2.5,\"x\"\"y\nz\"\r\n"));
+        // Read back by the csv crate with no comment character and no flexibility.
+        let mut reader = csv::ReaderBuilder::new()
+            .comment(None)
+            .flexible(false)
+            .from_reader(bytes.as_slice());
+        assert_eq!(reader.headers().unwrap(), vec!["tunnel", "p_exit", "label"]);
         let rows: Vec<csv::StringRecord> = reader.records().map(|r| r.unwrap()).collect();
         assert_eq!(rows[0].get(2), Some("a,b"));
         assert_eq!(rows[1].get(1).unwrap().parse::<f64>().unwrap(), 1e-310);
         assert_eq!(rows[1].get(2), Some(""));
+        assert_eq!(rows[2].get(2), Some("x\"y\nz"));
+        assert!(!String::from_utf8(bytes).unwrap().contains("0.1.0"));
+    }
+
+    #[test]
+    fn descriptor_sits_beside_the_file() {
+        assert_eq!(
+            descriptor_path(Path::new("out/draws.csv")),
+            Path::new("out/draws.resource.json")
+        );
+        assert_eq!(
+            descriptor_path(Path::new("table")),
+            Path::new("table.resource.json")
+        );
+        assert_eq!(
+            descriptor_path(Path::new("a.b.txt")),
+            Path::new("a.b.resource.json")
+        );
     }
 
     #[test]

@@ -23,14 +23,16 @@ impl Exporter for Json {
     }
 }
 
-/// Ordered key–value metadata serialised as a JSON object in its own order; shared by the
-/// commands that write JSON reports of their own (e.g. `horizon --json`).
+/// Ordered key–value metadata serialised as a JSON object in its own order, repeated keys
+/// told apart ([`super::unique_keys`]); shared by the commands that write JSON reports of their
+/// own (e.g. `horizon --json`).
 pub struct MetadataMap<'a>(pub &'a [(String, String)]);
 
 impl Serialize for MetadataMap<'_> {
     fn serialize<S: Serializer>(&self, s: S) -> std::result::Result<S::Ok, S::Error> {
-        let mut map = s.serialize_map(Some(self.0.len()))?;
-        for (k, v) in self.0 {
+        let pairs = super::unique_keys(self.0);
+        let mut map = s.serialize_map(Some(pairs.len()))?;
+        for (k, v) in &pairs {
             map.serialize_entry(k, v)?;
         }
         map.end()

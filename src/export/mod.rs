@@ -1,6 +1,8 @@
 //! Exports: results are first built into a format-neutral [`Document`] (metadata plus named
 //! tables); one file per format turns a document into bytes behind the [`Exporter`] trait
-//! (no file I/O inside exporters). Writing goes through [`crate::output::write_atomic`].
+//! (no file I/O inside exporters). A format that cannot hold the metadata (CSV) describes each
+//! file in a Frictionless descriptor beside it ([`descriptor`]). Commands write through a
+//! [`Target`], which checks the paths first and puts a file and its descriptor in place together.
 
 use crate::discretise::TunnelTable;
 use crate::error::Result;
@@ -78,15 +80,128 @@ pub trait Exporter: Send + Sync {
     fn holds_several_tables(&self) -> bool {
         false
     }
+
+    /// For formats that cannot hold the document's metadata (CSV): where the descriptor of a
+    /// file written at `path` goes. `None` for formats that hold it themselves (JSON
+    /// `metadata`, the XLSX `notes` sheet).
+    fn descriptor_path(&self, _path: &Path) -> Option<PathBuf> {
+        None
+    }
+
+    /// The descriptor of `document` rendered by this format into `file_name` (a bare file
+    /// name) of `bytes` bytes, for formats with a [`Exporter::descriptor_path`].
+    fn describe(
+        &self,
+        _document: &Document,
+        _file_name: &str,
+        _bytes: u64,
+    ) -> Option<descriptor::Resource> {
+        None
+    }
+}
+
+/// Metadata with repeated keys told apart (`warning`, `warning_2`, …), in order: the form every
+/// format records, so that a JSON object or a descriptor never holds a key twice.
+pub fn unique_keys(metadata: &[(String, String)]) -> Vec<(String, String)> {
+    let mut out: Vec<(String, String)> = Vec::with_capacity(metadata.len());
+    for (key, value) in metadata {
+        let mut name = key.clone();
+        let mut k = 2;
+        while out.iter().any(|(n, _)| *n == name) {
+            name = format!("{key}_{k}");
+            k += 1;
+        }
+        out.push((name, value.clone()));
+    }
+    out
+}
+
+/// An output file of a table-writing command with its format, checked before any computation;
+/// for a format with descriptors, the descriptor's path is checked too (neither is replaced
+/// without `--force`).
+pub struct Target {
+    /// The file.
+    pub path: PathBuf,
+    /// Its format.
+    pub exporter: Box<dyn Exporter>,
+}
+
+impl Target {
+    /// The target for `path`, in `format` or the format of its extension; errors when the
+    /// file or its descriptor exists (without `force`) or the folder does not.
+    pub fn new(path: &Path, format: Option<&str>, force: bool) -> Result<Target> {
+        let exporter = exporter_for(path, format)?;
+        output::check_writable(path, force)?;
+        if let Some(descriptor) = exporter.descriptor_path(path) {
+            output::check_writable(&descriptor, force)?;
+        }
+        Ok(Target {
+            path: path.to_path_buf(),
+            exporter,
+        })
+    }
+
+    /// Every file this target writes: the file, then its descriptor if it has one.
+    pub fn paths(&self) -> Vec<PathBuf> {
+        let mut paths = vec![self.path.clone()];
+        paths.extend(self.exporter.descriptor_path(&self.path));
+        paths
+    }
+
+    /// Renders `document` and puts it in place with its descriptor.
+    pub fn write(&self, document: &Document) -> Result<()> {
+        let bytes = self.exporter.render(document)?;
+        self.write_rendered(document, &bytes)
+    }
+
+    /// Puts `bytes`, the rendering of `document`, in place with its descriptor.
+    pub fn write_rendered(&self, document: &Document, bytes: &[u8]) -> Result<()> {
+        let data = output::stage(&self.path, bytes)?;
+        self.commit(document, data)
+    }
+
+    /// Streams the file (`fill` writes all of it, see [`output::stage_with`]), then puts it in
+    /// place with the descriptor of `document` (its metadata and columns; rows may be left out).
+    pub fn write_streamed(
+        &self,
+        document: &Document,
+        fill: impl FnOnce(&mut output::Staged) -> Result<()>,
+    ) -> Result<()> {
+        let data = output::stage_with(&self.path, fill)?;
+        self.commit(document, data)
+    }
+
+    /// Stages the descriptor of the staged `data` file and puts both in place, the
+    /// descriptor first.
+    fn commit(&self, document: &Document, data: output::Pending) -> Result<()> {
+        let mut files = Vec::new();
+        if let Some(path) = self.exporter.descriptor_path(&self.path) {
+            let name = file_name(&self.path);
+            if let Some(resource) = self.exporter.describe(document, &name, data.bytes()) {
+                files.push(output::stage(&path, &descriptor::to_json(&resource)?)?);
+            }
+        }
+        files.push(data);
+        output::commit(files)
+    }
+}
+
+/// The last component of `path` as text.
+pub fn file_name(path: &Path) -> String {
+    path.file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default()
 }
 
 pub mod csv;
+pub mod descriptor;
 pub mod json;
 pub mod tunnel;
 pub mod xlsx;
 
 use crate::error::Error;
-use std::path::Path;
+use crate::output;
+use std::path::{Path, PathBuf};
 
 /// Every export format, looked up by extension or `--format`; adding a format is one line here.
 pub fn exporters() -> Vec<Box<dyn Exporter>> {

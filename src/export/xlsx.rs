@@ -2,10 +2,18 @@
 //! sheet holding the metadata and the caution. Numbers are stored as numbers (full double
 //! precision), header rows are bold and frozen, and column widths follow the content so the
 //! workbook reads well when opened. Rendering happens in memory; no file I/O here.
+//!
+//! The workbook's created and modified properties are the time of `SOURCE_DATE_EPOCH` when the
+//! environment sets it, else the fixed [`UNDATED`], never the clock: the same document gives
+//! the same bytes (the zip members carry a fixed date of their own).
 
-use super::{Cell, Document, Exporter, Table};
+use super::{unique_keys, Cell, Document, Exporter, Table};
 use crate::error::{Error, Result};
-use rust_xlsxwriter::{Format, Workbook, Worksheet, XlsxError};
+use rust_xlsxwriter::{DocProperties, ExcelDateTime, Format, Workbook, Worksheet, XlsxError};
+
+/// Created and modified time of a workbook when `SOURCE_DATE_EPOCH` is not set:
+/// 1980-01-01 00:00 UTC (seconds since 1970), the date the zip members carry too.
+pub const UNDATED: u64 = 315_532_800;
 
 /// Rows an XLSX sheet holds, header included (the file format's limit).
 pub const MAX_ROWS: usize = 1_048_576;
@@ -113,10 +121,9 @@ fn write_table(sheet: &mut Worksheet, table: &Table, header: &Format) -> Result<
 
 /// The `notes` sheet: every metadata pair, then the caution unless the metadata already holds it.
 fn notes_table(document: &Document) -> Table {
-    let mut rows: Vec<Vec<Cell>> = document
-        .metadata
-        .iter()
-        .map(|(k, v)| vec![Cell::Text(k.clone()), Cell::Text(v.clone())])
+    let mut rows: Vec<Vec<Cell>> = unique_keys(&document.metadata)
+        .into_iter()
+        .map(|(k, v)| vec![Cell::Text(k), Cell::Text(v)])
         .collect();
     if !document.metadata.iter().any(|(_, v)| v == crate::CAUTION) {
         rows.push(vec![
@@ -142,6 +149,10 @@ impl Exporter for Xlsx {
 
     fn render(&self, document: &Document) -> Result<Vec<u8>> {
         let mut workbook = Workbook::new();
+        let created = crate::output::source_date_epoch()?.unwrap_or(UNDATED);
+        let created = ExcelDateTime::from_timestamp(created as i64)
+            .map_err(|e| xlsx_error("creation time", e))?;
+        workbook.set_properties(&DocProperties::new().set_creation_datetime(&created));
         let header = Format::new().set_bold();
         let mut taken: Vec<String> = Vec::new();
         let notes = notes_table(document);
@@ -247,6 +258,37 @@ mod tests {
         assert!(matches!(range.get((1, 0)), None | Some(Data::Empty)));
         assert_eq!(range.get((1, 1)), Some(&Data::String("inf".into())));
         assert_eq!(range.get((1, 2)), Some(&Data::Float(2.5)));
+    }
+
+    #[test]
+    fn workbook_properties_carry_a_fixed_date_not_the_clock() {
+        // Without SOURCE_DATE_EPOCH (the unit tests do not set it), docProps/core.xml, read
+        // with an independent zip reader and XML parser, holds 1980-01-01 as created and
+        // modified time; two renders are byte-identical.
+        if crate::output::source_date_epoch().ok().flatten().is_some() {
+            return; // the environment sets a date: the command-line tests cover that case
+        }
+        let document = Document {
+            metadata: vec![("tool_version".into(), crate::VERSION.into())],
+            tables: vec![],
+        };
+        let bytes = Xlsx.render(&document).unwrap();
+        assert_eq!(bytes, Xlsx.render(&document).unwrap());
+        let mut archive = zip::ZipArchive::new(std::io::Cursor::new(bytes)).unwrap();
+        let mut core = String::new();
+        std::io::Read::read_to_string(
+            &mut archive.by_name("docProps/core.xml").unwrap(),
+            &mut core,
+        )
+        .unwrap();
+        let xml = roxmltree::Document::parse(&core).unwrap();
+        for tag in ["created", "modified"] {
+            let node = xml
+                .descendants()
+                .find(|n| n.tag_name().name() == tag)
+                .unwrap();
+            assert_eq!(node.text(), Some("1980-01-01T00:00:00Z"), "{tag}");
+        }
     }
 
     #[test]
