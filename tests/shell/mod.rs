@@ -304,6 +304,7 @@ pub fn read_package(folder: &Path) -> serde_json::Value {
         names.push(name);
     }
     package
+}
 
 /// A CSV output read back by the `csv` crate's strict reader: every row must have as many
 /// fields as the header (a ragged file is an error, not a shorter row).
@@ -361,6 +362,4 @@ pub fn read_csv_table(path: &Path) -> CsvFile {
         .map(|r| r.iter().map(str::to_string).collect())
         .collect();
     CsvFile { columns, rows }
-}
-
 }
