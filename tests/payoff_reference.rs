@@ -372,7 +372,10 @@ fn background_mortality_added_to_a_constant_hazard_uses_the_closed_form_and_quad
         }),
         ..Default::default()
     };
-    let curve = adjust::build(base, &adjustments, Some(table)).unwrap();
+    let curve = adjust::Adjuster::new(adjustments, Some(table))
+        .unwrap()
+        .adjust(base)
+        .unwrap();
     assert_eq!(curve.time_unit(), TimeUnit::Months);
     let cuts: Vec<f64> = (0..qx.len() - 1).map(|i| 6.0 + 12.0 * i as f64).collect();
     let rates: Vec<f64> = std::iter::once(qx[0])
