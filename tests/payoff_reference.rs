@@ -276,7 +276,7 @@ fn half_cycle_undercounts_a_first_cycle_cost_by_nearly_half_and_trapezoid_does_n
     }
 }
 
-/// The `induction`, `cost`, `exit_cost` and `utility` rows of the fixture.
+/// The fixture's payoffs: `cost` (a rate, an entry and an exit amount), `utility`, `induction`.
 fn long_schedule() -> Schedule {
     schedule_of(&reference().rows)
 }

@@ -9,11 +9,12 @@
 //! `half-cycle` Σ_{j≤N} c_j m_j d_j with the first and last terms halved; `simpson` the same with
 //! Simpson's weights; `cycle-integrated` Σ_{j<N} m_j d_j · (tunnel j+1's payoff). One-offs:
 //! `at_entry` once at time 0 by every method; `at_exit` Σ_{j<N} (m_j - m_{j+1}) d_{j+1} · amount
-//! by every method but `cycle-integrated`, which has it exactly in the tunnel payoffs.
+//! by every method but `cycle-integrated`, which has it exactly in the tunnel payoffs. A payoff
+//! made of several parts (a rate, an entry amount, an exit amount) totals the sum of its parts.
 
 use super::discount::Discount;
 use super::integral::{CurveHint, Exactness, Integrator};
-use super::schedule::{Payoff, PayoffKind, Schedule};
+use super::schedule::{Payoff, Schedule};
 use super::tunnel::{rate_on, tunnel_payoffs, TunnelPayoffs};
 use crate::curve::Curve;
 use crate::discretise::exit_probability;
@@ -107,7 +108,8 @@ fn boundary_discounts(cycle: Duration, n: usize, discount: Discount) -> Vec<f64>
 }
 
 /// Total of `payoff` to the horizon by a boundary `method` (not the cycle-integrated one), from
-/// the boundary log-survival `log_s` (n + 1 values, boundaries j·cycle).
+/// the boundary log-survival `log_s` (n + 1 values, boundaries j·cycle): its rate by the method,
+/// plus its entry amount, plus its exit amount by the boundary sum.
 pub fn boundary_total(
     payoff: &Payoff,
     method: Method,
@@ -118,36 +120,36 @@ pub fn boundary_total(
     let n = log_s.len().saturating_sub(1);
     let d = boundary_discounts(cycle, n, discount);
     let m: Vec<f64> = log_s.iter().map(|l| l.exp()).collect();
-    match &payoff.kind {
-        PayoffKind::AtEntry(amount) => *amount,
-        PayoffKind::AtExit(amount) => {
-            // m_j - m_{j+1} as m_j·p_exit, so it keeps its digits when the two are close.
-            (0..n)
-                .map(|j| m[j] * exit_probability(log_s[j], log_s[j + 1]) * d[j + 1])
-                .sum::<f64>()
-                * amount
-        }
-        PayoffKind::Rate(_) => {
-            let h = cycle.value;
-            // Rate per unit of the cycle's time at each boundary: c_j = rate_j·h.
-            let rate: Vec<f64> = (0..=n)
-                .map(|j| payoff.rate_at(j as f64 * h, cycle.unit))
-                .collect();
-            match method {
-                // Boundary rules on g_j = rate_j·m_j·d_j: h·Σ w_j g_j is Σ w_j c_j m_j d_j.
-                Method::Start | Method::HalfCycle | Method::Simpson => {
-                    let g: Vec<f64> = (0..=n).map(|j| rate[j] * m[j] * d[j]).collect();
-                    integrate_boundaries(&g, h, method)
-                }
-                // These two weight each cycle's own amount c_j by memberships at its ends, so
-                // they are not boundary rules on one sequence.
-                Method::End => (0..n).map(|j| rate[j] * h * m[j + 1] * d[j + 1]).sum(),
-                Method::Trapezoid => (0..n)
-                    .map(|j| rate[j] * h * 0.5 * (m[j] * d[j] + m[j + 1] * d[j + 1]))
-                    .sum(),
-            }
-        }
+    let entry = payoff.at_entry.unwrap_or(0.0);
+    // m_j - m_{j+1} as m_j·p_exit, so it keeps its digits when the two are close.
+    let exit = payoff.at_exit.map_or(0.0, |amount| {
+        (0..n)
+            .map(|j| m[j] * exit_probability(log_s[j], log_s[j + 1]) * d[j + 1])
+            .sum::<f64>()
+            * amount
+    });
+    if payoff.rate.is_empty() {
+        return entry + exit;
     }
+    let h = cycle.value;
+    // Rate per unit of the cycle's time at each boundary: c_j = rate_j·h.
+    let rate: Vec<f64> = (0..=n)
+        .map(|j| payoff.rate_at(j as f64 * h, cycle.unit))
+        .collect();
+    let accrued = match method {
+        // Boundary rules on g_j = rate_j·m_j·d_j: h·Σ w_j g_j is Σ w_j c_j m_j d_j.
+        Method::Start | Method::HalfCycle | Method::Simpson => {
+            let g: Vec<f64> = (0..=n).map(|j| rate[j] * m[j] * d[j]).collect();
+            integrate_boundaries(&g, h, method)
+        }
+        // These two weight each cycle's own amount c_j by memberships at its ends, so
+        // they are not boundary rules on one sequence.
+        Method::End => (0..n).map(|j| rate[j] * h * m[j + 1] * d[j + 1]).sum(),
+        Method::Trapezoid => (0..n)
+            .map(|j| rate[j] * h * 0.5 * (m[j] * d[j] + m[j + 1] * d[j + 1]))
+            .sum(),
+    };
+    accrued + entry + exit
 }
 
 /// Σ_{j<n} m_j d_j · payoff of tunnel j+1: the cycle-integrated total from per-tunnel payoffs
@@ -173,8 +175,8 @@ pub fn cycle_integrated_total(
 }
 
 /// The exact totals of every payoff of `schedule` to `end` (time since entry in the curve's
-/// unit) for one person entering at 0: ∫₀^end c(t) S(t) (1+R)^-t dt for rates, the amount for
-/// `at_entry`, amount · ∫₀^end f(t) (1+R)^-t dt for `at_exit`. The integral is split at the
+/// unit) for one person entering at 0: ∫₀^end c(t) S(t) (1+R)^-t dt for the rate, plus the
+/// `at_entry` amount, plus the `at_exit` amount · ∫₀^end f(t) (1+R)^-t dt. The integral is split at the
 /// schedule's changes and in 64 equal pieces, independently of any cycle.
 pub fn exact_totals(
     curve: &dyn Curve,
@@ -196,10 +198,7 @@ pub fn exact_totals(
     let uniform: Vec<f64> = (1..PIECES)
         .map(|i| end * i as f64 / PIECES as f64)
         .collect();
-    let want_exit = schedule
-        .payoffs
-        .iter()
-        .any(|p| matches!(p.kind, PayoffKind::AtExit(_)));
+    let want_exit = schedule.payoffs.iter().any(|p| p.at_exit.is_some());
     let window = integrator.window(
         0.0,
         end,
@@ -211,17 +210,15 @@ pub fn exact_totals(
     let totals = schedule
         .payoffs
         .iter()
-        .map(|payoff| match payoff.kind {
-            PayoffKind::Rate(_) => {
-                let pieces = payoff.rates_in(unit);
-                window
-                    .pieces
-                    .iter()
-                    .map(|&(a, b, stay)| rate_on(&pieces, a, b) * stay)
-                    .sum()
-            }
-            PayoffKind::AtEntry(amount) => amount,
-            PayoffKind::AtExit(amount) => amount * window.exit,
+        .map(|payoff| {
+            let pieces = payoff.rates_in(unit);
+            let accrued: f64 = window
+                .pieces
+                .iter()
+                .map(|&(a, b, stay)| rate_on(&pieces, a, b) * stay)
+                .sum();
+            let exit = payoff.at_exit.map_or(0.0, |amount| amount * window.exit);
+            accrued + payoff.at_entry.unwrap_or(0.0) + exit
         })
         .collect();
     (totals, integrator.exactness())

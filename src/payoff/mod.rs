@@ -19,5 +19,5 @@ pub use horizon::{
     suggested_count_with_payoffs, HorizonPayoffs, PayoffMethod, PayoffMethodRow, PAYOFF_METHODS,
 };
 pub use integral::{CurveHint, Exactness, PiecewiseHazard};
-pub use schedule::{Payoff, PayoffColumns, PayoffKind, PayoffRow, RatePiece, Schedule};
+pub use schedule::{Payoff, PayoffColumns, PayoffRow, RatePiece, Schedule};
 pub use tunnel::{tunnel_payoffs, TunnelPayoffs};

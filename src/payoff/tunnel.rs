@@ -5,12 +5,12 @@
 //!   + `at_entry` (tunnel 1 only)
 //!   + `at_exit` · ∫ f(u)/S(t_start) (1+R)^-(u - t_start) du over the cycle,
 //!
-//! discounted within the cycle only. A cohort engine multiplies it by the membership at the start
+//! each term only for a payoff that has that part, discounted within the cycle only. A cohort engine multiplies it by the membership at the start
 //! of the cycle (and its own discount factor for that time): no within-cycle correction is needed.
 
 use super::discount::Discount;
 use super::integral::{CurveHint, Exactness, Integrator};
-use super::schedule::{PayoffKind, Schedule};
+use super::schedule::Schedule;
 use crate::curve::Curve;
 use crate::discretise::TunnelTable;
 use crate::units::Duration;
@@ -69,10 +69,7 @@ pub fn tunnel_payoffs(
         (0..=2 * count).map(|i| 0.5 * i as f64 * h),
     );
     let rates: Vec<Vec<(f64, f64)>> = schedule.payoffs.iter().map(|p| p.rates_in(unit)).collect();
-    let want_exit = schedule
-        .payoffs
-        .iter()
-        .any(|p| matches!(p.kind, PayoffKind::AtExit(_)));
+    let want_exit = schedule.payoffs.iter().any(|p| p.at_exit.is_some());
     let per_tunnel: Vec<Vec<f64>> = (1..=count)
         .into_par_iter()
         .map(|k| {
@@ -89,20 +86,19 @@ pub fn tunnel_payoffs(
                 .payoffs
                 .iter()
                 .zip(&rates)
-                .map(|(payoff, pieces)| match payoff.kind {
-                    PayoffKind::Rate(_) => window
+                .map(|(payoff, pieces)| {
+                    let rate: f64 = window
                         .pieces
                         .iter()
                         .map(|&(a, b, stay)| rate_on(pieces, a, b) * stay)
-                        .sum(),
-                    PayoffKind::AtEntry(amount) => {
-                        if k == 1 {
-                            amount
-                        } else {
-                            0.0
-                        }
-                    }
-                    PayoffKind::AtExit(amount) => amount * window.exit,
+                        .sum();
+                    let entry = if k == 1 {
+                        payoff.at_entry.unwrap_or(0.0)
+                    } else {
+                        0.0
+                    };
+                    let exit = payoff.at_exit.map_or(0.0, |amount| amount * window.exit);
+                    rate + entry + exit
                 })
                 .collect()
         })
@@ -171,18 +167,28 @@ mod tests {
             ["drug", "rate", "0", "120", "1 month"],
             ["death", "at_exit", "", "3000", ""],
             ["start", "at_entry", "", "1500", ""],
+            ["all", "at_exit", "", "3000", ""],
+            ["all", "rate", "0", "120", "1 month"],
+            ["all", "at_entry", "", "1500", ""],
         ]);
         let d = Discount::annual(0.035).unwrap();
         let (lambda, delta, width) = (0.5, 0.035f64.ln_1p(), 0.25);
         let common = -(-(lambda + delta) * width).exp_m1() / (lambda + delta);
         for hint in [CurveHint::of_parametric(&curve), CurveHint::none()] {
             let t = tunnel_payoffs(&curve, &hint, &s, months(3.0), 12, d);
-            assert_eq!(t.columns, ["payoff_drug", "payoff_death", "payoff_start"]);
+            assert_eq!(
+                t.columns,
+                ["payoff_drug", "payoff_death", "payoff_start", "payoff_all"]
+            );
             for k in 0..12 {
                 assert!((t.values[0][k] - 1440.0 * common).abs() < 1e-10 * 1440.0 * common);
                 let exit = 3000.0 * lambda * common;
                 assert!((t.values[1][k] - exit).abs() < 1e-10 * exit);
-                assert_eq!(t.values[2][k], if k == 0 { 1500.0 } else { 0.0 });
+                let entry = if k == 0 { 1500.0 } else { 0.0 };
+                assert_eq!(t.values[2][k], entry);
+                // One payoff with all three parts: the sum of the three closed forms.
+                let all = 1440.0 * common + exit + entry;
+                assert!((t.values[3][k] - all).abs() < 1e-10 * all);
             }
         }
     }
