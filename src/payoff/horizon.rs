@@ -13,7 +13,7 @@
 //! made of several parts (a rate, an entry amount, an exit amount) totals the sum of its parts.
 
 use super::discount::Discount;
-use super::integral::{CurveHint, Exactness, Integrator};
+use super::integral::{Exactness, Integrator};
 use super::schedule::{Payoff, Schedule};
 use super::tunnel::{rate_on, tunnel_payoffs, TunnelPayoffs};
 use crate::curve::Curve;
@@ -177,23 +177,21 @@ pub fn cycle_integrated_total(
 /// The exact totals of every payoff of `schedule` to `end` (time since entry in the curve's
 /// unit) for one person entering at 0: ∫₀^end c(t) S(t) (1+R)^-t dt for the rate, plus the
 /// `at_entry` amount, plus the `at_exit` amount · ∫₀^end f(t) (1+R)^-t dt. The integral is split at the
-/// schedule's changes and in 64 equal pieces, independently of any cycle.
+/// schedule's changes and in 64 equal pieces, independently of any cycle; closed forms when
+/// the curve's hazard is piecewise constant up to `end`.
 pub fn exact_totals(
     curve: &dyn Curve,
-    hint: &CurveHint,
     schedule: &Schedule,
     end: f64,
     discount: Discount,
 ) -> (Vec<f64>, Exactness) {
     const PIECES: usize = 64;
     let unit = curve.time_unit();
-    let checks = (0..=2 * PIECES).map(|i| end * i as f64 / (2 * PIECES) as f64);
     let integrator = Integrator::new(
         curve,
-        hint,
         discount.per_unit(unit),
         &schedule.changes_in(unit),
-        checks,
+        end,
     );
     let uniform: Vec<f64> = (1..PIECES)
         .map(|i| end * i as f64 / PIECES as f64)
@@ -383,22 +381,21 @@ pub struct HorizonPayoffs {
 /// cycles, discounted at `discount` for the discounted columns and the truncation criterion.
 pub fn horizon_payoffs(
     curve: &dyn Curve,
-    hint: &CurveHint,
     schedule: &Schedule,
     cycle: Duration,
     n: usize,
     discount: Discount,
 ) -> HorizonPayoffs {
     let log_s = boundary_log_survival(curve, cycle, n);
-    let plain = tunnel_payoffs(curve, hint, schedule, cycle, n, Discount::NONE);
+    let plain = tunnel_payoffs(curve, schedule, cycle, n, Discount::NONE);
     let discounted = if discount == Discount::NONE {
         plain.clone()
     } else {
-        tunnel_payoffs(curve, hint, schedule, cycle, n, discount)
+        tunnel_payoffs(curve, schedule, cycle, n, discount)
     };
     let end = n as f64 * cycle.in_unit(curve.time_unit());
-    let (exact, _) = exact_totals(curve, hint, schedule, end, Discount::NONE);
-    let (disc_exact, _) = exact_totals(curve, hint, schedule, end, discount);
+    let (exact, _) = exact_totals(curve, schedule, end, Discount::NONE);
+    let (disc_exact, _) = exact_totals(curve, schedule, end, discount);
     let rows = payoff_method_rows(
         schedule,
         &log_s,
@@ -463,7 +460,7 @@ mod tests {
         ]);
         let d = Discount::annual(0.035).unwrap();
         let n = 48;
-        let result = horizon_payoffs(&curve, &CurveHint::none(), &s, month(), n, d);
+        let result = horizon_payoffs(&curve, &s, month(), n, d);
         let errors = |name: &str| {
             &result
                 .truncation
@@ -513,7 +510,7 @@ mod tests {
         let d = Discount::annual(0.06).unwrap();
         let n = 40;
         let log_s = boundary_log_survival(&curve, month(), n);
-        let per = tunnel_payoffs(&curve, &CurveHint::none(), &s, month(), n, d);
+        let per = tunnel_payoffs(&curve, &s, month(), n, d);
         let got = payoff_truncation_errors(&log_s, &per.values[0], month(), d);
         let surv: Vec<f64> = log_s.iter().map(|l| l.exp()).collect();
         let chain = |k: usize| {
@@ -543,7 +540,7 @@ mod tests {
             ["nothing", "rate", "0", "0", "1 month"],
             ["none", "at_exit", "", "0", ""],
         ]);
-        let result = horizon_payoffs(&curve, &CurveHint::none(), &s, month(), 7, Discount::NONE);
+        let result = horizon_payoffs(&curve, &s, month(), 7, Discount::NONE);
         for row in &result.rows {
             assert_eq!(
                 (row.total, row.rel_error, row.disc_rel_error),
