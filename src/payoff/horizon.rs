@@ -77,26 +77,25 @@ pub struct PayoffMethodRow {
     pub exact: f64,
     /// `total` - `exact`.
     pub error: f64,
-    /// `error` / |`exact`| (0 when both are 0).
-    pub rel_error: f64,
+    /// `error` / |`exact`|; `None` (missing) when `exact` is 0.
+    pub rel_error: Option<f64>,
     /// Discounted total by the method.
     pub disc_total: f64,
     /// Discounted exact total.
     pub disc_exact: f64,
     /// `disc_total` - `disc_exact`.
     pub disc_error: f64,
-    /// `disc_error` / |`disc_exact`| (0 when both are 0).
-    pub disc_rel_error: f64,
+    /// `disc_error` / |`disc_exact`|; `None` (missing) when `disc_exact` is 0.
+    pub disc_rel_error: Option<f64>,
 }
 
-/// error / |exact|, signed like the error; 0 when the error is 0, ∞ when only the exact total is.
-pub fn relative(error: f64, exact: f64) -> f64 {
-    if error == 0.0 {
-        0.0
-    } else if exact == 0.0 {
-        f64::INFINITY.copysign(error)
+/// error / |exact|, signed like the error; `None` (written as missing: an empty CSV cell, JSON
+/// `null`, a blank XLSX cell) when the exact total is 0, where no relative error exists.
+pub fn relative(error: f64, exact: f64) -> Option<f64> {
+    if exact == 0.0 {
+        None
     } else {
-        error / exact.abs()
+        Some(error / exact.abs())
     }
 }
 
@@ -534,25 +533,34 @@ mod tests {
     }
 
     #[test]
-    fn zero_payoffs_give_zero_errors_not_nan() {
+    fn zero_exact_totals_give_missing_relative_errors_not_infinities() {
         let curve = ParametricCurve::new(&Weibull, vec![1.5, 10.0], TimeUnit::Months).unwrap();
         let s = schedule(&[
             ["nothing", "rate", "0", "0", "1 month"],
             ["none", "at_exit", "", "0", ""],
+            ["cost", "rate", "0", "10", "1 month"],
         ]);
         let result = horizon_payoffs(&curve, &s, month(), 7, Discount::NONE);
-        for row in &result.rows {
-            assert_eq!(
-                (row.total, row.rel_error, row.disc_rel_error),
-                (0.0, 0.0, 0.0)
-            );
+        for row in result.rows.iter().filter(|r| r.payoff != "cost") {
+            assert_eq!((row.total, row.exact, row.error), (0.0, 0.0, 0.0));
+            assert_eq!((row.rel_error, row.disc_rel_error), (None, None));
         }
+        for row in result.rows.iter().filter(|r| r.payoff == "cost") {
+            let rel = row.rel_error.unwrap();
+            assert_eq!(rel, row.error / row.exact);
+            assert!(rel.is_finite() && row.disc_rel_error.unwrap().is_finite());
+        }
+        // Missing is written as JSON null.
+        let json = serde_json::to_value(&result.rows[0]).unwrap();
+        assert_eq!(json["rel_error"], serde_json::Value::Null);
         assert!(result
             .truncation
             .iter()
+            .filter(|(c, _)| !c.ends_with("cost"))
             .all(|(_, e)| e.iter().all(|x| *x == 0.0)));
-        assert_eq!(relative(1.0, 0.0), f64::INFINITY);
-        assert_eq!(relative(-2.0, -4.0), -0.5);
+        assert_eq!(relative(1.0, 0.0), None);
+        assert_eq!(relative(0.0, 0.0), None);
+        assert_eq!(relative(-2.0, -4.0), Some(-0.5));
     }
 
     #[test]

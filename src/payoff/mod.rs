@@ -20,4 +20,4 @@ pub use horizon::{
 };
 pub use integral::Exactness;
 pub use schedule::{Payoff, PayoffColumns, PayoffRow, RatePiece, Schedule};
-pub use tunnel::{tunnel_payoffs, TunnelPayoffs};
+pub use tunnel::{single_tunnel_entry_warning, tunnel_payoffs, TunnelPayoffs};

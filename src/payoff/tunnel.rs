@@ -27,6 +27,9 @@ pub struct TunnelPayoffs {
     pub discount: Discount,
     /// How the integrals were computed.
     pub exactness: Exactness,
+    /// One line each, for commands to print (`warning: …`) and record as `warning` metadata:
+    /// an entry amount in a chain of one tunnel ([`single_tunnel_entry_warning`]).
+    pub warnings: Vec<String>,
 }
 
 impl TunnelPayoffs {
@@ -111,7 +114,29 @@ pub fn tunnel_payoffs(
         values,
         discount,
         exactness: integrator.exactness(),
+        warnings: single_tunnel_entry_warning(schedule, count)
+            .into_iter()
+            .collect(),
     }
+}
+
+/// With a chain of one tunnel, the payoffs with a non-zero `at_entry` amount carry it in tunnel
+/// 1's payoff, and a cohort engine that keeps people in tunnel 1 cycle after cycle counts it in
+/// every cycle, not once: a warning naming them; `None` otherwise.
+pub fn single_tunnel_entry_warning(schedule: &Schedule, count: usize) -> Option<String> {
+    let names: Vec<String> = schedule
+        .payoffs
+        .iter()
+        .filter(|p| p.at_entry.is_some_and(|a| a != 0.0))
+        .map(|p| format!("payoff_{}", p.name))
+        .collect();
+    if count != 1 || names.is_empty() {
+        return None;
+    }
+    Some(format!(
+        "the chain has 1 tunnel state and {} include(s) an at_entry amount: a cohort engine that keeps people in tunnel 1 counts it in every cycle, not once; use 2 or more tunnel states, or count the entry amount outside the tunnel table",
+        names.join(", ")
+    ))
 }
 
 /// The rate of a payoff (pieces as (start, rate)) on a piece [a, b] lying between two changes:
@@ -236,6 +261,27 @@ mod tests {
         for (k, row) in table.rows.iter().enumerate() {
             assert!((t.values[0][k] - 2.0 * row.p_exit).abs() < 1e-14);
         }
+    }
+
+    #[test]
+    fn an_entry_amount_in_a_chain_of_one_tunnel_is_warned_about() {
+        let curve = ParametricCurve::new(&Exponential, vec![0.1], TimeUnit::Months).unwrap();
+        let s = schedule(&[
+            ["cost", "rate", "0", "5", "1 month"],
+            ["cost", "at_entry", "", "1500", ""],
+            ["care", "rate", "0", "5", "1 month"],
+            ["none", "at_entry", "", "0", ""],
+        ]);
+        let one = tunnel_payoffs(&curve, &s, months(1.0), 1, Discount::NONE);
+        assert_eq!(one.warnings.len(), 1);
+        let w = &one.warnings[0];
+        assert!(w.contains("1 tunnel state and payoff_cost include"), "{w}");
+        assert!(!w.contains("payoff_none") && !w.contains('\n'), "{w}");
+        assert!(tunnel_payoffs(&curve, &s, months(1.0), 2, Discount::NONE)
+            .warnings
+            .is_empty());
+        let without = schedule(&[["care", "rate", "0", "5", "1 month"]]);
+        assert!(single_tunnel_entry_warning(&without, 1).is_none());
     }
 
     #[test]
