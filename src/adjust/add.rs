@@ -9,7 +9,7 @@
 //! may be unbounded near 0. The causes therefore sum to `p_exit` to rounding.
 
 use super::background::BackgroundHazard;
-use crate::curve::Curve;
+use crate::curve::{Curve, PiecewiseHazard};
 use crate::discretise::exit_probability;
 use crate::numeric::integrate;
 use crate::units::TimeUnit;
@@ -87,6 +87,11 @@ impl Curve for AddedCurve {
             self.background.start_age
         )
     }
+    /// The sum of the disease curve's pieces and the background's year-of-age pieces.
+    fn piecewise_hazard(&self, until: f64) -> Option<PiecewiseHazard> {
+        let disease = self.disease.piecewise_hazard(until)?;
+        Some(disease.merged(&self.background.piecewise(until), |d, b| d + b))
+    }
 }
 
 #[cfg(test)]
@@ -146,6 +151,46 @@ mod tests {
             );
             assert!((disease.1[i] + bg.1[i] - row.p_exit).abs() < 1e-12);
         }
+    }
+
+    #[test]
+    fn hazard_pieces_are_the_disease_rate_plus_each_year_of_age() {
+        // Exponential 0.015 a month plus -ln(1 - qx)/12 a month within each year of age (the
+        // interface's background rule), entry at 50.25: birthdays 9, 21 and 33 months after
+        // entry; past the table's last age its hazard is held.
+        let h_d = 0.015;
+        let curve = AddedCurve {
+            disease: Box::new(
+                ParametricCurve::new(&Exponential, vec![h_d], TimeUnit::Months).unwrap(),
+            ),
+            background: background(
+                "age,qx\n50,0.04\n51,0.05\n52,0.07\n",
+                50.25,
+                TimeUnit::Months,
+            ),
+        };
+        let pieces = curve.piecewise_hazard(40.0).unwrap();
+        let month = |q: f64| -(-q).ln_1p() / 12.0;
+        assert_eq!(pieces.cuts.len(), 3);
+        for (got, want) in pieces.cuts.iter().zip([9.0, 21.0, 33.0]) {
+            assert!((got - want).abs() < 1e-12, "{got} vs {want}");
+        }
+        let expected = [0.04, 0.05, 0.07, 0.07].map(|q| h_d + month(q));
+        for (got, want) in pieces.rates.iter().zip(expected) {
+            assert!((got - want).abs() < 1e-15, "{got} vs {want}");
+        }
+        for i in 0..=80 {
+            let t = 0.5 * i as f64;
+            let (a, b) = (pieces.cumulative(t), -curve.log_survival(t));
+            assert!((a - b).abs() <= 1e-14 * b.max(1.0), "t {t}: {a} vs {b}");
+        }
+        let weibull = AddedCurve {
+            disease: Box::new(
+                ParametricCurve::new(&Weibull, vec![0.7, 9.0], TimeUnit::Months).unwrap(),
+            ),
+            background: curve.background.clone(),
+        };
+        assert!(weibull.piecewise_hazard(40.0).is_none());
     }
 
     #[test]

@@ -8,6 +8,7 @@
 //! as a survival of 0 and an exit probability of 1, never as an infinity.
 
 use super::lifetable::LifeTable;
+use crate::curve::PiecewiseHazard;
 use crate::error::{Error, Result};
 use crate::units::TimeUnit;
 
@@ -156,6 +157,24 @@ impl BackgroundHazard {
             age += 1.0;
         }
         points
+    }
+
+    /// The hazard as constant pieces from entry to `until` (a cut at each birthday in between;
+    /// the last piece's rate continues past `until`), rates per unit of [`BackgroundHazard::unit`]
+    /// (+∞ from a closing qx = 1). Each year's rate is read by age, not by a time that rounding
+    /// could put just before its birthday.
+    pub fn piecewise(&self, until: f64) -> PiecewiseHazard {
+        let cuts = self.breakpoints(0.0, until);
+        let first_birthday = self.start_age.floor() + 1.0;
+        let rates = std::iter::once(self.start_age)
+            .chain((0..cuts.len()).map(|i| first_birthday + i as f64))
+            .map(|age| self.hazard_per_year_at_age(age) * self.years_per_unit)
+            .collect();
+        PiecewiseHazard {
+            cuts,
+            rates,
+            unit: self.unit,
+        }
     }
 
     /// Checks that the background covers times up to `t_end`: fine with `hold-last`, or when the

@@ -8,7 +8,7 @@
 //! (possibly unbounded near 0) by the bounded, smooth cumulative-hazard increment; the remaining
 //! integral is done by adaptive Gauss–Kronrod to a relative tolerance of 1e-14.
 
-use crate::curve::Curve;
+use crate::curve::{Curve, PiecewiseHazard};
 use crate::numeric::integrate_with_floor;
 use crate::units::TimeUnit;
 
@@ -32,6 +32,12 @@ impl Curve for HazardRatioCurve {
     }
     fn describe(&self) -> String {
         format!("{}, hazard ratio {}", self.base.describe(), self.ratio)
+    }
+    /// The reference's pieces with every rate times X.
+    fn piecewise_hazard(&self, until: f64) -> Option<PiecewiseHazard> {
+        let mut hazard = self.base.piecewise_hazard(until)?;
+        hazard.rates.iter_mut().for_each(|r| *r *= self.ratio);
+        Some(hazard)
     }
 }
 
@@ -59,6 +65,17 @@ impl Curve for AccelerationCurve {
             self.base.describe(),
             self.factor
         )
+    }
+    /// The reference's pieces up to `until`/X, with every cut times X and every rate divided by
+    /// X (H(t) = H₀(t/X)).
+    fn piecewise_hazard(&self, until: f64) -> Option<PiecewiseHazard> {
+        let base = self.base.piecewise_hazard(until / self.factor)?;
+        PiecewiseHazard::new(
+            base.cuts.iter().map(|c| c * self.factor).collect(),
+            base.rates.iter().map(|r| r / self.factor).collect(),
+            base.unit,
+        )
+        .ok()
     }
 }
 
@@ -184,6 +201,8 @@ impl WaningCurve {
     }
 }
 
+/// No `piecewise_hazard`: the hazard ratio varies continuously over the waning stretch, so the
+/// hazard is not piecewise constant even when the reference's is.
 impl Curve for WaningCurve {
     fn log_survival(&self, t: f64) -> f64 {
         if t <= 0.0 {
@@ -273,6 +292,50 @@ mod tests {
                 }
             }
         }
+    }
+
+    #[test]
+    fn hazard_pieces_pass_through_a_hazard_ratio_and_an_acceleration_factor_not_waning() {
+        // Piecewise exponential 0.05, 0.02, 0.04 a month, cuts at 6 and 18 months. A hazard ratio
+        // X multiplies each rate (h = X·h₀); an acceleration factor X gives S₀(t/X), whose hazard
+        // is h₀(t/X)/X: cuts at 6X and 18X, rates divided by X (definitions of the two effects).
+        let family = crate::families::Piecewise::with_cuts(&[6.0, 18.0]).unwrap();
+        let base = || curve(family, &[0.05, 0.02, 0.04]);
+        let hr = HazardRatioCurve {
+            base: base(),
+            ratio: 0.6,
+        };
+        let h = hr.piecewise_hazard(100.0).unwrap();
+        assert_eq!(h.cuts, vec![6.0, 18.0]);
+        for (got, want) in h.rates.iter().zip([0.03, 0.012, 0.024]) {
+            assert!((got - want).abs() < 1e-16, "{got} vs {want}");
+        }
+        let af = AccelerationCurve {
+            base: base(),
+            factor: 1.5,
+        };
+        let h = af.piecewise_hazard(100.0).unwrap();
+        assert_eq!(h.cuts, vec![9.0, 27.0]);
+        for (got, want) in h.rates.iter().zip([0.05 / 1.5, 0.02 / 1.5, 0.04 / 1.5]) {
+            assert!((got - want).abs() < 1e-16, "{got} vs {want}");
+        }
+        // The pieces' cumulative hazard is the curves' own -ln S.
+        for t in times() {
+            for (c, pieces) in [
+                (&hr as &dyn Curve, hr.piecewise_hazard(80.0).unwrap()),
+                (&af, af.piecewise_hazard(80.0).unwrap()),
+            ] {
+                let (a, b) = (pieces.cumulative(t), -c.log_survival(t));
+                assert!((a - b).abs() <= 1e-14 * b.max(1.0), "t {t}: {a} vs {b}");
+            }
+        }
+        let waning = WaningCurve::new(base(), 0.6, 12.0, 24.0, "12..24 months".into());
+        assert!(waning.piecewise_hazard(100.0).is_none());
+        let weibull = HazardRatioCurve {
+            base: curve(&Weibull, &[1.2, 10.0]),
+            ratio: 0.6,
+        };
+        assert!(weibull.piecewise_hazard(100.0).is_none());
     }
 
     #[test]

@@ -11,7 +11,7 @@
 //! sliver between two nearly equal hazards.
 
 use super::background::BackgroundHazard;
-use crate::curve::Curve;
+use crate::curve::{Curve, PiecewiseHazard};
 use crate::units::TimeUnit;
 
 /// Hazard samples per piece (at most one year of age) when looking for crossings.
@@ -238,6 +238,11 @@ impl Curve for FlooredCurve {
             self.background.start_age
         )
     }
+    /// The larger of the curve's pieces and the background's year-of-age pieces on each interval.
+    fn piecewise_hazard(&self, until: f64) -> Option<PiecewiseHazard> {
+        let curve = self.curve.piecewise_hazard(until)?;
+        Some(curve.merged(&self.background.piecewise(until), f64::max))
+    }
 }
 
 #[cfg(test)]
@@ -324,7 +329,17 @@ mod tests {
             assert!((row.p_exit - (1.0 - (-h * 0.5).exp())).abs() < 1e-14);
         }
         assert_eq!(t.extra[0].1, vec![0.0, 0.0, 0.0, 0.0, 1.0, 1.0, 1.0, 1.0]);
-        assert_eq!(floored.first_binding(4.0), Some(2.0));
+        assert_eq!(floored.first_binding(4.0), Some(2.0)); // As pieces: the larger of the two rates in each year of age.
+        let pieces = floored.piecewise_hazard(4.0).unwrap();
+        assert_eq!(pieces.cuts, vec![1.0, 2.0, 3.0]);
+        for (got, want) in pieces.rates.iter().zip([rate, rate, h_high, h_high]) {
+            assert!((got - want).abs() < 1e-15, "{got} vs {want}");
+        }
+        for i in 0..=40 {
+            let t = 0.1 * i as f64;
+            let (a, b) = (pieces.cumulative(t), -floored.log_survival(t));
+            assert!((a - b).abs() <= 1e-14 * b.max(1.0), "t {t}: {a} vs {b}");
+        }
     }
 
     #[test]

@@ -292,6 +292,9 @@ impl Curve for AdjustedCurve {
     fn restricted_mean(&self, horizon: f64) -> f64 {
         self.inner().restricted_mean(horizon)
     }
+    fn piecewise_hazard(&self, until: f64) -> Option<crate::curve::PiecewiseHazard> {
+        self.inner().piecewise_hazard(until)
+    }
 }
 
 /// Checked adjustment settings with the life table read once: [`Adjuster::adjust`] is the one

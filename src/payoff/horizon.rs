@@ -9,11 +9,12 @@
 //! `half-cycle` Σ_{j≤N} c_j m_j d_j with the first and last terms halved; `simpson` the same with
 //! Simpson's weights; `cycle-integrated` Σ_{j<N} m_j d_j · (tunnel j+1's payoff). One-offs:
 //! `at_entry` once at time 0 by every method; `at_exit` Σ_{j<N} (m_j - m_{j+1}) d_{j+1} · amount
-//! by every method but `cycle-integrated`, which has it exactly in the tunnel payoffs.
+//! by every method but `cycle-integrated`, which has it exactly in the tunnel payoffs. A payoff
+//! made of several parts (a rate, an entry amount, an exit amount) totals the sum of its parts.
 
 use super::discount::Discount;
-use super::integral::{CurveHint, Exactness, Integrator};
-use super::schedule::{Payoff, PayoffKind, Schedule};
+use super::integral::{Exactness, Integrator};
+use super::schedule::{Payoff, Schedule};
 use super::tunnel::{rate_on, tunnel_payoffs, TunnelPayoffs};
 use crate::curve::Curve;
 use crate::discretise::exit_probability;
@@ -76,26 +77,25 @@ pub struct PayoffMethodRow {
     pub exact: f64,
     /// `total` - `exact`.
     pub error: f64,
-    /// `error` / |`exact`| (0 when both are 0).
-    pub rel_error: f64,
+    /// `error` / |`exact`|; `None` (missing) when `exact` is 0.
+    pub rel_error: Option<f64>,
     /// Discounted total by the method.
     pub disc_total: f64,
     /// Discounted exact total.
     pub disc_exact: f64,
     /// `disc_total` - `disc_exact`.
     pub disc_error: f64,
-    /// `disc_error` / |`disc_exact`| (0 when both are 0).
-    pub disc_rel_error: f64,
+    /// `disc_error` / |`disc_exact`|; `None` (missing) when `disc_exact` is 0.
+    pub disc_rel_error: Option<f64>,
 }
 
-/// error / |exact|, signed like the error; 0 when the error is 0, ∞ when only the exact total is.
-pub fn relative(error: f64, exact: f64) -> f64 {
-    if error == 0.0 {
-        0.0
-    } else if exact == 0.0 {
-        f64::INFINITY.copysign(error)
+/// error / |exact|, signed like the error; `None` (written as missing: an empty CSV cell, JSON
+/// `null`, a blank XLSX cell) when the exact total is 0, where no relative error exists.
+pub fn relative(error: f64, exact: f64) -> Option<f64> {
+    if exact == 0.0 {
+        None
     } else {
-        error / exact.abs()
+        Some(error / exact.abs())
     }
 }
 
@@ -107,7 +107,8 @@ fn boundary_discounts(cycle: Duration, n: usize, discount: Discount) -> Vec<f64>
 }
 
 /// Total of `payoff` to the horizon by a boundary `method` (not the cycle-integrated one), from
-/// the boundary log-survival `log_s` (n + 1 values, boundaries j·cycle).
+/// the boundary log-survival `log_s` (n + 1 values, boundaries j·cycle): its rate by the method,
+/// plus its entry amount, plus its exit amount by the boundary sum.
 pub fn boundary_total(
     payoff: &Payoff,
     method: Method,
@@ -118,36 +119,36 @@ pub fn boundary_total(
     let n = log_s.len().saturating_sub(1);
     let d = boundary_discounts(cycle, n, discount);
     let m: Vec<f64> = log_s.iter().map(|l| l.exp()).collect();
-    match &payoff.kind {
-        PayoffKind::AtEntry(amount) => *amount,
-        PayoffKind::AtExit(amount) => {
-            // m_j - m_{j+1} as m_j·p_exit, so it keeps its digits when the two are close.
-            (0..n)
-                .map(|j| m[j] * exit_probability(log_s[j], log_s[j + 1]) * d[j + 1])
-                .sum::<f64>()
-                * amount
-        }
-        PayoffKind::Rate(_) => {
-            let h = cycle.value;
-            // Rate per unit of the cycle's time at each boundary: c_j = rate_j·h.
-            let rate: Vec<f64> = (0..=n)
-                .map(|j| payoff.rate_at(j as f64 * h, cycle.unit))
-                .collect();
-            match method {
-                // Boundary rules on g_j = rate_j·m_j·d_j: h·Σ w_j g_j is Σ w_j c_j m_j d_j.
-                Method::Start | Method::HalfCycle | Method::Simpson => {
-                    let g: Vec<f64> = (0..=n).map(|j| rate[j] * m[j] * d[j]).collect();
-                    integrate_boundaries(&g, h, method)
-                }
-                // These two weight each cycle's own amount c_j by memberships at its ends, so
-                // they are not boundary rules on one sequence.
-                Method::End => (0..n).map(|j| rate[j] * h * m[j + 1] * d[j + 1]).sum(),
-                Method::Trapezoid => (0..n)
-                    .map(|j| rate[j] * h * 0.5 * (m[j] * d[j] + m[j + 1] * d[j + 1]))
-                    .sum(),
-            }
-        }
+    let entry = payoff.at_entry.unwrap_or(0.0);
+    // m_j - m_{j+1} as m_j·p_exit, so it keeps its digits when the two are close.
+    let exit = payoff.at_exit.map_or(0.0, |amount| {
+        (0..n)
+            .map(|j| m[j] * exit_probability(log_s[j], log_s[j + 1]) * d[j + 1])
+            .sum::<f64>()
+            * amount
+    });
+    if payoff.rate.is_empty() {
+        return entry + exit;
     }
+    let h = cycle.value;
+    // Rate per unit of the cycle's time at each boundary: c_j = rate_j·h.
+    let rate: Vec<f64> = (0..=n)
+        .map(|j| payoff.rate_at(j as f64 * h, cycle.unit))
+        .collect();
+    let accrued = match method {
+        // Boundary rules on g_j = rate_j·m_j·d_j: h·Σ w_j g_j is Σ w_j c_j m_j d_j.
+        Method::Start | Method::HalfCycle | Method::Simpson => {
+            let g: Vec<f64> = (0..=n).map(|j| rate[j] * m[j] * d[j]).collect();
+            integrate_boundaries(&g, h, method)
+        }
+        // These two weight each cycle's own amount c_j by memberships at its ends, so
+        // they are not boundary rules on one sequence.
+        Method::End => (0..n).map(|j| rate[j] * h * m[j + 1] * d[j + 1]).sum(),
+        Method::Trapezoid => (0..n)
+            .map(|j| rate[j] * h * 0.5 * (m[j] * d[j] + m[j + 1] * d[j + 1]))
+            .sum(),
+    };
+    accrued + entry + exit
 }
 
 /// Σ_{j<n} m_j d_j · payoff of tunnel j+1: the cycle-integrated total from per-tunnel payoffs
@@ -173,33 +174,28 @@ pub fn cycle_integrated_total(
 }
 
 /// The exact totals of every payoff of `schedule` to `end` (time since entry in the curve's
-/// unit) for one person entering at 0: ∫₀^end c(t) S(t) (1+R)^-t dt for rates, the amount for
-/// `at_entry`, amount · ∫₀^end f(t) (1+R)^-t dt for `at_exit`. The integral is split at the
-/// schedule's changes and in 64 equal pieces, independently of any cycle.
+/// unit) for one person entering at 0: ∫₀^end c(t) S(t) (1+R)^-t dt for the rate, plus the
+/// `at_entry` amount, plus the `at_exit` amount · ∫₀^end f(t) (1+R)^-t dt. The integral is split at the
+/// schedule's changes and in 64 equal pieces, independently of any cycle; closed forms when
+/// the curve's hazard is piecewise constant up to `end`.
 pub fn exact_totals(
     curve: &dyn Curve,
-    hint: &CurveHint,
     schedule: &Schedule,
     end: f64,
     discount: Discount,
 ) -> (Vec<f64>, Exactness) {
     const PIECES: usize = 64;
     let unit = curve.time_unit();
-    let checks = (0..=2 * PIECES).map(|i| end * i as f64 / (2 * PIECES) as f64);
     let integrator = Integrator::new(
         curve,
-        hint,
         discount.per_unit(unit),
         &schedule.changes_in(unit),
-        checks,
+        end,
     );
     let uniform: Vec<f64> = (1..PIECES)
         .map(|i| end * i as f64 / PIECES as f64)
         .collect();
-    let want_exit = schedule
-        .payoffs
-        .iter()
-        .any(|p| matches!(p.kind, PayoffKind::AtExit(_)));
+    let want_exit = schedule.payoffs.iter().any(|p| p.at_exit.is_some());
     let window = integrator.window(
         0.0,
         end,
@@ -211,17 +207,15 @@ pub fn exact_totals(
     let totals = schedule
         .payoffs
         .iter()
-        .map(|payoff| match payoff.kind {
-            PayoffKind::Rate(_) => {
-                let pieces = payoff.rates_in(unit);
-                window
-                    .pieces
-                    .iter()
-                    .map(|&(a, b, stay)| rate_on(&pieces, a, b) * stay)
-                    .sum()
-            }
-            PayoffKind::AtEntry(amount) => amount,
-            PayoffKind::AtExit(amount) => amount * window.exit,
+        .map(|payoff| {
+            let pieces = payoff.rates_in(unit);
+            let accrued: f64 = window
+                .pieces
+                .iter()
+                .map(|&(a, b, stay)| rate_on(&pieces, a, b) * stay)
+                .sum();
+            let exit = payoff.at_exit.map_or(0.0, |amount| amount * window.exit);
+            accrued + payoff.at_entry.unwrap_or(0.0) + exit
         })
         .collect();
     (totals, integrator.exactness())
@@ -386,22 +380,21 @@ pub struct HorizonPayoffs {
 /// cycles, discounted at `discount` for the discounted columns and the truncation criterion.
 pub fn horizon_payoffs(
     curve: &dyn Curve,
-    hint: &CurveHint,
     schedule: &Schedule,
     cycle: Duration,
     n: usize,
     discount: Discount,
 ) -> HorizonPayoffs {
     let log_s = boundary_log_survival(curve, cycle, n);
-    let plain = tunnel_payoffs(curve, hint, schedule, cycle, n, Discount::NONE);
+    let plain = tunnel_payoffs(curve, schedule, cycle, n, Discount::NONE);
     let discounted = if discount == Discount::NONE {
         plain.clone()
     } else {
-        tunnel_payoffs(curve, hint, schedule, cycle, n, discount)
+        tunnel_payoffs(curve, schedule, cycle, n, discount)
     };
     let end = n as f64 * cycle.in_unit(curve.time_unit());
-    let (exact, _) = exact_totals(curve, hint, schedule, end, Discount::NONE);
-    let (disc_exact, _) = exact_totals(curve, hint, schedule, end, discount);
+    let (exact, _) = exact_totals(curve, schedule, end, Discount::NONE);
+    let (disc_exact, _) = exact_totals(curve, schedule, end, discount);
     let rows = payoff_method_rows(
         schedule,
         &log_s,
@@ -466,7 +459,7 @@ mod tests {
         ]);
         let d = Discount::annual(0.035).unwrap();
         let n = 48;
-        let result = horizon_payoffs(&curve, &CurveHint::none(), &s, month(), n, d);
+        let result = horizon_payoffs(&curve, &s, month(), n, d);
         let errors = |name: &str| {
             &result
                 .truncation
@@ -516,7 +509,7 @@ mod tests {
         let d = Discount::annual(0.06).unwrap();
         let n = 40;
         let log_s = boundary_log_survival(&curve, month(), n);
-        let per = tunnel_payoffs(&curve, &CurveHint::none(), &s, month(), n, d);
+        let per = tunnel_payoffs(&curve, &s, month(), n, d);
         let got = payoff_truncation_errors(&log_s, &per.values[0], month(), d);
         let surv: Vec<f64> = log_s.iter().map(|l| l.exp()).collect();
         let chain = |k: usize| {
@@ -540,25 +533,34 @@ mod tests {
     }
 
     #[test]
-    fn zero_payoffs_give_zero_errors_not_nan() {
+    fn zero_exact_totals_give_missing_relative_errors_not_infinities() {
         let curve = ParametricCurve::new(&Weibull, vec![1.5, 10.0], TimeUnit::Months).unwrap();
         let s = schedule(&[
             ["nothing", "rate", "0", "0", "1 month"],
             ["none", "at_exit", "", "0", ""],
+            ["cost", "rate", "0", "10", "1 month"],
         ]);
-        let result = horizon_payoffs(&curve, &CurveHint::none(), &s, month(), 7, Discount::NONE);
-        for row in &result.rows {
-            assert_eq!(
-                (row.total, row.rel_error, row.disc_rel_error),
-                (0.0, 0.0, 0.0)
-            );
+        let result = horizon_payoffs(&curve, &s, month(), 7, Discount::NONE);
+        for row in result.rows.iter().filter(|r| r.payoff != "cost") {
+            assert_eq!((row.total, row.exact, row.error), (0.0, 0.0, 0.0));
+            assert_eq!((row.rel_error, row.disc_rel_error), (None, None));
         }
+        for row in result.rows.iter().filter(|r| r.payoff == "cost") {
+            let rel = row.rel_error.unwrap();
+            assert_eq!(rel, row.error / row.exact);
+            assert!(rel.is_finite() && row.disc_rel_error.unwrap().is_finite());
+        }
+        // Missing is written as JSON null.
+        let json = serde_json::to_value(&result.rows[0]).unwrap();
+        assert_eq!(json["rel_error"], serde_json::Value::Null);
         assert!(result
             .truncation
             .iter()
+            .filter(|(c, _)| !c.ends_with("cost"))
             .all(|(_, e)| e.iter().all(|x| *x == 0.0)));
-        assert_eq!(relative(1.0, 0.0), f64::INFINITY);
-        assert_eq!(relative(-2.0, -4.0), -0.5);
+        assert_eq!(relative(1.0, 0.0), None);
+        assert_eq!(relative(0.0, 0.0), None);
+        assert_eq!(relative(-2.0, -4.0), Some(-0.5));
     }
 
     #[test]

@@ -3,7 +3,7 @@
 //!
 //! One module per concern: [`schedule`] (the checked payoff schedule, built from rows a CSV
 //! reader has split), [`discount`] (the annual rate), [`integral`] (the exact integrals: closed
-//! forms for a piecewise-constant hazard, quadrature otherwise), [`tunnel`] (payoff columns per
+//! forms when the curve's hazard is piecewise constant, quadrature otherwise), [`tunnel`] (payoff columns per
 //! tunnel state) and [`horizon`] (totals by within-cycle method against the exact integral, and
 //! the truncation criterion). Definitions and worked numbers: `docs/payoffs.md`.
 
@@ -18,6 +18,6 @@ pub use horizon::{
     horizon_payoffs, payoff_method_rows, payoff_truncation_columns, payoff_truncation_errors,
     suggested_count_with_payoffs, HorizonPayoffs, PayoffMethod, PayoffMethodRow, PAYOFF_METHODS,
 };
-pub use integral::{CurveHint, Exactness, PiecewiseHazard};
-pub use schedule::{Payoff, PayoffColumns, PayoffKind, PayoffRow, RatePiece, Schedule};
-pub use tunnel::{tunnel_payoffs, TunnelPayoffs};
+pub use integral::Exactness;
+pub use schedule::{Payoff, PayoffColumns, PayoffRow, RatePiece, Schedule};
+pub use tunnel::{single_tunnel_entry_warning, tunnel_payoffs, TunnelPayoffs};

@@ -1,7 +1,7 @@
-//! The payoff schedule: payoffs by name, each a piecewise-constant `rate` by time since entry,
-//! a one-off `at_entry` amount or a one-off `at_exit` amount, built from rows that a CSV reader
-//! has already split into fields. Every check of the payoff file happens here, once; later code
-//! trusts a [`Schedule`].
+//! The payoff schedule: payoffs by name, each made of a piecewise-constant `rate` by time since
+//! entry, a one-off `at_entry` amount and a one-off `at_exit` amount (any of the three may be
+//! absent), built from rows that a CSV reader has already split into fields. Every check of the
+//! payoff file happens here, once; later code trusts a [`Schedule`].
 
 use crate::error::{Error, Result};
 use crate::format::shown;
@@ -109,93 +109,69 @@ impl RatePiece {
     }
 }
 
-/// What a payoff is: a rate by time since entry, or a one-off amount.
-#[derive(Debug, Clone, PartialEq)]
-pub enum PayoffKind {
-    /// Accrues continuously while in the chain; pieces in increasing `from`, the first at 0.
-    Rate(Vec<RatePiece>),
-    /// Counted once, on entering tunnel 1.
-    AtEntry(f64),
-    /// Counted once, on leaving the chain by exit.
-    AtExit(f64),
-}
-
-impl PayoffKind {
-    /// The kind's name as written in the file.
-    pub fn name(&self) -> &'static str {
-        match self {
-            PayoffKind::Rate(_) => "rate",
-            PayoffKind::AtEntry(_) => "at_entry",
-            PayoffKind::AtExit(_) => "at_exit",
-        }
-    }
-}
-
-/// One named payoff.
+/// One named payoff: a rate by time since entry, an amount once on entry and an amount once on
+/// exit, each optional (a payoff file gives at least one of them). One name may combine all
+/// three, as the contract's cost of 500 a month, 1,500 on entry and 3,000 on exit does; its
+/// figures are then the sums of the parts.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Payoff {
     /// Name (letters, digits, `_`); its tunnel-table column is `payoff_NAME`.
     pub name: String,
-    /// What it is.
-    pub kind: PayoffKind,
+    /// Rate pieces, accruing continuously while in the chain: increasing `from`, the first at 0.
+    /// Empty when the payoff has no rate.
+    pub rate: Vec<RatePiece>,
+    /// Counted once, on entering tunnel 1.
+    pub at_entry: Option<f64>,
+    /// Counted once, on leaving the chain by exit.
+    pub at_exit: Option<f64>,
 }
 
 impl Payoff {
-    /// Rate per one `unit` of time at time since entry `t` (in `unit`); 0 for one-offs. A piece
+    /// Rate per one `unit` of time at time since entry `t` (in `unit`); 0 without a rate. A piece
     /// applies from its `from` on (right-continuous); a time within 1e-9 relative of a `from`
     /// counts as that time, so a cycle boundary that should fall on a change (12 monthly
     /// cycles and "1 year") is not moved to the earlier piece by rounding.
     pub fn rate_at(&self, t: f64, unit: TimeUnit) -> f64 {
-        match &self.kind {
-            PayoffKind::Rate(pieces) => pieces
-                .iter()
-                .rev()
-                .find(|p| {
-                    let from = p.from.in_unit(unit);
-                    from <= t + 1e-9 * from.max(t.abs())
-                })
-                .map_or(0.0, |p| p.rate_in(unit)),
-            _ => 0.0,
-        }
+        self.rate
+            .iter()
+            .rev()
+            .find(|p| {
+                let from = p.from.in_unit(unit);
+                from <= t + 1e-9 * from.max(t.abs())
+            })
+            .map_or(0.0, |p| p.rate_in(unit))
     }
 
     /// Starts of the rate pieces after the first, in `unit`: where the rate changes.
     pub fn changes_in(&self, unit: TimeUnit) -> Vec<f64> {
-        match &self.kind {
-            PayoffKind::Rate(pieces) => pieces
-                .iter()
-                .skip(1)
-                .map(|p| p.from.in_unit(unit))
-                .collect(),
-            _ => Vec::new(),
-        }
+        self.rate
+            .iter()
+            .skip(1)
+            .map(|p| p.from.in_unit(unit))
+            .collect()
     }
 
-    /// Pieces as (start, rate per `unit`) in `unit`, for a rate payoff; empty otherwise.
+    /// Rate pieces as (start, rate per `unit`) in `unit`; empty without a rate.
     pub fn rates_in(&self, unit: TimeUnit) -> Vec<(f64, f64)> {
-        match &self.kind {
-            PayoffKind::Rate(pieces) => pieces
-                .iter()
-                .map(|p| (p.from.in_unit(unit), p.rate_in(unit)))
-                .collect(),
-            _ => Vec::new(),
-        }
+        self.rate
+            .iter()
+            .map(|p| (p.from.in_unit(unit), p.rate_in(unit)))
+            .collect()
     }
 
-    /// The one-off amount on entry (0 unless `at_entry`).
-    pub fn at_entry(&self) -> f64 {
-        match self.kind {
-            PayoffKind::AtEntry(a) => a,
-            _ => 0.0,
+    /// The kinds this payoff has, as written in the file (`rate`, `at_entry`, `at_exit`).
+    pub fn kinds(&self) -> Vec<&'static str> {
+        let mut kinds = Vec::new();
+        if !self.rate.is_empty() {
+            kinds.push("rate");
         }
-    }
-
-    /// The one-off amount on exit (0 unless `at_exit`).
-    pub fn at_exit(&self) -> f64 {
-        match self.kind {
-            PayoffKind::AtExit(a) => a,
-            _ => 0.0,
+        if self.at_entry.is_some() {
+            kinds.push("at_entry");
         }
+        if self.at_exit.is_some() {
+            kinds.push("at_exit");
+        }
+        kinds
     }
 
     /// Name of the payoff's tunnel-table column.
@@ -233,8 +209,7 @@ impl Schedule {
                 "no payoff rows (expected a header payoff,kind,from,amount,per and one row per piece)",
             ));
         }
-        // Per payoff: its payoff, and the line of its first row and of its last rate piece.
-        let mut built: Vec<(Payoff, u64, u64)> = Vec::new();
+        let mut built: Vec<Building> = Vec::new();
         for row in rows {
             let at = |column: usize, name: &str, message: String| {
                 Error::at(file, row.line, column, name, message)
@@ -257,7 +232,14 @@ impl Schedule {
             }
             let amount = crate::input::parse_number(&row.amount)
                 .map_err(|m| at(columns.amount, "amount", format!("amount: {m}")))?;
-            let existing = built.iter().position(|(p, _, _)| p.name == name);
+            let index = match built.iter().position(|b| b.payoff.name == name) {
+                Some(i) => i,
+                None => {
+                    built.push(Building::new(name));
+                    built.len() - 1
+                }
+            };
+            let entry = &mut built[index];
             if kind != "rate" {
                 for (text, column, label) in [
                     (&row.from, columns.from, "from"),
@@ -268,36 +250,28 @@ impl Schedule {
                             column,
                             label,
                             format!(
-                                "\"{}\" given for the {kind} payoff \"{name}\"; a one-off has no `{label}` (leave it empty)",
+                                "\"{}\" given for the {kind} amount of payoff \"{name}\"; a one-off has no `{label}` (leave it empty)",
                                 shown(text.trim())
                             ),
                         ));
                     }
                 }
-                let kind_value = if kind == "at_entry" {
-                    PayoffKind::AtEntry(amount)
+                let (slot, line) = if kind == "at_entry" {
+                    (&mut entry.payoff.at_entry, &mut entry.entry_line)
                 } else {
-                    PayoffKind::AtExit(amount)
+                    (&mut entry.payoff.at_exit, &mut entry.exit_line)
                 };
-                if let Some(i) = existing {
-                    let (payoff, first_line, _) = &built[i];
-                    let message = if payoff.kind.name() == kind {
+                if let Some(first) = *line {
+                    return Err(at(
+                        columns.kind,
+                        "kind",
                         format!(
-                            "payoff \"{name}\" already has its {kind} amount (line {first_line}); a one-off payoff has one row"
-                        )
-                    } else {
-                        two_kinds(name, payoff.kind.name(), *first_line, kind)
-                    };
-                    return Err(at(columns.kind, "kind", message));
+                            "payoff \"{name}\" already has its {kind} amount (line {first}); a payoff has at most one {kind} row (add the amounts, or give this one its own name)"
+                        ),
+                    ));
                 }
-                built.push((
-                    Payoff {
-                        name: name.to_string(),
-                        kind: kind_value,
-                    },
-                    row.line,
-                    row.line,
-                ));
+                *slot = Some(amount);
+                *line = Some(row.line);
                 continue;
             }
             // A rate piece.
@@ -306,7 +280,7 @@ impl Schedule {
                 return Err(at(
                     columns.per,
                     "per",
-                    format!("the rate payoff \"{name}\" needs `per`, the duration its amount is per (e.g. \"1 month\", \"1 year\")"),
+                    format!("the rate of payoff \"{name}\" needs `per`, the duration its amount is per (e.g. \"1 month\", \"1 year\")"),
                 ));
             }
             let per: Duration = row
@@ -314,36 +288,9 @@ impl Schedule {
                 .parse()
                 .map_err(|m: String| at(columns.per, "per", format!("per: {m}")))?;
             let piece = RatePiece { from, amount, per };
-            match existing {
-                None => {
-                    if from.value != 0.0 {
-                        return Err(at(
-                            columns.from,
-                            "from",
-                            format!(
-                                "the first piece of the rate payoff \"{name}\" starts at {from}; it must start at 0 (time since entry)"
-                            ),
-                        ));
-                    }
-                    built.push((
-                        Payoff {
-                            name: name.to_string(),
-                            kind: PayoffKind::Rate(vec![piece]),
-                        },
-                        row.line,
-                        row.line,
-                    ));
-                }
-                Some(i) => {
-                    let (payoff, first_line, last_line) = &mut built[i];
-                    let PayoffKind::Rate(pieces) = &mut payoff.kind else {
-                        return Err(at(
-                            columns.kind,
-                            "kind",
-                            two_kinds(name, payoff.kind.name(), *first_line, "rate"),
-                        ));
-                    };
-                    let previous = pieces.last().map_or(Offset::ZERO, |p| p.from);
+            match (entry.payoff.rate.last(), entry.rate_line) {
+                (Some(previous), Some(last_line)) => {
+                    let previous = previous.from;
                     let (a, b) = (
                         previous.in_unit(TimeUnit::Days),
                         from.in_unit(TimeUnit::Days),
@@ -353,7 +300,7 @@ impl Schedule {
                             columns.from,
                             "from",
                             format!(
-                                "the rate payoff \"{name}\" already has a piece from {previous} (line {last_line}); each piece needs its own start"
+                                "the rate of payoff \"{name}\" already has a piece from {previous} (line {last_line}); each piece needs its own start"
                             ),
                         ));
                     }
@@ -362,26 +309,54 @@ impl Schedule {
                             columns.from,
                             "from",
                             format!(
-                                "the pieces of the rate payoff \"{name}\" must be in increasing `from`: {from} comes after {previous} (line {last_line})"
+                                "the rate pieces of payoff \"{name}\" must be in increasing `from`: {from} comes after {previous} (line {last_line})"
                             ),
                         ));
                     }
-                    pieces.push(piece);
-                    *last_line = row.line;
+                }
+                _ => {
+                    if from.value != 0.0 {
+                        return Err(at(
+                            columns.from,
+                            "from",
+                            format!(
+                                "the first rate piece of payoff \"{name}\" starts at {from}; it must start at 0 (time since entry)"
+                            ),
+                        ));
+                    }
                 }
             }
+            entry.payoff.rate.push(piece);
+            entry.rate_line = Some(row.line);
         }
         Ok(Schedule {
-            payoffs: built.into_iter().map(|(p, _, _)| p).collect(),
+            payoffs: built.into_iter().map(|b| b.payoff).collect(),
         })
     }
 }
 
-/// The message for a payoff name used with a second kind.
-fn two_kinds(name: &str, first: &str, first_line: u64, second: &str) -> String {
-    format!(
-        "payoff \"{name}\" is {first} (line {first_line}) and cannot also be {second}; give the {second} amount its own name, e.g. \"{name}_{second}\""
-    )
+/// A payoff being read, with the lines of its last rate piece and of its one-offs (for messages).
+struct Building {
+    payoff: Payoff,
+    rate_line: Option<u64>,
+    entry_line: Option<u64>,
+    exit_line: Option<u64>,
+}
+
+impl Building {
+    fn new(name: &str) -> Building {
+        Building {
+            payoff: Payoff {
+                name: name.to_string(),
+                rate: Vec::new(),
+                at_entry: None,
+                at_exit: None,
+            },
+            rate_line: None,
+            entry_line: None,
+            exit_line: None,
+        }
+    }
 }
 
 /// Checks a payoff name: non-empty, ASCII letters, digits and `_` only (it becomes a column name).
@@ -444,13 +419,15 @@ mod tests {
         }
     }
 
-    /// The contract's example rows (interface.md, "Payoffs by time since entry").
+    /// The contract's example (interface.md, "Payoffs by time since entry"): one payoff `cost`
+    /// of 500 a month in the first year then 50 a month, 1,500 on entry and 3,000 on exit; one
+    /// payoff `utility` of 0.6 a year for the first month then 0.8.
     fn example() -> Vec<PayoffRow> {
         vec![
             row(2, ["cost", "rate", "0", "500", "1 month"]),
             row(3, ["cost", "rate", "1 year", "50", "1 month"]),
-            row(4, ["entry_cost", "at_entry", "", "1500", ""]),
-            row(5, ["exit_cost", "at_exit", "", "3000", ""]),
+            row(4, ["cost", "at_entry", "", "1500", ""]),
+            row(5, ["cost", "at_exit", "", "3000", ""]),
             row(6, ["utility", "rate", "0", "0.6", "1 year"]),
             row(7, ["utility", "rate", "1 month", "0.8", "1 year"]),
         ]
@@ -463,24 +440,48 @@ mod tests {
     }
 
     #[test]
-    fn contract_example_builds_with_rates_per_unit_of_time() {
+    fn contract_example_builds_two_payoffs_with_rates_per_unit_of_time() {
         let s = Schedule::from_rows("payoffs.csv", &PayoffColumns::default(), &example()).unwrap();
         let names: Vec<&str> = s.payoffs.iter().map(|p| p.name.as_str()).collect();
-        assert_eq!(names, ["cost", "entry_cost", "exit_cost", "utility"]);
+        assert_eq!(names, ["cost", "utility"]);
         let cost = &s.payoffs[0];
+        assert_eq!(cost.kinds(), ["rate", "at_entry", "at_exit"]);
         // 500 a month is 500·12/365.25 a day (a month is a twelfth of 365.25 days: interface.md).
         assert!((cost.rate_at(0.0, TimeUnit::Days) - 500.0 * 12.0 / 365.25).abs() < 1e-12);
         assert_eq!(cost.rate_at(11.999, TimeUnit::Months), 500.0);
         assert_eq!(cost.rate_at(12.0, TimeUnit::Months), 50.0);
         assert_eq!(cost.changes_in(TimeUnit::Years), vec![1.0]);
-        let utility = &s.payoffs[3];
+        assert_eq!((cost.at_entry, cost.at_exit), (Some(1500.0), Some(3000.0)));
+        assert_eq!(cost.column(), "payoff_cost");
+        let utility = &s.payoffs[1];
+        assert_eq!(utility.kinds(), ["rate"]);
+        assert_eq!((utility.at_entry, utility.at_exit), (None, None));
         // 0.6 a year is 0.05 a month; from 1 month, 0.8 a year.
         assert!((utility.rate_at(0.5, TimeUnit::Months) - 0.05).abs() < 1e-15);
         assert!((utility.rate_at(1.0, TimeUnit::Months) - 0.8 / 12.0).abs() < 1e-15);
-        assert_eq!(s.payoffs[1].at_entry(), 1500.0);
-        assert_eq!(s.payoffs[2].at_exit(), 3000.0);
-        assert_eq!(s.payoffs[2].column(), "payoff_exit_cost");
         assert_eq!(s.changes_in(TimeUnit::Months), vec![1.0, 12.0]);
+    }
+
+    #[test]
+    fn parts_of_one_payoff_may_come_in_any_order() {
+        // One-offs before, between and after the rate pieces: the same payoff as the example's.
+        let rows = vec![
+            row(2, ["cost", "at_exit", "", "3000", ""]),
+            row(3, ["utility", "rate", "0", "0.6", "1 year"]),
+            row(4, ["cost", "rate", "0", "500", "1 month"]),
+            row(5, ["cost", "at_entry", "", "1500", ""]),
+            row(6, ["cost", "rate", "1 year", "50", "1 month"]),
+            row(7, ["utility", "rate", "1 month", "0.8", "1 year"]),
+        ];
+        let s = Schedule::from_rows("payoffs.csv", &PayoffColumns::default(), &rows).unwrap();
+        let example =
+            Schedule::from_rows("payoffs.csv", &PayoffColumns::default(), &example()).unwrap();
+        assert_eq!(s, example);
+        // One-offs alone make a payoff without a rate.
+        let rows = vec![row(2, ["death", "at_exit", "", "-20", ""])];
+        let s = Schedule::from_rows("f", &PayoffColumns::default(), &rows).unwrap();
+        assert!(s.payoffs[0].rate.is_empty() && s.payoffs[0].rate_at(3.0, TimeUnit::Days) == 0.0);
+        assert_eq!(s.payoffs[0].kinds(), ["at_exit"]);
     }
 
     #[test]
@@ -607,27 +608,30 @@ mod tests {
             ),
             (
                 vec![
-                    row(2, ["c", "rate", "0", "5", "1 month"]),
-                    row(3, ["c", "at_exit", "", "5", ""]),
+                    row(2, ["c", "at_entry", "", "5", ""]),
+                    row(3, ["c", "rate", "2 months", "5", "1 month"]),
                 ],
-                "line 3 column 2",
-                "is rate (line 2) and cannot also be at_exit",
+                "line 3 column 3",
+                "first rate piece of payoff \"c\" starts at 2 months",
             ),
             (
                 vec![
                     row(2, ["c", "at_entry", "", "5", ""]),
                     row(3, ["c", "rate", "0", "5", "1 month"]),
+                    row(5, ["c", "at_entry", "", "5", ""]),
                 ],
-                "line 3 column 2",
-                "is at_entry (line 2) and cannot also be rate",
+                "line 5 column 2 (\"kind\")",
+                "already has its at_entry amount (line 2)",
             ),
             (
                 vec![
-                    row(2, ["c", "at_entry", "", "5", ""]),
-                    row(5, ["c", "at_entry", "", "5", ""]),
+                    row(2, ["c", "rate", "0", "5", "1 month"]),
+                    row(4, ["c", "at_exit", "", "5", ""]),
+                    row(6, ["d", "at_exit", "", "5", ""]),
+                    row(9, ["c", "at_exit", "", "7", ""]),
                 ],
-                "line 5 column 2",
-                "already has its at_entry amount (line 2)",
+                "line 9 column 2 (\"kind\")",
+                "already has its at_exit amount (line 4)",
             ),
         ];
         for (rows, place, words) in cases {

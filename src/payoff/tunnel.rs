@@ -5,12 +5,12 @@
 //!   + `at_entry` (tunnel 1 only)
 //!   + `at_exit` · ∫ f(u)/S(t_start) (1+R)^-(u - t_start) du over the cycle,
 //!
-//! discounted within the cycle only. A cohort engine multiplies it by the membership at the start
+//! each term only for a payoff that has that part, discounted within the cycle only. A cohort engine multiplies it by the membership at the start
 //! of the cycle (and its own discount factor for that time): no within-cycle correction is needed.
 
 use super::discount::Discount;
-use super::integral::{CurveHint, Exactness, Integrator};
-use super::schedule::{PayoffKind, Schedule};
+use super::integral::{Exactness, Integrator};
+use super::schedule::Schedule;
 use crate::curve::Curve;
 use crate::discretise::TunnelTable;
 use crate::units::Duration;
@@ -27,6 +27,9 @@ pub struct TunnelPayoffs {
     pub discount: Discount,
     /// How the integrals were computed.
     pub exactness: Exactness,
+    /// One line each, for commands to print (`warning: …`) and record as `warning` metadata:
+    /// an entry amount in a chain of one tunnel ([`single_tunnel_entry_warning`]).
+    pub warnings: Vec<String>,
 }
 
 impl TunnelPayoffs {
@@ -49,10 +52,11 @@ impl TunnelPayoffs {
 }
 
 /// The payoffs of `schedule` for `count` tunnel states of length `cycle` on `curve`, discounted
-/// within each cycle at `discount` (from the cycle's start).
+/// within each cycle at `discount` (from the cycle's start): closed forms when the curve's hazard
+/// is piecewise constant over the `count` cycles ([`Curve::piecewise_hazard`]), quadrature
+/// otherwise.
 pub fn tunnel_payoffs(
     curve: &dyn Curve,
-    hint: &CurveHint,
     schedule: &Schedule,
     cycle: Duration,
     count: usize,
@@ -63,16 +67,12 @@ pub fn tunnel_payoffs(
     let bound = |k: usize| k as f64 * h;
     let integrator = Integrator::new(
         curve,
-        hint,
         discount.per_unit(unit),
         &schedule.changes_in(unit),
-        (0..=2 * count).map(|i| 0.5 * i as f64 * h),
+        bound(count),
     );
     let rates: Vec<Vec<(f64, f64)>> = schedule.payoffs.iter().map(|p| p.rates_in(unit)).collect();
-    let want_exit = schedule
-        .payoffs
-        .iter()
-        .any(|p| matches!(p.kind, PayoffKind::AtExit(_)));
+    let want_exit = schedule.payoffs.iter().any(|p| p.at_exit.is_some());
     let per_tunnel: Vec<Vec<f64>> = (1..=count)
         .into_par_iter()
         .map(|k| {
@@ -89,20 +89,19 @@ pub fn tunnel_payoffs(
                 .payoffs
                 .iter()
                 .zip(&rates)
-                .map(|(payoff, pieces)| match payoff.kind {
-                    PayoffKind::Rate(_) => window
+                .map(|(payoff, pieces)| {
+                    let rate: f64 = window
                         .pieces
                         .iter()
                         .map(|&(a, b, stay)| rate_on(pieces, a, b) * stay)
-                        .sum(),
-                    PayoffKind::AtEntry(amount) => {
-                        if k == 1 {
-                            amount
-                        } else {
-                            0.0
-                        }
-                    }
-                    PayoffKind::AtExit(amount) => amount * window.exit,
+                        .sum();
+                    let entry = if k == 1 {
+                        payoff.at_entry.unwrap_or(0.0)
+                    } else {
+                        0.0
+                    };
+                    let exit = payoff.at_exit.map_or(0.0, |amount| amount * window.exit);
+                    rate + entry + exit
                 })
                 .collect()
         })
@@ -115,7 +114,29 @@ pub fn tunnel_payoffs(
         values,
         discount,
         exactness: integrator.exactness(),
+        warnings: single_tunnel_entry_warning(schedule, count)
+            .into_iter()
+            .collect(),
     }
+}
+
+/// With a chain of one tunnel, the payoffs with a non-zero `at_entry` amount carry it in tunnel
+/// 1's payoff, and a cohort engine that keeps people in tunnel 1 cycle after cycle counts it in
+/// every cycle, not once: a warning naming them; `None` otherwise.
+pub fn single_tunnel_entry_warning(schedule: &Schedule, count: usize) -> Option<String> {
+    let names: Vec<String> = schedule
+        .payoffs
+        .iter()
+        .filter(|p| p.at_entry.is_some_and(|a| a != 0.0))
+        .map(|p| format!("payoff_{}", p.name))
+        .collect();
+    if count != 1 || names.is_empty() {
+        return None;
+    }
+    Some(format!(
+        "the chain has 1 tunnel state and {} include(s) an at_entry amount: a cohort engine that keeps people in tunnel 1 counts it in every cycle, not once; use 2 or more tunnel states, or count the entry amount outside the tunnel table",
+        names.join(", ")
+    ))
 }
 
 /// The rate of a payoff (pieces as (start, rate)) on a piece [a, b] lying between two changes:
@@ -135,6 +156,7 @@ mod tests {
     use crate::curve::ParametricCurve;
     use crate::discretise::tunnel_table;
     use crate::families::{Exponential, Weibull};
+    use crate::payoff::integral::Opaque;
     use crate::payoff::schedule::{PayoffColumns, PayoffRow};
     use crate::units::TimeUnit;
 
@@ -171,18 +193,34 @@ mod tests {
             ["drug", "rate", "0", "120", "1 month"],
             ["death", "at_exit", "", "3000", ""],
             ["start", "at_entry", "", "1500", ""],
+            ["all", "at_exit", "", "3000", ""],
+            ["all", "rate", "0", "120", "1 month"],
+            ["all", "at_entry", "", "1500", ""],
         ]);
         let d = Discount::annual(0.035).unwrap();
         let (lambda, delta, width) = (0.5, 0.035f64.ln_1p(), 0.25);
         let common = -(-(lambda + delta) * width).exp_m1() / (lambda + delta);
-        for hint in [CurveHint::of_parametric(&curve), CurveHint::none()] {
-            let t = tunnel_payoffs(&curve, &hint, &s, months(3.0), 12, d);
-            assert_eq!(t.columns, ["payoff_drug", "payoff_death", "payoff_start"]);
+        let opaque = Opaque(&curve);
+        let routes: [(&dyn Curve, Exactness); 2] = [
+            (&curve, Exactness::ClosedForm),
+            (&opaque, Exactness::Quadrature),
+        ];
+        for (route, exactness) in routes {
+            let t = tunnel_payoffs(route, &s, months(3.0), 12, d);
+            assert_eq!(t.exactness, exactness);
+            assert_eq!(
+                t.columns,
+                ["payoff_drug", "payoff_death", "payoff_start", "payoff_all"]
+            );
             for k in 0..12 {
                 assert!((t.values[0][k] - 1440.0 * common).abs() < 1e-10 * 1440.0 * common);
                 let exit = 3000.0 * lambda * common;
                 assert!((t.values[1][k] - exit).abs() < 1e-10 * exit);
-                assert_eq!(t.values[2][k], if k == 0 { 1500.0 } else { 0.0 });
+                let entry = if k == 0 { 1500.0 } else { 0.0 };
+                assert_eq!(t.values[2][k], entry);
+                // One payoff with all three parts: the sum of the three closed forms.
+                let all = 1440.0 * common + exit + entry;
+                assert!((t.values[3][k] - all).abs() < 1e-10 * all);
             }
         }
     }
@@ -197,7 +235,8 @@ mod tests {
             ["x", "at_exit", "", "1", ""],
         ]);
         let d = Discount::annual(0.5).unwrap();
-        let t = tunnel_payoffs(&curve, &CurveHint::none(), &s, months(1.0), 400, d);
+        // By quadrature: the closed form would not test the tail's digits.
+        let t = tunnel_payoffs(&Opaque(&curve), &s, months(1.0), 400, d);
         let delta = 0.5f64.ln_1p() / 12.0;
         let stay = -(-(3.0 + delta)).exp_m1() / (3.0 + delta);
         assert!(curve.survival(399.0) == 0.0);
@@ -217,14 +256,7 @@ mod tests {
         // probability; discretise.rs), for a hazard unbounded at 0 (Weibull shape 0.6) too.
         let curve = ParametricCurve::new(&Weibull, vec![0.6, 30.0], TimeUnit::Months).unwrap();
         let s = schedule(&[["x", "at_exit", "", "2", ""]]);
-        let t = tunnel_payoffs(
-            &curve,
-            &CurveHint::none(),
-            &s,
-            months(1.0),
-            30,
-            Discount::NONE,
-        );
+        let t = tunnel_payoffs(&curve, &s, months(1.0), 30, Discount::NONE);
         let table = tunnel_table(&curve, months(1.0), 30);
         for (k, row) in table.rows.iter().enumerate() {
             assert!((t.values[0][k] - 2.0 * row.p_exit).abs() < 1e-14);
@@ -232,18 +264,32 @@ mod tests {
     }
 
     #[test]
+    fn an_entry_amount_in_a_chain_of_one_tunnel_is_warned_about() {
+        let curve = ParametricCurve::new(&Exponential, vec![0.1], TimeUnit::Months).unwrap();
+        let s = schedule(&[
+            ["cost", "rate", "0", "5", "1 month"],
+            ["cost", "at_entry", "", "1500", ""],
+            ["care", "rate", "0", "5", "1 month"],
+            ["none", "at_entry", "", "0", ""],
+        ]);
+        let one = tunnel_payoffs(&curve, &s, months(1.0), 1, Discount::NONE);
+        assert_eq!(one.warnings.len(), 1);
+        let w = &one.warnings[0];
+        assert!(w.contains("1 tunnel state and payoff_cost include"), "{w}");
+        assert!(!w.contains("payoff_none") && !w.contains('\n'), "{w}");
+        assert!(tunnel_payoffs(&curve, &s, months(1.0), 2, Discount::NONE)
+            .warnings
+            .is_empty());
+        let without = schedule(&[["care", "rate", "0", "5", "1 month"]]);
+        assert!(single_tunnel_entry_warning(&without, 1).is_none());
+    }
+
+    #[test]
     fn payoff_columns_travel_with_the_table() {
         let curve = ParametricCurve::new(&Weibull, vec![1.3, 15.0], TimeUnit::Months).unwrap();
         let s = schedule(&[["cost", "rate", "0", "500", "1 month"]]);
         let mut table = tunnel_table(&curve, months(1.0), 5);
-        let t = tunnel_payoffs(
-            &curve,
-            &CurveHint::none(),
-            &s,
-            months(1.0),
-            5,
-            Discount::NONE,
-        );
+        let t = tunnel_payoffs(&curve, &s, months(1.0), 5, Discount::NONE);
         t.append_to(&mut table);
         let long = crate::export::tunnel::long_table(&table);
         assert_eq!(long.columns.last().unwrap(), "payoff_cost");

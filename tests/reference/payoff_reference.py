@@ -8,18 +8,20 @@ independently of tunnelcast's code:
         rate     : integral of c(u) S(u)/S(t0) (1+R)^-(u - t0) du over [t0, t1]
         at_entry : the amount in tunnel 1, 0 elsewhere
         at_exit  : amount * integral of f(u)/S(t0) (1+R)^-(u - t0) du over [t0, t1]
-    by mpmath.quad (tanh-sinh) at 30 digits, on the density itself (tunnelcast integrates the
+    a payoff's value being the sum of the parts it has, by mpmath.quad (tanh-sinh) at 30 digits, on the density itself (tunnelcast integrates the
     exit term by parts instead), split where the rate changes;
   * the horizon methods (start, end, half-cycle, trapezoid, simpson with the 3/8 rule on the
-    last three cycles when N is odd, cycle-integrated), written out as the contract's sums;
+    last three cycles when N is odd, cycle-integrated), written out as the contract's sums
+    (a rate by the method's rule, plus the entry amount, plus the exit amount's boundary sum);
   * the exact totals, integral over [0, N h] of c(t) S(t) (1+R)^-t dt (and of f(t)(1+R)^-t for
     at_exit) in one quadrature split at the rate changes;
   * the truncation criterion: the chain cut at K tunnels pushed cycle by cycle (the last tunnel
     repeating its probability and its payoff), against the uncut chain.
 
-The payoff rows are the contract's example (500 a month in the first year then 50 a month;
-1,500 on entry; 3,000 on exit; a utility of 0.6 a year for the first month then 0.8) plus an
-invented cost concentrated in the first month (2,000 for that month only).
+The payoff rows are the contract's example, two payoffs: `cost` (500 a month in the first year
+then 50 a month, 1,500 on entry and 3,000 on exit, all one payoff) and `utility` (0.6 a year for
+the first month then 0.8); plus an invented cost concentrated in the first month, `induction`
+(2,000 for that month only).
 
 Needs mpmath (pip install mpmath). Run from the repository root:
     python3 tests/reference/payoff_reference.py
@@ -39,8 +41,8 @@ DAYS = {"day": mp.mpf(1), "week": mp.mpf(7), "month": mp.mpf("365.25") / 12,
 ROWS = [
     ["cost", "rate", "0", "500", "1 month"],
     ["cost", "rate", "1 year", "50", "1 month"],
-    ["entry_cost", "at_entry", "", "1500", ""],
-    ["exit_cost", "at_exit", "", "3000", ""],
+    ["cost", "at_entry", "", "1500", ""],
+    ["cost", "at_exit", "", "3000", ""],
     ["utility", "rate", "0", "0.6", "1 year"],
     ["utility", "rate", "1 month", "0.8", "1 year"],
     ["induction", "rate", "0", "2000", "1 month"],
@@ -72,14 +74,17 @@ def duration(text, unit):
 
 
 def payoffs(unit):
-    """{name: (kind, data)} with rate pieces as [(from, rate per unit)] in `unit`."""
+    """{name: {"rate": [(from, rate per unit)], "at_entry": amount, "at_exit": amount}} in
+    `unit`, with only the parts a payoff has (rows of one name may combine kinds)."""
     out = {}
     for name, kind, start, amount, per in ROWS:
+        parts = out.setdefault(name, {})
         if kind == "rate":
             rate = mp.mpf(amount) / duration(per, unit)
-            out.setdefault(name, ("rate", []))[1].append((duration(start, unit), rate))
+            parts.setdefault("rate", []).append((duration(start, unit), rate))
         else:
-            out[name] = (kind, mp.mpf(amount))
+            assert kind not in parts, (name, kind)
+            parts[kind] = mp.mpf(amount)
     return out
 
 
@@ -146,13 +151,13 @@ def compute(case):
     h = duration(cycle, unit)
     years = DAYS[unit] / DAYS["year"]
     pay = payoffs(unit)
-    breaks = sorted({s for kind, data in pay.values() if kind == "rate" for s, _ in data[1:]}
+    breaks = sorted({s for parts in pay.values() for s, _ in parts.get("rate", [])[1:]}
                     | (set(PIECEWISE_CUTS) if family == "piecewise" else set()))
     discounts = {"plain": mp.mpf(0), "discounted": mp.log(1 + mp.mpf(r)) * years}
 
-    # Per-tunnel payoffs.
+    # Per-tunnel payoffs: each part the payoff has, summed.
     tunnels = {}
-    for pname, (kind, data) in pay.items():
+    for pname, parts in pay.items():
         tunnels[pname] = {}
         for label, delta in discounts.items():
             values = []
@@ -160,16 +165,18 @@ def compute(case):
                 t0, t1 = (k - 1) * h, k * h
                 ls0 = log_s(t0)
                 nodes = split(t0, t1, breaks)
-                if kind == "rate":
-                    v = sum(mp.quad(lambda u: rate_at(data, u) * mp.exp(log_s(u) - ls0
-                                                                          - delta * (u - t0)),
-                                    [a, b]) for a, b in zip(nodes, nodes[1:]))
-                elif kind == "at_entry":
-                    v = data if k == 1 else mp.mpf(0)
-                else:
-                    v = data * sum(mp.quad(lambda u: hazard(u) * mp.exp(log_s(u) - ls0
-                                                                         - delta * (u - t0)),
-                                           [a, b]) for a, b in zip(nodes, nodes[1:]))
+                v = mp.mpf(0)
+                if "rate" in parts:
+                    pieces = parts["rate"]
+                    v += sum(mp.quad(lambda u: rate_at(pieces, u) * mp.exp(log_s(u) - ls0
+                                                                            - delta * (u - t0)),
+                                     [a, b]) for a, b in zip(nodes, nodes[1:]))
+                if "at_entry" in parts and k == 1:
+                    v += parts["at_entry"]
+                if "at_exit" in parts:
+                    v += parts["at_exit"] * sum(
+                        mp.quad(lambda u: hazard(u) * mp.exp(log_s(u) - ls0 - delta * (u - t0)),
+                                [a, b]) for a, b in zip(nodes, nodes[1:]))
                 values.append(v)
             tunnels[pname][label] = values
 
@@ -178,34 +185,36 @@ def compute(case):
     m = [mp.exp(log_s(x)) for x in t]
     weights = simpson_weights(n)
     methods = {}
-    for pname, (kind, data) in pay.items():
+    for pname, parts in pay.items():
         methods[pname] = {}
         for label, delta in discounts.items():
             d = [mp.exp(-delta * x) for x in t]
-            totals = {}
-            if kind == "rate":
-                c = [rate_at(data, x) * h for x in t]
-                totals["start"] = sum(c[j] * m[j] * d[j] for j in range(n))
-                totals["end"] = sum(c[j] * m[j + 1] * d[j + 1] for j in range(n))
-                totals["trapezoid"] = sum(c[j] * (m[j] * d[j] + m[j + 1] * d[j + 1]) / 2
-                                          for j in range(n))
-                totals["half-cycle"] = sum(c[j] * m[j] * d[j] * (mp.mpf(1) / 2 if j in (0, n)
-                                                                 else 1) for j in range(n + 1))
-                totals["simpson"] = sum(weights[j] * c[j] * m[j] * d[j] for j in range(n + 1))
-                nodes = split(mp.mpf(0), t[n], breaks)
-                exact = sum(mp.quad(lambda u: rate_at(data, u) * mp.exp(log_s(u) - delta * u),
-                                    [a, b]) for a, b in zip(nodes, nodes[1:]))
-            elif kind == "at_entry":
+            totals = {method: mp.mpf(0) for method in METHODS[:5]}
+            exact = mp.mpf(0)
+            nodes = split(mp.mpf(0), t[n], breaks)
+            if "rate" in parts:
+                pieces = parts["rate"]
+                c = [rate_at(pieces, x) * h for x in t]
+                totals["start"] += sum(c[j] * m[j] * d[j] for j in range(n))
+                totals["end"] += sum(c[j] * m[j + 1] * d[j + 1] for j in range(n))
+                totals["trapezoid"] += sum(c[j] * (m[j] * d[j] + m[j + 1] * d[j + 1]) / 2
+                                           for j in range(n))
+                totals["half-cycle"] += sum(c[j] * m[j] * d[j] * (mp.mpf(1) / 2 if j in (0, n)
+                                                                  else 1) for j in range(n + 1))
+                totals["simpson"] += sum(weights[j] * c[j] * m[j] * d[j] for j in range(n + 1))
+                exact += sum(mp.quad(lambda u: rate_at(pieces, u) * mp.exp(log_s(u) - delta * u),
+                                     [a, b]) for a, b in zip(nodes, nodes[1:]))
+            if "at_entry" in parts:
                 for method in METHODS[:5]:
-                    totals[method] = data
-                exact = data
-            else:
-                boundary = data * sum((m[j] - m[j + 1]) * d[j + 1] for j in range(n))
+                    totals[method] += parts["at_entry"]
+                exact += parts["at_entry"]
+            if "at_exit" in parts:
+                amount = parts["at_exit"]
+                boundary = amount * sum((m[j] - m[j + 1]) * d[j + 1] for j in range(n))
                 for method in METHODS[:5]:
-                    totals[method] = boundary
-                nodes = split(mp.mpf(0), t[n], breaks)
-                exact = data * sum(mp.quad(lambda u: hazard(u) * mp.exp(log_s(u) - delta * u),
-                                           [a, b]) for a, b in zip(nodes, nodes[1:]))
+                    totals[method] += boundary
+                exact += amount * sum(mp.quad(lambda u: hazard(u) * mp.exp(log_s(u) - delta * u),
+                                              [a, b]) for a, b in zip(nodes, nodes[1:]))
             per_tunnel = tunnels[pname][label]
             totals["cycle-integrated"] = sum(m[j] * d[j] * per_tunnel[j] for j in range(n))
             methods[pname][label] = {"exact": exact, "totals": totals}
