@@ -235,7 +235,7 @@ impl Curve for FlooredCurve {
             self.curve.describe(),
             self.background.table.file,
             self.background.table.column,
-            self.background.start_age
+            crate::format::readable(self.background.start_age)
         )
     }
 }

@@ -15,6 +15,7 @@ pub mod lifetable;
 
 use crate::curve::{Curve, ParametricCurve};
 use crate::error::{Error, Result};
+use crate::export::number_text;
 use crate::units::{Duration, TimeUnit};
 use add::AddedCurve;
 use background::{BackgroundHazard, BeyondTable};
@@ -330,7 +331,7 @@ pub fn build(
                 family.name()
             ));
         }
-        metadata.push(("hazard_ratio".into(), ratio.to_string()));
+        metadata.push(("hazard_ratio".into(), number_text(ratio)));
         curve = match adjustments.waning {
             Some(w) => {
                 metadata.push(("waning".into(), w.to_string()));
@@ -353,7 +354,7 @@ pub fn build(
                 family.name()
             ));
         }
-        metadata.push(("acceleration_factor".into(), factor.to_string()));
+        metadata.push(("acceleration_factor".into(), number_text(factor)));
         curve = Box::new(AccelerationCurve {
             base: curve,
             factor,
@@ -365,7 +366,7 @@ pub fn build(
                 ("background_table".to_string(), table.file.clone()),
                 ("background_sha256".to_string(), table.sha256.clone()),
                 ("background_column".to_string(), table.column.clone()),
-                ("start_age".to_string(), settings.start_age.to_string()),
+                ("start_age".to_string(), number_text(settings.start_age)),
                 (
                     "background_mode".to_string(),
                     settings.mode.name().to_string(),

@@ -8,7 +8,7 @@ use crate::export::tunnel::{
     long_table, matrix_by_cause_table, matrix_table, tunnel_document, Layout,
 };
 use crate::export::{exporter_for, number_text, Cell, Table};
-use crate::format::sig;
+use crate::format::{counted, readable, sig};
 use crate::output;
 use crate::units::{Duration, TimeUnit};
 use clap::Args;
@@ -91,7 +91,7 @@ pub fn header(
     let mut metadata = vec![("tool_version".to_string(), crate::VERSION.to_string())];
     metadata.extend(curve_metadata.iter().cloned());
     metadata.extend([
-        ("cycle".to_string(), format!("{} {}", number_text(table.cycle), table.time_unit.name_for(table.cycle))),
+        ("cycle".to_string(), format!("{} {}", readable(table.cycle), table.time_unit.name_for(table.cycle))),
         ("time_unit".to_string(), table.time_unit.name().to_string()),
         ("count".to_string(), table.rows.len().to_string()),
         ("layout".to_string(), layout.name().to_string()),
@@ -118,11 +118,11 @@ fn time_text(t: f64) -> String {
 pub fn render_text(table: &TunnelTable, layout: Layout) -> String {
     let unit = table.time_unit;
     let mut out = format!(
-        "curve: {}\ncycle: {} {}; {} tunnel states; times in {unit}\n",
+        "curve: {}\ncycle: {} {}; {}; times in {unit}\n",
         table.curve,
-        number_text(table.cycle),
+        readable(table.cycle),
         unit.name_for(table.cycle),
-        table.rows.len()
+        counted(table.rows.len(), "tunnel state")
     );
     match layout {
         Layout::Long => {
@@ -349,11 +349,11 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
             let bytes = exporter.render(&document)?;
             output::write_atomic(path, &bytes)?;
             output::print(&format!(
-                "wrote {} ({} tunnel states of {} {}, {} layout, {})\n",
+                "wrote {} ({} of {} {}, {} layout, {})\n",
                 path.display(),
-                table.rows.len(),
-                number_text(table.cycle),
-                table.time_unit,
+                counted(table.rows.len(), "tunnel state"),
+                readable(table.cycle),
+                table.time_unit.name_for(table.cycle),
                 args.layout.name(),
                 exporter.extension()
             ));

@@ -30,9 +30,10 @@ fn check_cuts(cuts: &[f64]) -> Result<(), String> {
             return Err(format!("cut point {c} must be a positive time"));
         }
         if i > 0 && cuts[i - 1] >= *c {
+            let texts = crate::format::readable_all(&[cuts[i - 1], *c]);
             return Err(format!(
-                "cut points must increase: {} is followed by {c}",
-                cuts[i - 1]
+                "cut points must increase: {} is followed by {}",
+                texts[0], texts[1]
             ));
         }
     }
@@ -57,8 +58,9 @@ impl Piecewise {
             ..FamilySettings::default()
         };
         Ok(intern("piecewise", Some(settings), || {
+            // Readable bounds (a cut converted between units is not written 5.999999999999999).
             let bounds: Vec<String> = std::iter::once("0".to_string())
-                .chain(cuts.iter().map(|c| format!("{c}")))
+                .chain(crate::format::readable_all(cuts))
                 .chain(std::iter::once("inf".to_string()))
                 .collect();
             let names: Vec<String> = bounds

@@ -218,9 +218,10 @@ fn check_increasing(times: &[f64]) -> Result<(), String> {
             return Err(format!("knot {t} must be a positive time"));
         }
         if i > 0 && times[i - 1] >= *t {
+            let texts = crate::format::readable_all(&[times[i - 1], *t]);
             return Err(format!(
-                "knots must increase: {} is followed by {t}",
-                times[i - 1]
+                "knots must increase: {} is followed by {}",
+                texts[0], texts[1]
             ));
         }
     }
