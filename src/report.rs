@@ -385,9 +385,9 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
     let doc = result.tunnel_document();
     h.push_str("<section id=\"tunnels\">\n<h2>Tunnel table</h2>\n");
     h.push_str(&format!(
-        "<p>{} tunnel states of {} {} ({}). Tunnel k covers [(k−1)·cycle, k·cycle) since entry; p_exit = 1 − S(t_end)/S(t_start), with no half-cycle shift; the last tunnel repeats its own probability. Times in {}.</p>\n",
-        t.rows.len(),
-        crate::export::number_text(t.cycle),
+        "<p>{} of {} {} ({}). Tunnel k covers [(k−1)·cycle, k·cycle) since entry; p_exit = 1 − S(t_end)/S(t_start), with no half-cycle shift; the last tunnel repeats its own probability. Times in {}.</p>\n",
+        crate::format::counted(t.rows.len(), "tunnel state"),
+        crate::format::readable(t.cycle),
         t.time_unit.name_for(t.cycle),
         escape(&result.count_rule),
         t.time_unit
@@ -408,19 +408,32 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
     let doc = result.truncation_document();
     let n = result.horizon_cycles;
     h.push_str("<section id=\"truncation\">\n<h2>Truncation: how many tunnels are enough</h2>\n");
+    let window = crate::format::counted(result.stable_window, "tunnel");
+    let stable = match result.stable_count {
+        Some(k) => format!(
+            "p_exit stable from tunnel {k} (every later p_exit up to the horizon is within the tolerance, relative, of tunnel {k}'s, over at least {window} = {} years)",
+            crate::horizon::STABLE_WINDOW_YEARS
+        ),
+        None => format!(
+            "p_exit stable: not reached (no tunnel from which every later p_exit up to the horizon stays within the tolerance, relative, of its own over at least {window} = {} years)",
+            crate::horizon::STABLE_WINDOW_YEARS
+        ),
+    };
     h.push_str(&format!(
-        "<p>Horizon of the checks: {n} cycles = {} {} ({}). A chain cut at K tunnels repeats tunnel K's probability for every later cycle. <b>Suggested count: {}</b> (smallest K with max_surv_gap and ly_rel_error both ≤ {}); p_exit stable from tunnel {} (changes by at most the tolerance, relative, from one tunnel to the next). Selected rows are shown; <span class=\"file\">truncation.*</span> hold every count.</p>\n",
-        crate::export::number_text(n as f64 * t.cycle),
+        "<p>Horizon of the checks: {} = {} {} ({}). A chain cut at K tunnels repeats tunnel K's probability for every later cycle. <b>Suggested count: {}</b> (smallest K with max_surv_gap and ly_rel_error both ≤ {}); {}. Selected rows are shown; <span class=\"file\">truncation.*</span> hold every count.</p>\n",
+        crate::format::counted(n, "cycle"),
+        crate::format::readable(n as f64 * t.cycle),
         t.time_unit.name_for(n as f64 * t.cycle),
         escape(&result.horizon_rule),
         result.suggested_count,
         a.tolerance,
-        result.stable_count
+        escape(&stable)
     ));
-    let shown = shown_counts(
-        n,
-        &[result.suggested_count, result.stable_count, t.rows.len()],
-    );
+    let marked: Vec<usize> = [result.suggested_count, t.rows.len()]
+        .into_iter()
+        .chain(result.stable_count)
+        .collect();
+    let shown = shown_counts(n, &marked);
     h.push_str(&html_table("table-truncation", &doc.tables[0], |i| {
         shown.contains(&(i + 1))
     }));
@@ -435,8 +448,10 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
     let doc = result.within_cycle_document();
     h.push_str("<section id=\"within-cycle\">\n<h2>Within-cycle accuracy</h2>\n");
     h.push_str(&format!(
-        "<p>Life-years ({}) to the horizon from survival at cycle boundaries, by method, beside the exact integral of the curve; discounted at {} a year as (1 + r)^(−t) at each boundary.</p>\n",
-        t.time_unit, a.discount
+        "<p>Life-years, in years, to the horizon from survival at cycle boundaries (cycles of {} {}), by method, beside the exact integral of the curve; discounted at {} a year as (1 + r)^(−t) at each boundary. life_years, exact, error and their discounted columns are in years; rel_error columns are ratios.</p>\n",
+        crate::format::readable(t.cycle),
+        t.time_unit.name_for(t.cycle),
+        a.discount
     ));
     h.push_str(&html_table("table-within-cycle", &doc.tables[0], |_| true));
     h.push_str("</section>\n");
