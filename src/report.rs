@@ -238,7 +238,7 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
 
     // Fit comparison.
     h.push_str("<section id=\"fits\">\n<h2>Fit comparison</h2>\n");
-    h.push_str("<p>Maximum likelihood per arm; full log-likelihood; AIC = 2k − 2·loglik, BIC = k·ln(n) − 2·loglik; sorted by AIC. Parameters in the data's time unit with 95% intervals (Wald, on the estimation scale).</p>\n");
+    h.push_str("<p>Maximum likelihood per arm; full log-likelihood; AIC = 2k − 2·loglik, BIC = k·ln(n) − 2·loglik; sorted by AIC. Parameters for time in the data's unit with 95% intervals (Wald, on the estimation scale): scales in that unit, rates and the Gompertz shape per that unit, mu in ln(that unit); other shapes, sigma, q, cure fractions and spline coefficients are unitless (the chosen curve's table below gives each unit).</p>\n");
     for arm in &fits.data.arms {
         let label = arm.arm.as_deref();
         if let Some(name) = label {
@@ -347,20 +347,27 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
         .param_names()
         .iter()
         .zip(&result.curve.params)
-        .map(|(n, v)| {
+        .zip(family.param_units())
+        .map(|((n, v), kind)| {
             let (lo, hi) = c
                 .intervals
                 .get(*n)
                 .map(|[l, u]| (sig(*l, DIGITS), sig(*u, DIGITS)))
                 .unwrap_or_default();
-            vec![n.to_string(), sig(*v, DIGITS), lo, hi]
+            vec![
+                n.to_string(),
+                sig(*v, DIGITS),
+                lo,
+                hi,
+                kind.label(result.curve.unit),
+            ]
         })
         .collect();
     h.push_str(&text_table(
         "table-chosen",
-        &["parameter", "estimate", "95% lower", "95% upper"],
+        &["parameter", "estimate", "95% lower", "95% upper", "unit"],
         &rows,
-        &[false, true, true, true],
+        &[false, true, true, true, false],
     ));
     if let Some(cov) = &c.covariance {
         let rows: Vec<Vec<String>> = cov

@@ -384,6 +384,134 @@ fn horizon_life_years_are_in_years_for_monthly_and_weekly_cycles() {
     }
 }
 
+/// The `parameters` sheet of an XLSX file as (item, value, unit) rows, read with calamine.
+fn parameter_sheet(path: &Path) -> Vec<(String, calamine::Data, String)> {
+    use calamine::Reader;
+    let mut book: calamine::Xlsx<_> = calamine::open_workbook(path).unwrap();
+    let range = book.worksheet_range("parameters").unwrap();
+    range
+        .rows()
+        .skip(1)
+        .map(|r| (r[0].to_string(), r[1].clone(), r[2].to_string()))
+        .collect()
+}
+
+#[test]
+fn parameter_units_follow_what_each_parameter_measures() {
+    // Dimensional analysis (common practice): the log-normal mu is the mean of ln T, so its
+    // unit is ln(months); sigma is a pure number; the Gompertz hazard rate·e^(shape·t) makes
+    // both its parameters per unit time; spline coefficients are pure numbers (c0 an
+    // intercept on ln t) and knots are times.
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    // (curve options, expected (row, unit) pairs)
+    type Case<'a> = (&'a [&'a str], &'a [(&'a str, &'a str)]);
+    let cases: [Case; 3] = [
+        (
+            &[
+                "--family",
+                "lognormal",
+                "--param",
+                "mu=2.5",
+                "--param",
+                "sigma=0.9",
+            ],
+            &[("mu", "ln(months)"), ("sigma", "unitless")],
+        ),
+        (
+            &[
+                "--family",
+                "gompertz",
+                "--param",
+                "shape=0.02",
+                "--param",
+                "rate=0.05",
+            ],
+            &[("shape", "per month"), ("rate", "per month")],
+        ),
+        (
+            &[
+                "--family",
+                "spline-ph-1",
+                "--param",
+                "c0=-3",
+                "--param",
+                "c1=1.2",
+                "--param",
+                "c2=0.01",
+                "--knots",
+                "1 month,1 year,5 years",
+            ],
+            &[
+                ("c0", "unitless (intercept on ln t, t in months)"),
+                ("c1", "unitless"),
+                ("c2", "unitless"),
+                ("spline_scale", ""),
+                ("knot_1", "months"),
+                ("knot_2", "months"),
+                ("knot_3", "months"),
+            ],
+        ),
+    ];
+    for (curve, expected) in cases {
+        let _ = std::fs::remove_file(d.join("t.xlsx"));
+        tunnelcast(d)
+            .arg("tunnels")
+            .args(curve)
+            .args([
+                "--time-unit",
+                "months",
+                "--cycle",
+                "1 month",
+                "--count",
+                "3",
+            ])
+            .args(["--out", "t.xlsx"])
+            .assert()
+            .success();
+        let rows = parameter_sheet(&d.join("t.xlsx"));
+        for (item, unit) in expected.iter() {
+            let row = rows
+                .iter()
+                .find(|r| r.0 == *item)
+                .unwrap_or_else(|| panic!("no row {item}: {rows:?}"));
+            assert_eq!(row.2, *unit, "{item}: {rows:?}");
+        }
+        // The same units in the metadata of every format (here JSON).
+        tunnelcast(d)
+            .arg("tunnels")
+            .args(curve)
+            .args([
+                "--time-unit",
+                "months",
+                "--cycle",
+                "1 month",
+                "--count",
+                "3",
+            ])
+            .args(["--out", "t.json", "--force"])
+            .assert()
+            .success();
+        let doc: TableFile =
+            serde_json::from_slice(&std::fs::read(d.join("t.json")).unwrap()).unwrap();
+        let units = &doc.metadata["parameter_units"];
+        // Parameters only: settings rows (knots, spline scale) are not parameters.
+        let parameters = expected
+            .iter()
+            .filter(|(i, _)| !i.starts_with("knot_") && *i != "spline_scale");
+        for (item, unit) in parameters {
+            assert!(units.contains(&format!("{item}: {unit}")), "{units}");
+        }
+    }
+    // Knots given in years and months land in months at full precision: 12 and 60.
+    let rows = parameter_sheet(&d.join("t.xlsx"));
+    let knot = |i: usize| match &rows.iter().find(|r| r.0 == format!("knot_{i}")).unwrap().1 {
+        calamine::Data::Float(x) => *x,
+        other => panic!("{other:?}"),
+    };
+    assert_eq!((knot(1), knot(2), knot(3)), (1.0, 12.0, 60.0));
+}
+
 #[test]
 fn bad_cycle_count_and_horizon_are_refused() {
     let dir = tempfile::tempdir().unwrap();

@@ -210,6 +210,10 @@ impl CurveArgs {
         built
             .metadata
             .push(("parameter_time_unit".into(), built.base.unit.name().into()));
+        built.metadata.push((
+            "parameter_units".into(),
+            families::parameter_units_text(family, built.base.unit),
+        ));
         let adjustments = self.adjustments()?;
         if !adjustments.is_empty() {
             let adjusted = Arc::new(adjust::apply(built.base.clone(), &adjustments)?);

@@ -117,6 +117,10 @@ impl RunResult {
             ),
             ("parameter_time_unit".into(), self.curve.unit.name().into()),
             (
+                "parameter_units".into(),
+                crate::families::parameter_units_text(family, self.curve.unit),
+            ),
+            (
                 "cycle".into(),
                 format!(
                     "{} {}",

@@ -219,12 +219,33 @@ fn workbook_tables(
     let text = |s: &str| Cell::Text(s.to_string());
     let family = built.base.family;
     let mut rows = vec![vec![text("family"), text(family.name()), Cell::Missing]];
-    for (name, value) in family.param_names().iter().zip(&built.base.params) {
+    let unit = built.base.unit;
+    for ((name, value), kind) in family
+        .param_names()
+        .iter()
+        .zip(&built.base.params)
+        .zip(family.param_units())
+    {
         rows.push(vec![
             text(name),
             Cell::Number(*value),
-            text(built.base.unit.name()),
+            text(&kind.label(unit)),
         ]);
+    }
+    if let Some(settings) = family.settings() {
+        if let Some(scale) = &settings.scale {
+            rows.push(vec![text("spline_scale"), text(scale), Cell::Missing]);
+        }
+        let times = [("knot", settings.knots), ("cut", settings.cuts)];
+        for (what, values) in times {
+            for (i, t) in values.iter().flatten().enumerate() {
+                rows.push(vec![
+                    text(&format!("{what}_{}", i + 1)),
+                    Cell::Number(*t),
+                    text(unit.name()),
+                ]);
+            }
+        }
     }
     rows.push(vec![
         text("cycle"),

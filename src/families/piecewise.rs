@@ -3,7 +3,7 @@
 //! e.g. `rate[0,6)`, `rate[6,12)`, `rate[12,inf)`. Estimated as `ln_rate[…]`; the maximum
 //! likelihood estimate is closed-form: events / time at risk in each interval.
 
-use super::{check_positive, intern, leak_names, Family, FamilyOptions, FamilySettings};
+use super::{check_positive, intern, leak_names, Family, FamilyOptions, FamilySettings, ParamUnit};
 use crate::fit::FitData;
 
 /// Piecewise-constant hazard; proportional-hazards (a hazard ratio scales every rate).
@@ -117,6 +117,9 @@ impl Family for Piecewise {
     }
     fn param_names(&self) -> &'static [&'static str] {
         self.param_names
+    }
+    fn param_units(&self) -> Vec<ParamUnit> {
+        vec![ParamUnit::PerTime; self.param_names.len()]
     }
     fn estimation_names(&self) -> &'static [&'static str] {
         self.estimation_names
