@@ -74,6 +74,28 @@ fn cell_text(cell: &Cell) -> String {
     }
 }
 
+/// Columns of the exported tables that hold a time (in the analysis's time unit); the report
+/// writes the unit into their heading, as the printed tables do ("t_start (months)").
+const TIME_COLUMNS: [&str; 6] = [
+    "t_start",
+    "t_end",
+    "time",
+    "start",
+    "end",
+    "max_abs_diff_time",
+];
+
+/// `table` with the unit written into the heading of each time column.
+fn with_time_units(table: &Table, unit: crate::units::TimeUnit) -> Table {
+    let mut table = table.clone();
+    for c in table.columns.iter_mut() {
+        if TIME_COLUMNS.contains(&c.as_str()) {
+            *c = format!("{c} ({unit})");
+        }
+    }
+    table
+}
+
 /// An export table as an HTML table with `id`, showing the rows selected by `keep`.
 fn html_table(id: &str, table: &Table, keep: impl Fn(usize) -> bool) -> String {
     let mut out = format!("<table id=\"{}\"><thead><tr>", escape(id));
@@ -405,9 +427,11 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
             t.rows.len()
         ));
     }
-    h.push_str(&html_table("table-tunnels", &doc.tables[0], |i| {
-        i < MAX_TUNNEL_ROWS
-    }));
+    h.push_str(&html_table(
+        "table-tunnels",
+        &with_time_units(&doc.tables[0], t.time_unit),
+        |i| i < MAX_TUNNEL_ROWS,
+    ));
     h.push_str(&figure(figures, "tunnels.svg", "p_exit by tunnel state, with the suggested count and the tunnel from which p_exit is stable."));
     h.push_str("</section>\n");
 
@@ -486,7 +510,11 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
                 "<p>{} parameter draws of the chosen fit (multivariate normal on the estimation scale, from the fit's estimates and covariance; seed {}), each taken through the same adjustments to a tunnel table. p_exit per tunnel: the point estimate, the mean of the draws and their 2.5% and 97.5% percentiles (also in <code>draws_summary.*</code>).</p>\n",
                 d.count, d.seed
             ));
-            h.push_str(&html_table("table-draws", &doc.tables[0], |_| true));
+            h.push_str(&html_table(
+                "table-draws",
+                &with_time_units(&doc.tables[0], result.tunnels.time_unit),
+                |_| true,
+            ));
         }
         _ => {
             h.push_str("<p>None requested in this analysis, so no random numbers were used.</p>\n")
@@ -590,7 +618,8 @@ fn rebuild_section(result: &RunResult, figures: &[Figure]) -> Option<String> {
             continue;
         }
         let id = format!("table-{}", stem.replace('_', "-"));
-        h.push_str(&html_table(&id, &doc.tables[0], |_| true));
+        let table = with_time_units(&doc.tables[0], result.analysis.time_unit);
+        h.push_str(&html_table(&id, &table, |_| true));
     }
     h.push_str(&figure(
         figures,

@@ -259,6 +259,8 @@ fn life_years_of_a_monthly_analysis_are_in_years_in_every_output() {
     // The report's within-cycle table shows the same years, and says so.
     let html = std::fs::read_to_string(out.join("report.html")).unwrap();
     assert!(html.contains("Life-years, in years,"));
+    // Columns holding times in another unit say so in their heading.
+    assert!(html.contains("<th>t_start (months)</th><th>t_end (months)</th>"));
     let doc = roxmltree::Document::parse_with_options(
         &html,
         roxmltree::ParsingOptions {

@@ -124,7 +124,7 @@ impl RunResult {
                 "cycle".into(),
                 format!(
                     "{} {}",
-                    number_text(self.tunnels.cycle),
+                    crate::format::readable(self.tunnels.cycle),
                     self.tunnels.time_unit.name_for(self.tunnels.cycle)
                 ),
             ),
