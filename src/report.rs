@@ -432,7 +432,7 @@ pub fn render(result: &RunResult, figures: &[Figure], date: &str) -> Result<Stri
         &with_time_units(&doc.tables[0], t.time_unit),
         |i| i < MAX_TUNNEL_ROWS,
     ));
-    h.push_str(&figure(figures, "tunnels.svg", "p_exit by tunnel state, with the suggested count and the tunnel from which p_exit is stable."));
+    h.push_str(&figure(figures, "tunnels.svg", "p_exit by tunnel state, with the suggested count and, when it is reached, the tunnel from which p_exit is stable."));
     h.push_str("</section>\n");
 
     // Truncation.
