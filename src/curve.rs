@@ -241,7 +241,7 @@ impl Curve for ParametricCurve {
             .param_names()
             .iter()
             .zip(&self.params)
-            .map(|(n, v)| format!("{n}={v}"))
+            .map(|(n, v)| format!("{n}={}", crate::export::number_text(*v)))
             .collect();
         format!(
             "{} ({}; time in {})",

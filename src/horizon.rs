@@ -4,6 +4,7 @@
 //! horizon is rounded up to n whole cycles. A chain cut at K tunnels follows the curve up to
 //! tunnel K and then repeats tunnel K's probability, so its survival after K cycles is
 //! S(K·cycle)·(1 - p_K)^(j - K). See `docs/tunnels.md` for the definitions and conventions.
+//! Life-years are in years whatever the curve's or the cycle's unit (interface contract).
 
 use crate::curve::Curve;
 use crate::discretise::exit_probability;
@@ -186,41 +187,71 @@ pub fn suggested_count(rows: &[TruncationRow], tolerance: f64) -> usize {
         .map_or(rows.len(), |r| r.count)
 }
 
-/// Smallest tunnel k after which `p_exit` changes by at most `tolerance` relative to the earlier
-/// tunnel at every step up to the horizon: |p_{j+1} - p_j| ≤ tolerance·p_j for all j ≥ k.
-/// `p_exit[0]` is tunnel 1. The last tunnel always qualifies.
-pub fn stable_count(p_exit: &[f64], tolerance: f64) -> usize {
-    let mut k = p_exit.len().max(1);
-    for j in (0..p_exit.len().saturating_sub(1)).rev() {
-        let (a, b) = (p_exit[j], p_exit[j + 1]);
-        if (b - a).abs() <= tolerance * a {
-            k = j + 1;
-        } else {
-            break;
-        }
-    }
-    k
+/// Shortest stretch, in years, over which `p_exit` must hold still to count as stable: two
+/// years of age always hold a birthday, where a background life table's hazard steps, so a
+/// hazard that is flat only within one year of age (or only in the last cycles before the
+/// horizon) cannot pass.
+pub const STABLE_WINDOW_YEARS: f64 = 2.0;
+
+/// Number of tunnels the stability window spans with cycles of `cycle`: whole cycles covering
+/// [`STABLE_WINDOW_YEARS`] (a ratio within 1e-9 of a whole number counts as that number), and
+/// never fewer than 2.
+pub fn stable_window(cycle: Duration) -> usize {
+    let ratio = STABLE_WINDOW_YEARS / cycle.in_unit(TimeUnit::Years);
+    let whole = ratio.round();
+    let cycles = if (ratio - whole).abs() <= 1e-9 * whole.max(1.0) {
+        whole
+    } else {
+        ratio.ceil()
+    };
+    cycles.clamp(2.0, MAX_HORIZON_CYCLES as f64 + 1.0) as usize
 }
 
-/// One method's row of the within-cycle table (life-years in the table's time unit).
+/// The first tunnel k from which `p_exit` is stable: every later tunnel up to the horizon has
+/// p_exit within `tolerance` (relative) of tunnel k's, |p_j - p_k| ≤ tolerance·p_k for all
+/// j ≥ k, and tunnels k..n span at least `window` tunnels ([`stable_window`]). Repeating
+/// p_exit(k) then reproduces every later probability within the tolerance. `None` ("not
+/// reached") when no tunnel qualifies: a drifting hazard, a hazard flat only between
+/// birthdays, or a horizon too short to show the window. `p_exit[0]` is tunnel 1.
+pub fn stable_count(p_exit: &[f64], tolerance: f64, window: usize) -> Option<usize> {
+    let n = p_exit.len();
+    if n < window.max(1) {
+        return None;
+    }
+    let (mut low, mut high) = (f64::INFINITY, f64::NEG_INFINITY);
+    let mut first = None;
+    // Walk back from the horizon, keeping the range of p_exit over tunnels j..n.
+    for j in (0..n).rev() {
+        let p = p_exit[j];
+        low = low.min(p);
+        high = high.max(p);
+        if n - j >= window && high - p <= tolerance * p && p - low <= tolerance * p {
+            first = Some(j + 1);
+        }
+    }
+    first
+}
+
+/// One method's row of the within-cycle table. Every life-year figure is in years, whatever
+/// the curve's or the cycle's unit.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct WithinCycleRow {
     /// The method.
     pub method: Method,
-    /// Life-years to the horizon from the boundary survival (table's time unit).
+    /// Life-years to the horizon from the boundary survival, in years.
     pub life_years: f64,
-    /// Exact ∫₀^horizon S(t) dt.
+    /// Exact ∫₀^horizon S(t) dt, in years.
     pub exact: f64,
-    /// Signed error, `life_years` - `exact`.
+    /// Signed error, `life_years` - `exact`, in years.
     pub error: f64,
     /// `error` / `exact`.
     pub rel_error: f64,
-    /// The method on the discounted integrand S(t)·(1 + r)^(-t in years).
+    /// The method on the discounted integrand S(t)·(1 + r)^(-t in years), in years.
     pub discounted_life_years: f64,
-    /// Exact ∫₀^horizon S(t)·(1 + r)^(-t in years) dt.
+    /// Exact ∫₀^horizon S(t)·(1 + r)^(-t in years) dt, in years.
     pub discounted_exact: f64,
-    /// Signed error, `discounted_life_years` - `discounted_exact`.
+    /// Signed error, `discounted_life_years` - `discounted_exact`, in years.
     pub discounted_error: f64,
     /// `discounted_error` / `discounted_exact`.
     pub discounted_rel_error: f64,
@@ -237,6 +268,7 @@ fn integrate_pieces(f: impl Fn(f64) -> f64, end: f64) -> f64 {
 
 /// The within-cycle table over n cycles: each method beside the exact integrals, undiscounted
 /// and discounted at `discount` a year (applied as (1 + r)^(-t) at the cycle boundaries).
+/// Life-years in years: the integrals over time in the cycle's unit are converted at the end.
 pub fn within_cycle_table(
     curve: &dyn Curve,
     cycle: Duration,
@@ -254,17 +286,17 @@ pub fn within_cycle_table(
         .map(|(j, l)| (l - ln_d * j as f64 * cycle.value * years_per_unit).exp())
         .collect();
     let end = n as f64 * cycle.value;
-    // The curve's own restricted mean (closed form where the family has one), in table units.
-    let exact = curve.restricted_mean(end * to_curve) / to_curve;
+    // The curve's own restricted mean (closed form where the family has one), in years.
+    let exact = curve.restricted_mean(end * to_curve) / to_curve * years_per_unit;
     let discounted_exact = integrate_pieces(
         |t| (curve.log_survival(t * to_curve) - ln_d * t * years_per_unit).exp(),
         end,
-    );
+    ) * years_per_unit;
     METHODS
         .iter()
         .map(|&method| {
-            let ly = integrate_boundaries(&plain, cycle.value, method);
-            let dly = integrate_boundaries(&discounted, cycle.value, method);
+            let ly = integrate_boundaries(&plain, cycle.value, method) * years_per_unit;
+            let dly = integrate_boundaries(&discounted, cycle.value, method) * years_per_unit;
             WithinCycleRow {
                 method,
                 life_years: ly,
@@ -377,15 +409,174 @@ mod tests {
         assert_eq!(
             stable_count(
                 &rows.iter().map(|r| r.p_exit_last).collect::<Vec<_>>(),
-                1e-3
+                1e-3,
+                stable_window(months(1.0))
             ),
-            1
+            Some(1)
         );
         let curve = ParametricCurve::new(&Weibull, vec![1.6, 30.0], TimeUnit::Months).unwrap();
         let log_s = boundary_log_survival(&curve, months(1.0), 150);
         let rows = truncation_table(&log_s, 1.0);
         assert_eq!(rows.last().unwrap().max_surv_gap, 0.0);
         assert!(suggested_count(&rows, 1e-3) > 1);
+    }
+
+    #[test]
+    fn life_years_are_in_years_for_a_monthly_curve() {
+        // Restricted means by calculus, not by the code: exponential ∫₀^T e^(-λt) dt =
+        // (1 - e^(-λT))/λ; Weibull with shape 1/2, substituting u = (t/s)^(1/2):
+        // ∫₀^T e^(-(t/s)^(1/2)) dt = 2s·(1 - (1 + U)·e^(-U)), U = (T/s)^(1/2). Time in months,
+        // life-years = months / 12 (interface: a month is a twelfth of a year).
+        let rate = 0.05;
+        let exponential = ParametricCurve::new(&Exponential, vec![rate], TimeUnit::Months).unwrap();
+        let (s, t_end) = (40.0, 120.0);
+        let weibull = ParametricCurve::new(&Weibull, vec![0.5, s], TimeUnit::Months).unwrap();
+        let u = (t_end / s).sqrt();
+        let cases: [(&dyn Curve, f64); 2] = [
+            (&exponential, (1.0 - (-rate * t_end).exp()) / rate / 12.0),
+            (&weibull, 2.0 * s * (1.0 - (1.0 + u) * (-u).exp()) / 12.0),
+        ];
+        for (curve, expected_years) in cases {
+            // The same curve and horizon with monthly, weekly and yearly cycles.
+            for cycle in [
+                months(1.0),
+                Duration {
+                    value: 120.0 * 365.25 / 12.0 / 7.0 / 520.0,
+                    unit: TimeUnit::Weeks,
+                },
+                Duration {
+                    value: 1.0,
+                    unit: TimeUnit::Years,
+                },
+            ] {
+                let n = (t_end / cycle.in_unit(TimeUnit::Months)).round() as usize;
+                let rows = within_cycle_table(curve, cycle, n, 0.0);
+                for r in &rows {
+                    assert!(
+                        (r.exact - expected_years).abs() < 1e-9 * expected_years,
+                        "{}: {} years, expected {expected_years}",
+                        curve.describe(),
+                        r.exact
+                    );
+                    assert!((r.error - (r.life_years - expected_years)).abs() < 1e-9);
+                    // Without discounting the discounted columns are the plain ones.
+                    assert!((r.discounted_exact - expected_years).abs() < 1e-9 * expected_years);
+                }
+            }
+        }
+        // The trapezoid life-years from the boundary survival, by hand, in years.
+        let rows = within_cycle_table(&exponential, months(1.0), 120, 0.035);
+        let by_hand: f64 = (0..120)
+            .map(|j| 0.5 * ((-rate * j as f64).exp() + (-rate * (j + 1) as f64).exp()))
+            .sum::<f64>()
+            / 12.0;
+        let trapezoid = rows.iter().find(|r| r.method == Method::Trapezoid).unwrap();
+        assert!((trapezoid.life_years - by_hand).abs() < 1e-12);
+    }
+
+    #[test]
+    fn stability_needs_all_later_tunnels_within_tolerance_over_the_window() {
+        // A hazard drifting by 0.05% a tunnel passes a step-by-step test at 0.1% but is not
+        // stable: after 10 tunnels it has moved 0.5%.
+        let drifting: Vec<f64> = (0..300).map(|j| 0.01 * 1.0005f64.powi(j)).collect();
+        assert_eq!(stable_count(&drifting, 1e-3, 24), None);
+        // Settles at tunnel 101 and stays for 200 tunnels.
+        let settling: Vec<f64> = (0..300)
+            .map(|j| {
+                if j < 100 {
+                    0.02 - 0.0001 * j as f64
+                } else {
+                    0.01
+                }
+            })
+            .collect();
+        assert_eq!(stable_count(&settling, 1e-3, 24), Some(101));
+        // Flat only in the last 23 tunnels, fewer than the window: not reached.
+        let late: Vec<f64> = (0..100)
+            .map(|j| if j < 77 { 0.01 + 0.001 * j as f64 } else { 0.2 })
+            .collect();
+        assert_eq!(stable_count(&late, 1e-3, 24), None);
+        assert_eq!(stable_count(&late, 1e-3, 23), Some(78));
+        // Two years: 24 monthly, 104.36 → 105 weekly, 2 yearly cycles (never fewer than 2).
+        assert_eq!(stable_window(months(1.0)), 24);
+        assert_eq!(
+            stable_window(Duration {
+                value: 1.0,
+                unit: TimeUnit::Weeks
+            }),
+            105
+        );
+        assert_eq!(
+            stable_window(Duration {
+                value: 5.0,
+                unit: TimeUnit::Years
+            }),
+            2
+        );
+    }
+
+    #[test]
+    fn a_hazard_flat_only_between_birthdays_is_not_stable() {
+        // A negligible disease hazard floored by a life table whose qx rises every year: p_exit
+        // is constant within each year of age and steps at each birthday. The step-to-step
+        // definition called the last year before a 30-month horizon "stable from tunnel 25";
+        // the background hazard is -ln(1 - qx) a year (interface: life table convention).
+        use crate::adjust::{
+            background::BeyondTable, lifetable, Adjuster, Adjustments, BackgroundMode,
+            BackgroundSettings,
+        };
+        let table = lifetable::parse(
+            "rising.csv",
+            b"age,qx\n60,0.010\n61,0.011\n62,0.0121\n63,0.01331\n",
+            None,
+        )
+        .unwrap();
+        let settings = |beyond| Adjustments {
+            background: Some(BackgroundSettings {
+                path: "rising.csv".into(),
+                start_age: 60.0,
+                sex: None,
+                mode: BackgroundMode::Floor,
+                beyond,
+            }),
+            ..Default::default()
+        };
+        let tiny = ParametricCurve::new(&Exponential, vec![1e-9], TimeUnit::Months).unwrap();
+        let floored = Adjuster::new(settings(BeyondTable::Error), Some(table.clone()))
+            .unwrap()
+            .adjust(tiny.clone())
+            .unwrap();
+        let log_s = boundary_log_survival(&floored, months(1.0), 30);
+        let p: Vec<f64> = truncation_table(&log_s, 1.0)
+            .iter()
+            .map(|r| r.p_exit_last)
+            .collect();
+        // Within age 62 (tunnels 25–30) p_exit is 1 - (1 - 0.0121)^(1/12).
+        let in_62 = 1.0 - (1.0f64 - 0.0121).powf(1.0 / 12.0);
+        for value in &p[24..30] {
+            assert!((value - in_62).abs() < 1e-12 * in_62);
+        }
+        assert_eq!(stable_count(&p, 1e-3, stable_window(months(1.0))), None);
+        // The earlier definition (each step within the tolerance of the one before, to the
+        // horizon) is fooled: it finds tunnel 25, the first of the last year of age.
+        let step_to_step = (0..p.len() - 1)
+            .rev()
+            .take_while(|&j| (p[j + 1] - p[j]).abs() <= 1e-3 * p[j])
+            .last()
+            .map_or(p.len(), |j| j + 1);
+        assert_eq!(step_to_step, 25);
+        // With hold-last the table's last qx (age 63) holds for every later age, so from age 63
+        // (tunnel 37) p_exit is 1 - (1 - 0.01331)^(1/12) in every tunnel: a real plateau.
+        let held = Adjuster::new(settings(BeyondTable::HoldLast), Some(table))
+            .unwrap()
+            .adjust(tiny)
+            .unwrap();
+        let log_s = boundary_log_survival(&held, months(1.0), 120);
+        let p: Vec<f64> = truncation_table(&log_s, 1.0)
+            .iter()
+            .map(|r| r.p_exit_last)
+            .collect();
+        assert_eq!(stable_count(&p, 1e-3, stable_window(months(1.0))), Some(37));
     }
 
     #[test]

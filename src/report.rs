@@ -53,6 +53,28 @@ fn cell_text(cell: &Cell) -> String {
     }
 }
 
+/// Columns of the exported tables that hold a time (in the analysis's time unit); the report
+/// writes the unit into their heading, as the printed tables do ("t_start (months)").
+const TIME_COLUMNS: [&str; 6] = [
+    "t_start",
+    "t_end",
+    "time",
+    "start",
+    "end",
+    "max_abs_diff_time",
+];
+
+/// `table` with the unit written into the heading of each time column.
+fn with_time_units(table: &Table, unit: crate::units::TimeUnit) -> Table {
+    let mut table = table.clone();
+    for c in table.columns.iter_mut() {
+        if TIME_COLUMNS.contains(&c.as_str()) {
+            *c = format!("{c} ({unit})");
+        }
+    }
+    table
+}
+
 /// An export table as an HTML table with `id`, showing the rows selected by `keep`.
 fn html_table(id: &str, table: &Table, keep: impl Fn(usize) -> bool) -> String {
     let mut out = format!("<table id=\"{}\"><thead><tr>", escape(id));
@@ -221,7 +243,7 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
 
     // Fit comparison.
     h.push_str("<section id=\"fits\">\n<h2>Fit comparison</h2>\n");
-    h.push_str("<p>Maximum likelihood per arm; full log-likelihood; AIC = 2k − 2·loglik, BIC = k·ln(n) − 2·loglik; sorted by AIC. Parameters in the data's time unit with 95% intervals (Wald, on the estimation scale).</p>\n");
+    h.push_str("<p>Maximum likelihood per arm; full log-likelihood; AIC = 2k − 2·loglik, BIC = k·ln(n) − 2·loglik; sorted by AIC. Parameters for time in the data's unit with 95% intervals (Wald, on the estimation scale): scales in that unit, rates and the Gompertz shape per that unit, mu in ln(that unit); other shapes, sigma, q, cure fractions and spline coefficients are unitless (the chosen curve's table below gives each unit).</p>\n");
     for arm in &fits.data.arms {
         let label = arm.arm.as_deref();
         if let Some(name) = label {
@@ -330,20 +352,27 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
         .param_names()
         .iter()
         .zip(&result.curve.params)
-        .map(|(n, v)| {
+        .zip(family.param_units())
+        .map(|((n, v), kind)| {
             let (lo, hi) = c
                 .intervals
                 .get(*n)
                 .map(|[l, u]| (sig(*l, DIGITS), sig(*u, DIGITS)))
                 .unwrap_or_default();
-            vec![n.to_string(), sig(*v, DIGITS), lo, hi]
+            vec![
+                n.to_string(),
+                sig(*v, DIGITS),
+                lo,
+                hi,
+                kind.label(result.curve.unit),
+            ]
         })
         .collect();
     h.push_str(&text_table(
         "table-chosen",
-        &["parameter", "estimate", "95% lower", "95% upper"],
+        &["parameter", "estimate", "95% lower", "95% upper", "unit"],
         &rows,
-        &[false, true, true, true],
+        &[false, true, true, true, false],
     ));
     if let Some(cov) = &c.covariance {
         let rows: Vec<Vec<String>> = cov
@@ -368,9 +397,9 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     let doc = result.tunnel_document();
     h.push_str("<section id=\"tunnels\">\n<h2>Tunnel table</h2>\n");
     h.push_str(&format!(
-        "<p>{} tunnel states of {} {} ({}). Tunnel k covers [(k−1)·cycle, k·cycle) since entry; p_exit = 1 − S(t_end)/S(t_start), with no half-cycle shift; the last tunnel repeats its own probability. Times in {}.</p>\n",
-        t.rows.len(),
-        crate::export::number_text(t.cycle),
+        "<p>{} of {} {} ({}). Tunnel k covers [(k−1)·cycle, k·cycle) since entry; p_exit = 1 − S(t_end)/S(t_start), with no half-cycle shift; the last tunnel repeats its own probability. Times in {}.</p>\n",
+        crate::format::counted(t.rows.len(), "tunnel state"),
+        crate::format::readable(t.cycle),
         t.time_unit.name_for(t.cycle),
         escape(&result.count_rule),
         t.time_unit
@@ -381,29 +410,44 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
             t.rows.len()
         ));
     }
-    h.push_str(&html_table("table-tunnels", &doc.tables[0], |i| {
-        i < MAX_TUNNEL_ROWS
-    }));
-    h.push_str(&figure(figures, "tunnels.svg", "p_exit by tunnel state, with the suggested count and the tunnel from which p_exit is stable."));
+    h.push_str(&html_table(
+        "table-tunnels",
+        &with_time_units(&doc.tables[0], t.time_unit),
+        |i| i < MAX_TUNNEL_ROWS,
+    ));
+    h.push_str(&figure(figures, "tunnels.svg", "p_exit by tunnel state, with the suggested count and, when it is reached, the tunnel from which p_exit is stable."));
     h.push_str("</section>\n");
 
     // Truncation.
     let doc = result.truncation_document();
     let n = result.horizon_cycles;
     h.push_str("<section id=\"truncation\">\n<h2>Truncation: how many tunnels are enough</h2>\n");
+    let window = crate::format::counted(result.stable_window, "tunnel");
+    let stable = match result.stable_count {
+        Some(k) => format!(
+            "p_exit stable from tunnel {k} (every later p_exit up to the horizon is within the tolerance, relative, of tunnel {k}'s, over at least {window} = {} years)",
+            crate::horizon::STABLE_WINDOW_YEARS
+        ),
+        None => format!(
+            "p_exit stable: not reached (no tunnel from which every later p_exit up to the horizon stays within the tolerance, relative, of its own over at least {window} = {} years)",
+            crate::horizon::STABLE_WINDOW_YEARS
+        ),
+    };
     h.push_str(&format!(
-        "<p>Horizon of the checks: {n} cycles = {} {} ({}). A chain cut at K tunnels repeats tunnel K's probability for every later cycle. <b>Suggested count: {}</b> (smallest K with max_surv_gap and ly_rel_error both ≤ {}); p_exit stable from tunnel {} (changes by at most the tolerance, relative, from one tunnel to the next). Selected rows are shown; <span class=\"file\">truncation.*</span> hold every count.</p>\n",
-        crate::export::number_text(n as f64 * t.cycle),
+        "<p>Horizon of the checks: {} = {} {} ({}). A chain cut at K tunnels repeats tunnel K's probability for every later cycle. <b>Suggested count: {}</b> (smallest K with max_surv_gap and ly_rel_error both ≤ {}); {}. Selected rows are shown; <span class=\"file\">truncation.*</span> hold every count.</p>\n",
+        crate::format::counted(n, "cycle"),
+        crate::format::readable(n as f64 * t.cycle),
         t.time_unit.name_for(n as f64 * t.cycle),
         escape(&result.horizon_rule),
         result.suggested_count,
         a.tolerance,
-        result.stable_count
+        escape(&stable)
     ));
-    let shown = shown_counts(
-        n,
-        &[result.suggested_count, result.stable_count, t.rows.len()],
-    );
+    let marked: Vec<usize> = [result.suggested_count, t.rows.len()]
+        .into_iter()
+        .chain(result.stable_count)
+        .collect();
+    let shown = shown_counts(n, &marked);
     h.push_str(&html_table("table-truncation", &doc.tables[0], |i| {
         shown.contains(&(i + 1))
     }));
@@ -418,8 +462,10 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     let doc = result.within_cycle_document();
     h.push_str("<section id=\"within-cycle\">\n<h2>Within-cycle accuracy</h2>\n");
     h.push_str(&format!(
-        "<p>Life-years ({}) to the horizon from survival at cycle boundaries, by method, beside the exact integral of the curve; discounted at {} a year as (1 + r)^(−t) at each boundary.</p>\n",
-        t.time_unit, a.discount
+        "<p>Life-years, in years, to the horizon from survival at cycle boundaries (cycles of {} {}), by method, beside the exact integral of the curve; discounted at {} a year as (1 + r)^(−t) at each boundary. life_years, exact, error and their discounted columns are in years; rel_error columns are ratios.</p>\n",
+        crate::format::readable(t.cycle),
+        t.time_unit.name_for(t.cycle),
+        a.discount
     ));
     h.push_str(&html_table("table-within-cycle", &doc.tables[0], |_| true));
     h.push_str("</section>\n");
@@ -447,7 +493,11 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
                 "<p>{} parameter draws of the chosen fit (multivariate normal on the estimation scale, from the fit's estimates and covariance; seed {}), each taken through the same adjustments to a tunnel table. p_exit per tunnel: the point estimate, the mean of the draws and their 2.5% and 97.5% percentiles (also in <code>draws_summary.*</code>).</p>\n",
                 d.count, d.seed
             ));
-            h.push_str(&html_table("table-draws", &doc.tables[0], |_| true));
+            h.push_str(&html_table(
+                "table-draws",
+                &with_time_units(&doc.tables[0], result.tunnels.time_unit),
+                |_| true,
+            ));
         }
         _ => {
             h.push_str("<p>None requested in this analysis, so no random numbers were used.</p>\n")
@@ -551,7 +601,8 @@ fn rebuild_section(result: &RunResult, figures: &[Figure]) -> Option<String> {
             continue;
         }
         let id = format!("table-{}", stem.replace('_', "-"));
-        h.push_str(&html_table(&id, &doc.tables[0], |_| true));
+        let table = with_time_units(&doc.tables[0], result.analysis.time_unit);
+        h.push_str(&html_table(&id, &table, |_| true));
     }
     h.push_str(&figure(
         figures,

@@ -256,6 +256,70 @@ fn floor_is_never_below_background_on_any_cycle() {
 }
 
 #[test]
+fn a_floor_binding_for_a_sliver_of_tunnel_1_is_not_reported_as_binding() {
+    // A Weibull with shape 1.3 has hazard 0 at entry, so a constant background hazard h_b is
+    // the larger for t < t* = s·(h_b·s/k)^(1/(k-1)) (a millionth of a month here) and never
+    // again. The floor adds h_b·t* - (t*/s)^k = h_b·t*·(1 - 1/k) to tunnel 1's cumulative hazard
+    // (calculus on the Weibull hazard), far below the 0.1% materiality threshold.
+    let dir = tempfile::tempdir().unwrap();
+    let mut table = String::from("age,qx\n");
+    for age in 60..=110 {
+        table.push_str(&format!("{age},0.01\n"));
+    }
+    std::fs::write(dir.path().join("flat.csv"), table).unwrap();
+    let doc = tunnels_json(
+        dir.path(),
+        &[
+            "--family",
+            "weibull",
+            "--param",
+            "shape=1.3",
+            "--param",
+            "scale=15",
+            "--time-unit",
+            "months",
+            "--cycle",
+            "1 month",
+            "--count",
+            "120",
+            "--background",
+            "flat.csv",
+            "--start-age",
+            "60",
+            "--background-mode",
+            "floor",
+        ],
+    );
+    let (k, s) = (1.3f64, 15.0f64);
+    let h_b = -(1.0f64 - 0.01).ln() / 12.0; // per month (interface: -ln(1 - qx) a year)
+    let t_star = s * (h_b * s / k).powf(1.0 / (k - 1.0));
+    let h1 = (1.0 / s).powf(k);
+    let alone = -(-h1).exp_m1();
+    let floored = -(-(h1 + h_b * t_star * (1.0 - 1.0 / k))).exp_m1();
+    let rise = floored / alone - 1.0;
+    assert!(rise > 0.0 && rise < 1e-6, "{rise}");
+    assert_eq!(doc.metadata["floor_binds_in_tunnels"], "none");
+    assert_eq!(
+        doc.metadata["floor_first_binds_at_age"],
+        "not material in tunnels 1–120"
+    );
+    // The largest change is the one in tunnel 1, shown in percent at 3 significant digits.
+    let largest = &doc.metadata["floor_largest_change"];
+    let (lead, rest) = largest.split_once("% in tunnel ").unwrap();
+    let shown: f64 = lead.trim_start_matches('+').parse().unwrap();
+    assert!(
+        (shown - 100.0 * rise).abs() <= 0.01 * 100.0 * rise,
+        "{largest} vs {rise}"
+    );
+    assert!(rest.starts_with("1 "), "{largest}");
+    assert!(doc.metadata["floor_materiality"].contains("0.1%"));
+    // The share of tunnel 1 under the floor is still shown as what it is.
+    let share = doc.tables[0].column("floor_share");
+    assert!((share[0] - t_star).abs() < 1e-9, "{} vs {t_star}", share[0]);
+    assert!(share[1..].iter().all(|x| *x == 0.0));
+}
+
+#[test]
 fn hazard_ratio_on_weibull_equals_weibull_with_rescaled_scale() {
     // Weibull with hazard ratio X = Weibull with scale·X^(-1/shape) (Weibull proportional-hazards
     // property, as in Collett, Modelling Survival Data in Medical Research; from memory).

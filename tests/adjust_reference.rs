@@ -31,6 +31,7 @@ struct Case {
     times: Vec<f64>,
     cumulative_hazard: Vec<f64>,
     crossings: Option<Vec<f64>>,
+    quarter_year_p_exit_rise: Option<Vec<f64>>,
 }
 
 fn months(value: f64) -> Duration {
@@ -99,21 +100,54 @@ fn waning_and_floor_match_scipy_quadrature() {
                 case.name
             );
         }
-        if let Some(crossings) = &case.crossings {
+        if let (Some(crossings), Some(rises)) = (&case.crossings, &case.quarter_year_p_exit_rise) {
             // The hazard starts at 0, rises through the background at the first brentq crossing
-            // and falls back below it at the second: with quarter-year cycles the floor binds in
-            // the tunnels up to the first crossing and from the second on, and first binds at entry.
+            // and falls back below it at the second. With quarter-year cycles the floor binds
+            // in the tunnels up to the first crossing and from the second on, but in the
+            // tunnel of the second crossing only for a sliver: SciPy's p_exit rises there by
+            // less than the 0.1% materiality threshold, so that tunnel is not listed.
             assert_eq!(crossings.len(), 2);
             let cycle = 0.25;
+            let material: Vec<usize> = (1..=80)
+                .filter(|k| rises[k - 1] >= adjust::FLOOR_MATERIAL)
+                .collect();
             let last_early = (crossings[0] / cycle).ceil() as usize;
-            let first_late = (crossings[1] / cycle).floor() as usize + 1;
-            let rows = adjusted.floor_report(cycle, 80);
+            let crossing_tunnel = (crossings[1] / cycle).floor() as usize + 1;
+            assert!(rises[crossing_tunnel - 1] < adjust::FLOOR_MATERIAL);
             assert_eq!(
-                rows[0].1,
-                format!("1\u{2013}{last_early}, {first_late}\u{2013}80"),
+                material,
+                (1..=last_early)
+                    .chain(crossing_tunnel + 1..=80)
+                    .collect::<Vec<_>>()
+            );
+            let rows = adjusted.floor_report(cycle, 80);
+            let value = |key: &str| {
+                rows.iter()
+                    .find(|(k, _)| k == key)
+                    .unwrap_or_else(|| panic!("{key} missing: {rows:?}"))
+                    .1
+                    .clone()
+            };
+            assert_eq!(
+                value("floor_binds_in_tunnels"),
+                format!("1\u{2013}{last_early}, {}\u{2013}80", crossing_tunnel + 1),
                 "{rows:?}"
             );
-            let age: f64 = rows[1].1.parse().unwrap();
+            // The largest rise, in percent at 3 significant digits, and where.
+            let (k, largest) = rises
+                .iter()
+                .enumerate()
+                .max_by(|a, b| a.1.total_cmp(b.1))
+                .unwrap();
+            let largest_text = value("floor_largest_change");
+            let (lead, rest) = largest_text.split_once("% in tunnel ").unwrap();
+            let shown: f64 = lead.trim_start_matches('+').parse().unwrap();
+            assert!(
+                (shown - 100.0 * largest).abs() <= 0.005 * 100.0 * largest,
+                "{rows:?}"
+            );
+            assert!(rest.starts_with(&format!("{} ", k + 1)), "{rows:?}");
+            let age: f64 = value("floor_first_binds_at_age").parse().unwrap();
             assert!((age - case.start_age.unwrap()).abs() < 1e-9, "{rows:?}");
         }
     }

@@ -225,13 +225,15 @@ fn from_a_fit_file_records_its_hash() {
 struct HorizonJson {
     metadata: BTreeMap<String, String>,
     time_unit: String,
+    life_years_unit: String,
     cycle: f64,
     horizon_cycles: usize,
     horizon: f64,
     tolerance: f64,
     discount: f64,
     suggested_count: usize,
-    stable_count: usize,
+    stable_count: Option<usize>,
+    stable_window: usize,
     truncation: Vec<TruncationJson>,
     within_cycle: Vec<WithinJson>,
 }
@@ -289,7 +291,11 @@ fn horizon_json_reads_back_with_consistent_answers() {
         let before = &h.truncation[h.suggested_count - 2];
         assert!(before.max_surv_gap > 0.001 || before.ly_rel_error > 0.001);
     }
-    assert!(h.stable_count >= 1 && h.stable_count <= 120);
+    // A Weibull with shape 1.2 has a hazard that keeps rising: p_exit never holds still
+    // within 0.1% over two years (it grows by (t+1)^0.2/t^0.2 - 1 ≥ 0.14% a month to t = 120).
+    assert_eq!(h.stable_count, None);
+    assert_eq!(h.stable_window, 24);
+    assert_eq!(h.life_years_unit, "years");
     assert_eq!(h.truncation[0].count, 1);
     let methods: Vec<&str> = h.within_cycle.iter().map(|w| w.method.as_str()).collect();
     assert_eq!(
@@ -303,6 +309,202 @@ fn horizon_json_reads_back_with_consistent_answers() {
         assert!(w.discounted_rel_error.abs() < 0.03);
         assert!(w.discounted_exact < w.exact);
     }
+}
+
+/// A printed number of `horizon` as a float, from the row of the within-cycle table.
+fn printed_row(text: &str, method: &str) -> Vec<f64> {
+    text.lines()
+        .find(|l| l.split_whitespace().next() == Some(method))
+        .unwrap_or_else(|| panic!("no {method} row in\n{text}"))
+        .split_whitespace()
+        .skip(1)
+        .map(|x| x.parse().unwrap())
+        .collect()
+}
+
+#[test]
+fn horizon_life_years_are_in_years_for_monthly_and_weekly_cycles() {
+    // A monthly exponential curve with rate 0.05: its restricted mean to T months is
+    // (1 - e^(-0.05·T))/0.05 months (calculus), and a month is a twelfth of a year
+    // (interface). 10 years is T = 120 months in monthly cycles; in weekly cycles it is
+    // rounded up to 522 weeks = 522·7·12/365.25 months (interface: week 7 days, year 365.25).
+    let years = |t: f64| (1.0 - (-0.05 * t).exp()) / 0.05 / 12.0;
+    let dir = tempfile::tempdir().unwrap();
+    for (cycle, file, t_months) in [
+        ("1 month", "m.json", 120.0),
+        ("1 week", "w.json", 522.0 * 7.0 * 12.0 / 365.25),
+    ] {
+        let expected = years(t_months);
+        let out = tunnelcast(dir.path())
+            .args([
+                "horizon",
+                "--family",
+                "exponential",
+                "--param",
+                "rate=0.05",
+                "--time-unit",
+                "months",
+                "--cycle",
+                cycle,
+                "--horizon",
+                "10 years",
+                "--json",
+                file,
+            ])
+            .output()
+            .unwrap();
+        assert!(out.status.success());
+        let text = String::from_utf8(out.stdout).unwrap();
+        assert!(text.contains("life-years in years"), "{text}");
+        assert!(!text.contains("life-years in months"), "{text}");
+        let h: HorizonJson =
+            serde_json::from_slice(&std::fs::read(dir.path().join(file)).unwrap()).unwrap();
+        assert_eq!(h.life_years_unit, "years");
+        for w in &h.within_cycle {
+            assert!(
+                (w.exact - expected).abs() < 1e-9 * expected,
+                "{cycle}: exact {} years, expected {expected}",
+                w.exact
+            );
+            assert!((w.life_years - w.exact).abs() < 0.05 * expected);
+        }
+        // The printed table shows the same years at 6 significant digits.
+        let trapezoid = printed_row(&text, "trapezoid");
+        assert!((trapezoid[1] - expected).abs() < 1e-5 * expected, "{text}");
+        // A constant hazard is stable from the first tunnel (every p_exit is the same).
+        assert_eq!(h.stable_count, Some(1));
+        // 10 years = 521.78... weeks, rounded up to 522 whole cycles.
+        let cycles = if cycle == "1 month" { 120 } else { 522 };
+        assert_eq!(h.horizon_cycles, cycles);
+    }
+}
+
+/// The `parameters` sheet of an XLSX file as (item, value, unit) rows, read with calamine.
+fn parameter_sheet(path: &Path) -> Vec<(String, calamine::Data, String)> {
+    use calamine::Reader;
+    let mut book: calamine::Xlsx<_> = calamine::open_workbook(path).unwrap();
+    let range = book.worksheet_range("parameters").unwrap();
+    range
+        .rows()
+        .skip(1)
+        .map(|r| (r[0].to_string(), r[1].clone(), r[2].to_string()))
+        .collect()
+}
+
+#[test]
+fn parameter_units_follow_what_each_parameter_measures() {
+    // Dimensional analysis (common practice): the log-normal mu is the mean of ln T, so its
+    // unit is ln(months); sigma is a pure number; the Gompertz hazard rate·e^(shape·t) makes
+    // both its parameters per unit time; spline coefficients are pure numbers (c0 an
+    // intercept on ln t) and knots are times.
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    // (curve options, expected (row, unit) pairs)
+    type Case<'a> = (&'a [&'a str], &'a [(&'a str, &'a str)]);
+    let cases: [Case; 3] = [
+        (
+            &[
+                "--family",
+                "lognormal",
+                "--param",
+                "mu=2.5",
+                "--param",
+                "sigma=0.9",
+            ],
+            &[("mu", "ln(months)"), ("sigma", "unitless")],
+        ),
+        (
+            &[
+                "--family",
+                "gompertz",
+                "--param",
+                "shape=0.02",
+                "--param",
+                "rate=0.05",
+            ],
+            &[("shape", "per month"), ("rate", "per month")],
+        ),
+        (
+            &[
+                "--family",
+                "spline-ph-1",
+                "--param",
+                "c0=-3",
+                "--param",
+                "c1=1.2",
+                "--param",
+                "c2=0.01",
+                "--knots",
+                "1 month,1 year,5 years",
+            ],
+            &[
+                ("c0", "unitless (intercept on ln t, t in months)"),
+                ("c1", "unitless"),
+                ("c2", "unitless"),
+                ("spline_scale", ""),
+                ("knot_1", "months"),
+                ("knot_2", "months"),
+                ("knot_3", "months"),
+            ],
+        ),
+    ];
+    for (curve, expected) in cases {
+        let _ = std::fs::remove_file(d.join("t.xlsx"));
+        tunnelcast(d)
+            .arg("tunnels")
+            .args(curve)
+            .args([
+                "--time-unit",
+                "months",
+                "--cycle",
+                "1 month",
+                "--count",
+                "3",
+            ])
+            .args(["--out", "t.xlsx"])
+            .assert()
+            .success();
+        let rows = parameter_sheet(&d.join("t.xlsx"));
+        for (item, unit) in expected.iter() {
+            let row = rows
+                .iter()
+                .find(|r| r.0 == *item)
+                .unwrap_or_else(|| panic!("no row {item}: {rows:?}"));
+            assert_eq!(row.2, *unit, "{item}: {rows:?}");
+        }
+        // The same units in the metadata of every format (here JSON).
+        tunnelcast(d)
+            .arg("tunnels")
+            .args(curve)
+            .args([
+                "--time-unit",
+                "months",
+                "--cycle",
+                "1 month",
+                "--count",
+                "3",
+            ])
+            .args(["--out", "t.json", "--force"])
+            .assert()
+            .success();
+        let doc: TableFile =
+            serde_json::from_slice(&std::fs::read(d.join("t.json")).unwrap()).unwrap();
+        let units = &doc.metadata["parameter_units"];
+        // Parameters only: settings rows (knots, spline scale) are not parameters.
+        let parameters = expected
+            .iter()
+            .filter(|(i, _)| !i.starts_with("knot_") && *i != "spline_scale");
+        for (item, unit) in parameters {
+            assert!(units.contains(&format!("{item}: {unit}")), "{units}");
+        }
+    }
+    // Knots given in years and months land in months at full precision: 12 and 60.
+    let rows = parameter_sheet(&d.join("t.xlsx"));
+    let knot = |i: usize| match &rows.iter().find(|r| r.0 == format!("knot_{i}")).unwrap().1 {
+        calamine::Data::Float(x) => *x,
+        other => panic!("{other:?}"),
+    };
+    assert_eq!((knot(1), knot(2), knot(3)), (1.0, 12.0, 60.0));
 }
 
 #[test]

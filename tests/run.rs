@@ -220,6 +220,90 @@ fn run_writes_every_output_and_the_report_matches_the_json() {
     assert_eq!(verbatim.text().unwrap(), ANALYSIS);
 }
 
+/// Rows of a CSV output, header first, skipping any leading `#` comment lines.
+fn csv_rows(path: &Path) -> Vec<Vec<String>> {
+    std::fs::read_to_string(path)
+        .unwrap()
+        .lines()
+        .skip_while(|l| l.starts_with('#'))
+        .map(|l| l.split(',').map(str::to_string).collect())
+        .collect()
+}
+
+#[test]
+fn life_years_of_a_monthly_analysis_are_in_years_in_every_output() {
+    // One arm, the exponential family, monthly data and cycles, 5 years: the exact restricted
+    // mean is (1 - e^(-60·rate))/rate months (calculus) = that / 12 years (a month is a twelfth
+    // of a year, interface), with the rate read from fit.json.
+    let dir = tempfile::tempdir().unwrap();
+    let one_arm: String = DATA
+        .lines()
+        .enumerate()
+        .filter(|(i, l)| *i == 0 || l.contains("standard-care"))
+        .map(|(_, l)| format!("{l}\n"))
+        .collect();
+    std::fs::write(dir.path().join("trial.csv"), one_arm).unwrap();
+    std::fs::write(
+        dir.path().join("analysis.toml"),
+        "[data]\nfile = \"trial.csv\"\ntime_unit = \"months\"\n\n[fit]\nfamilies = [\"exponential\"]\nchoose = \"exponential\"\n\n[tunnels]\ncycle = \"1 month\"\ncount = 12\nhorizon = \"5 years\"\n",
+    )
+    .unwrap();
+    let printed = tunnelcast(dir.path())
+        .args(["run", "analysis.toml", "--out", "out"])
+        .output()
+        .unwrap();
+    assert!(
+        printed.status.success(),
+        "{}",
+        String::from_utf8_lossy(&printed.stderr)
+    );
+    let out = dir.path().join("out");
+    let fits: tunnelcast::fit::FitFile =
+        serde_json::from_slice(&std::fs::read(out.join("fit.json")).unwrap()).unwrap();
+    let rate = fits.fits[0].params["rate"];
+    let expected = (1.0 - (-60.0 * rate).exp()) / rate / 12.0;
+    let within = read_table(&out.join("within_cycle.json"));
+    assert_eq!(within.metadata["life_years_unit"], "years");
+    let exact = within.tables[0]
+        .columns
+        .iter()
+        .position(|c| c == "exact")
+        .unwrap();
+    for row in &within.tables[0].rows {
+        let got = row[exact].as_f64().unwrap();
+        assert!(
+            (got - expected).abs() < 1e-9 * expected,
+            "{got} vs {expected} years"
+        );
+    }
+    let csv = csv_rows(&out.join("within_cycle.csv"));
+    let column = csv[0].iter().position(|c| c == "exact").unwrap();
+    let got: f64 = csv[1][column].parse().unwrap();
+    assert!((got - expected).abs() < 1e-9 * expected);
+    // The report's within-cycle table shows the same years, and says so.
+    let html = std::fs::read_to_string(out.join("report.html")).unwrap();
+    assert!(html.contains("Life-years, in years,"));
+    // Columns holding times in another unit say so in their heading.
+    assert!(html.contains("<th>t_start (months)</th><th>t_end (months)</th>"));
+    let doc = roxmltree::Document::parse_with_options(
+        &html,
+        roxmltree::ParsingOptions {
+            allow_dtd: true,
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    for row in html_rows(&doc, "table-within-cycle") {
+        assert!(close(&row[exact], expected), "{row:?}");
+    }
+    // A constant hazard is stable from the first tunnel.
+    let truncation = read_table(&out.join("truncation.json"));
+    assert_eq!(truncation.metadata["stable_count"], "1");
+    let text = String::from_utf8(printed.stdout).unwrap();
+    assert!(text.contains("12 tunnel states of 1 month "), "{text}");
+    assert!(text.contains("p_exit stable from tunnel 1 "), "{text}");
+}
+
 #[test]
 fn rerun_writes_byte_identical_tables_and_needs_force() {
     let dir = tempfile::tempdir().unwrap();

@@ -84,7 +84,7 @@ impl Curve for AddedCurve {
             self.disease.describe(),
             self.background.table.file,
             self.background.table.column,
-            self.background.start_age
+            crate::format::readable(self.background.start_age)
         )
     }
     /// The sum of the disease curve's pieces and the background's year-of-age pieces.

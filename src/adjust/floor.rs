@@ -188,7 +188,12 @@ impl FlooredCurve {
 
     /// First time in [0, t_max] at which the floor binds, if it does.
     pub fn first_binding(&self, t_max: f64) -> Option<f64> {
-        self.pieces(0.0, t_max)
+        self.first_binding_from(0.0, t_max)
+    }
+
+    /// First time in [t_min, t_max] at which the floor binds, if it does.
+    pub fn first_binding_from(&self, t_min: f64, t_max: f64) -> Option<f64> {
+        self.pieces(t_min, t_max)
             .into_iter()
             .flat_map(|(a, b)| self.stretches(a, b))
             .find(|s| s.binds && s.to > s.from)
@@ -235,7 +240,7 @@ impl Curve for FlooredCurve {
             self.curve.describe(),
             self.background.table.file,
             self.background.table.column,
-            self.background.start_age
+            crate::format::readable(self.background.start_age)
         )
     }
     /// The larger of the curve's pieces and the background's year-of-age pieces on each interval.

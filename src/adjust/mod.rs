@@ -17,6 +17,7 @@ pub mod lifetable;
 
 use crate::curve::{Curve, ParametricCurve};
 use crate::error::{Error, Result};
+use crate::export::number_text;
 use crate::families::Family;
 use crate::units::{Duration, TimeUnit};
 use add::AddedCurve;
@@ -213,34 +214,132 @@ impl AdjustedCurve {
         }
     }
 
-    /// For the floor mode: metadata saying where the floor binds among `count` cycles of
-    /// length `cycle` (curve's time unit): the tunnels affected and the age at which it first binds.
+    /// For the floor mode: metadata saying where the floor changes p_exit materially among
+    /// `count` cycles of length `cycle` (curve's time unit), by how much at most, and the age
+    /// at which it first binds in the first such tunnel. A tunnel counts when the floor raises
+    /// its p_exit by at least [`FLOOR_MATERIAL`] relative to the curve alone; a floor that
+    /// binds for a sliver of a cycle (a hazard rising from 0 at entry) does not.
     pub fn floor_report(&self, cycle: f64, count: usize) -> Vec<(String, String)> {
         let Combined::Floored(floored) = &self.combined else {
             return Vec::new();
         };
-        let binding: Vec<usize> = (1..=count)
-            .filter(|k| floored.binding_time((k - 1) as f64 * cycle, *k as f64 * cycle) > 0.0)
+        let changes = floor_changes(floored, cycle, count);
+        let material: Vec<usize> = changes
+            .iter()
+            .filter(|c| c.relative >= FLOOR_MATERIAL)
+            .map(|c| c.tunnel)
             .collect();
-        let first = floored.first_binding(count as f64 * cycle);
+        let largest = changes
+            .iter()
+            .filter(|c| c.relative > 0.0)
+            .max_by(|a, b| a.relative.total_cmp(&b.relative));
+        let first_age = material.first().and_then(|k| {
+            let from = (k - 1) as f64 * cycle;
+            floored
+                .first_binding_from(from, count as f64 * cycle)
+                .map(|t| floored.background.age_at(t))
+        });
         vec![
             (
                 "floor_binds_in_tunnels".into(),
-                if binding.is_empty() {
+                if material.is_empty() {
                     "none".into()
                 } else {
-                    ranges(&binding)
+                    ranges(&material)
                 },
             ),
             (
+                "floor_largest_change".into(),
+                match largest {
+                    Some(c) => c.text(),
+                    None => "none: the curve's hazard is at or above the background hazard throughout".into(),
+                },
+            ),
+            (
+                "floor_materiality".into(),
+                format!(
+                    "a tunnel counts when the floor raises its p_exit by at least {}% relative to the curve alone",
+                    crate::format::readable(100.0 * FLOOR_MATERIAL)
+                ),
+            ),
+            (
                 "floor_first_binds_at_age".into(),
-                match first {
-                    Some(t) => format!("{}", round_age(floored.background.age_at(t))),
-                    None => "never within the table".into(),
+                match first_age {
+                    Some(age) => format!("{}", round_age(age)),
+                    None => format!(
+                        "not material in tunnels 1–{count}"
+                    ),
                 },
             ),
         ]
     }
+}
+
+/// Smallest relative rise of a tunnel's p_exit, floored against the curve alone, reported as
+/// the floor binding there (0.1%: well above rounding, well below any change a reviewer would
+/// act on).
+pub const FLOOR_MATERIAL: f64 = 1e-3;
+
+/// What the floor does to one tunnel's exit probability.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct FloorChange {
+    tunnel: usize,
+    /// p_exit with the floor.
+    floored: f64,
+    /// p_exit of the curve alone.
+    alone: f64,
+    /// floored / alone - 1 (∞ when the curve alone has p_exit 0 and the floor does not).
+    relative: f64,
+}
+
+impl FloorChange {
+    fn text(&self) -> String {
+        let what = if self.relative.is_finite() {
+            format!("+{}%", crate::format::sig(100.0 * self.relative, 3))
+        } else {
+            "from 0".to_string()
+        };
+        format!(
+            "{what} in tunnel {} (p_exit {} with the floor, {} without)",
+            self.tunnel,
+            crate::format::sig(self.floored, 6),
+            crate::format::sig(self.alone, 6)
+        )
+    }
+}
+
+/// p_exit of every tunnel with the floor and of the curve alone; the change is 0 in a tunnel
+/// where the floor does not bind at all (so that rounding is never reported as a change).
+fn floor_changes(floored: &FlooredCurve, cycle: f64, count: usize) -> Vec<FloorChange> {
+    let log_s = |curve: &dyn Curve| -> Vec<f64> {
+        (0..=count)
+            .map(|j| curve.log_survival(j as f64 * cycle))
+            .collect()
+    };
+    let with = log_s(floored);
+    let alone = log_s(floored.curve.as_ref());
+    (1..=count)
+        .map(|k| {
+            let p = crate::discretise::exit_probability(with[k - 1], with[k]);
+            let q = crate::discretise::exit_probability(alone[k - 1], alone[k]);
+            let binds = floored.binding_time((k - 1) as f64 * cycle, k as f64 * cycle) > 0.0;
+            let relative = if !binds {
+                0.0
+            } else if q > 0.0 {
+                (p / q - 1.0).max(0.0)
+            } else if p > 0.0 {
+                f64::INFINITY
+            } else {
+                0.0
+            };
+            FloorChange {
+                tunnel: k,
+                floored: p,
+                alone: q,
+                relative,
+            }
+        })
+        .collect()
 }
 
 /// Age rounded to 4 decimals (about an hour), for reports.
@@ -383,7 +482,7 @@ fn build(
                 family.name()
             ));
         }
-        metadata.push(("hazard_ratio".into(), ratio.to_string()));
+        metadata.push(("hazard_ratio".into(), number_text(ratio)));
         curve = match adjustments.waning {
             Some(w) => {
                 metadata.push(("waning".into(), w.to_string()));
@@ -406,7 +505,7 @@ fn build(
                 family.name()
             ));
         }
-        metadata.push(("acceleration_factor".into(), factor.to_string()));
+        metadata.push(("acceleration_factor".into(), number_text(factor)));
         curve = Box::new(AccelerationCurve {
             base: curve,
             factor,
@@ -418,7 +517,7 @@ fn build(
                 ("background_table".to_string(), table.file.clone()),
                 ("background_sha256".to_string(), table.sha256.clone()),
                 ("background_column".to_string(), table.column.clone()),
-                ("start_age".to_string(), settings.start_age.to_string()),
+                ("start_age".to_string(), number_text(settings.start_age)),
                 (
                     "background_mode".to_string(),
                     settings.mode.name().to_string(),

@@ -203,6 +203,10 @@ impl CurveArgs {
             }
         }
         metadata.push(("parameter_time_unit".into(), base.unit.name().into()));
+        metadata.push((
+            "parameter_units".into(),
+            families::parameter_units_text(family, base.unit),
+        ));
         let adjuster = Adjuster::load(self.adjustments()?)?;
         let curve = adjuster.adjust(base.clone())?;
         metadata.extend(curve.metadata.iter().cloned());

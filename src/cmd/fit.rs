@@ -88,9 +88,10 @@ pub fn render_comparison(file: &FitFile) -> String {
             ));
         }
         out.push_str(&format!(
-            "Kaplan–Meier median: {} {unit}; longest follow-up {} {unit}\n",
+            "Kaplan–Meier median: {} {unit}; longest follow-up {} {}\n",
             interval_text(&arm.km_median),
-            sig(arm.max_time, 4)
+            sig(arm.max_time, 4),
+            unit.name_for(arm.max_time)
         ));
         let mut rows = Vec::new();
         for fit in file.fits.iter().filter(|f| f.arm == arm.arm) {
@@ -118,7 +119,8 @@ pub fn render_comparison(file: &FitFile) -> String {
                 })
                 .unwrap_or_default();
             let opt = |x: Option<f64>, d: usize| {
-                x.map(|v| format!("{v:.d$}")).unwrap_or_else(|| "NA".into())
+                x.map(|v| crate::format::fixed(v, d))
+                    .unwrap_or_else(|| "NA".into())
             };
             rows.push(vec![
                 if fit.converged {
@@ -173,23 +175,31 @@ pub fn render_comparison(file: &FitFile) -> String {
     out
 }
 
-/// One line describing a configured family's settings, times in `unit`.
+/// One line describing a configured family's settings, times in `unit`, for reading (10
+/// significant digits; the fit file keeps them at full precision).
 pub fn settings_text(settings: &families::FamilySettings, unit: TimeUnit) -> String {
+    // The unit follows the list: singular only after a lone 1 ("cut point at 1 month").
     let list = |v: &[f64]| {
-        v.iter()
-            .map(|x| crate::export::number_text(*x))
-            .collect::<Vec<_>>()
-            .join(", ")
+        let name = match v {
+            [one] => unit.name_for(*one),
+            _ => unit.name(),
+        };
+        format!("{} {name}", crate::format::readable_all(v).join(", "))
     };
     let mut parts = Vec::new();
     if let Some(scale) = &settings.scale {
         parts.push(format!("scale {scale}"));
     }
     if let Some(knots) = &settings.knots {
-        parts.push(format!("knots at {} {unit}", list(knots)));
+        parts.push(format!("knots at {}", list(knots)));
     }
     if let Some(cuts) = &settings.cuts {
-        parts.push(format!("cut points at {} {unit}", list(cuts)));
+        let what = if cuts.len() == 1 {
+            "cut point"
+        } else {
+            "cut points"
+        };
+        parts.push(format!("{what} at {}", list(cuts)));
     }
     parts.join("; ")
 }
@@ -261,8 +271,7 @@ pub fn run(args: FitArgs) -> Result<()> {
         ));
     }
     if let Some(path) = &args.json {
-        let json = serde_json::to_vec_pretty(&file)
-            .map_err(|e| Error::output(path, format!("cannot serialise: {e}")))?;
+        let json = crate::export::json::to_json_bytes(&file)?;
         output::write_atomic(path, &json)?;
         text.push_str(&format!("wrote {}\n", path.display()));
     }

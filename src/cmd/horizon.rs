@@ -8,12 +8,11 @@ use crate::curve::Curve;
 use crate::discretise::count_until;
 use crate::error::{Error, Result};
 use crate::export::json::MetadataMap;
-use crate::export::number_text;
-use crate::format::sig;
+use crate::format::{counted, readable, sig};
 use crate::horizon::{
-    boundary_log_survival, default_horizon, stable_count, suggested_count, truncation_table,
-    within_cycle_table, TruncationRow, WithinCycleRow, DEFAULT_HORIZON_SURVIVAL,
-    DEFAULT_HORIZON_YEARS, MAX_HORIZON_CYCLES,
+    boundary_log_survival, default_horizon, stable_count, stable_window, suggested_count,
+    truncation_table, within_cycle_table, TruncationRow, WithinCycleRow, DEFAULT_HORIZON_SURVIVAL,
+    DEFAULT_HORIZON_YEARS, MAX_HORIZON_CYCLES, STABLE_WINDOW_YEARS,
 };
 use crate::output;
 use clap::Args;
@@ -56,8 +55,10 @@ pub struct HorizonArgs {
 pub struct HorizonReport<'a> {
     /// Tool version, curve source and settings, caution.
     pub metadata: MetadataMap<'a>,
-    /// Time unit of every time and life-year figure.
+    /// Time unit of every time (cycle, horizon); not of life-years, see `life_years_unit`.
     pub time_unit: &'static str,
+    /// Unit of every life-year figure of `within_cycle`: always `years`.
+    pub life_years_unit: &'static str,
     /// Cycle length in `time_unit`.
     pub cycle: f64,
     /// Number of whole cycles to the horizon.
@@ -70,8 +71,11 @@ pub struct HorizonReport<'a> {
     pub discount: f64,
     /// Smallest count with both truncation errors within the tolerance.
     pub suggested_count: usize,
-    /// First tunnel after which p_exit changes by at most the tolerance (relative) from one tunnel to the next.
-    pub stable_count: usize,
+    /// First tunnel from which every later p_exit up to the horizon is within the tolerance
+    /// (relative) of its own, over at least `stable_window` tunnels; null when not reached.
+    pub stable_count: Option<usize>,
+    /// Fewest tunnels the stable stretch must span (two years of cycles, at least 2).
+    pub stable_window: usize,
     /// One row per candidate count 1..horizon_cycles.
     pub truncation: &'a [TruncationRow],
     /// One row per within-cycle method.
@@ -98,6 +102,20 @@ fn shown_counts(n: usize, keep: &[usize]) -> Vec<usize> {
     counts.sort_unstable();
     counts.dedup();
     counts
+}
+
+/// The printed answer for `stable_count`: the tunnel and what it means, or "not reached".
+pub fn stable_text(stable: Option<usize>, tolerance: f64, window: usize) -> String {
+    match stable {
+        Some(k) => format!(
+            "{k} (from tunnel {k} on, every p_exit up to the horizon is within {tolerance} relative of tunnel {k}'s, over at least {} = {STABLE_WINDOW_YEARS} years)",
+            counted(window, "tunnel")
+        ),
+        None => format!(
+            "not reached (no tunnel from which every later p_exit up to the horizon stays within {tolerance} relative of its own over at least {} = {STABLE_WINDOW_YEARS} years)",
+            counted(window, "tunnel")
+        ),
+    }
 }
 
 /// Runs `horizon`.
@@ -157,25 +175,28 @@ pub fn run(args: HorizonArgs) -> Result<()> {
     let truncation = truncation_table(&log_s, cycle.value);
     let suggested = suggested_count(&truncation, tolerance);
     let p_exit: Vec<f64> = truncation.iter().map(|r| r.p_exit_last).collect();
-    let stable = stable_count(&p_exit, tolerance);
+    let window = stable_window(cycle);
+    let stable = stable_count(&p_exit, tolerance, window);
     let within = within_cycle_table(curve, cycle, n, discount);
 
     let mut text = format!(
-        "curve: {}\ncycle: {} {}; horizon: {} {} = {n} cycles ({horizon_note}); times and life-years in {unit}\n\n",
+        "curve: {}\ncycle: {} {}; horizon: {} {} = {} ({horizon_note}); times in {unit}, life-years in years\n\n",
         curve.describe(),
-        number_text(cycle.value),
+        readable(cycle.value),
         unit.name_for(cycle.value),
-        number_text(horizon),
+        readable(horizon),
         unit.name_for(horizon),
+        counted(n, "cycle"),
     );
     text.push_str(&format!(
         "Truncation (chain cut at K tunnels, the last repeating its probability; tolerance {tolerance}):\n"
     ));
-    let rows: Vec<Vec<String>> = shown_counts(n, &[suggested, stable])
+    let marked: Vec<usize> = std::iter::once(suggested).chain(stable).collect();
+    let rows: Vec<Vec<String>> = shown_counts(n, &marked)
         .into_iter()
         .map(|k| {
             let r = &truncation[k - 1];
-            let mark = match (k == suggested, k == stable) {
+            let mark = match (k == suggested, Some(k) == stable) {
                 (true, true) => "suggested, stable",
                 (true, false) => "suggested",
                 (false, true) => "stable",
@@ -197,11 +218,12 @@ pub fn run(args: HorizonArgs) -> Result<()> {
     ));
     text.push_str(&format!(
         "suggested_count: {suggested} (smallest K with max_surv_gap and ly_rel_error both ≤ {tolerance})\n\
-         stable_count: {stable} (first tunnel after which p_exit changes by ≤ {tolerance} relative from one tunnel to the next)\n\n"
+         stable_count: {}\n\n",
+        stable_text(stable, tolerance, window)
     ));
     text.push_str(&format!(
-        "Within-cycle life-years to {} {} from survival at cycle boundaries; discounted at {} a year as (1 + r)^(-t) at each boundary:\n",
-        number_text(horizon),
+        "Within-cycle life-years (in years) to {} {} from survival at cycle boundaries; discounted at {} a year as (1 + r)^(-t) at each boundary:\n",
+        readable(horizon),
         unit.name_for(horizon),
         discount
     ));
@@ -246,16 +268,13 @@ pub fn run(args: HorizonArgs) -> Result<()> {
         metadata.push(("horizon_rule".into(), horizon_note.clone()));
         metadata.push((
             "cycle".into(),
-            format!(
-                "{} {}",
-                number_text(cycle.value),
-                unit.name_for(cycle.value)
-            ),
+            format!("{} {}", readable(cycle.value), unit.name_for(cycle.value)),
         ));
         metadata.push(("caution".into(), crate::CAUTION.into()));
         let report = HorizonReport {
             metadata: MetadataMap(&metadata),
             time_unit: unit.name(),
+            life_years_unit: "years",
             cycle: cycle.value,
             horizon_cycles: n,
             horizon,
@@ -263,12 +282,11 @@ pub fn run(args: HorizonArgs) -> Result<()> {
             discount,
             suggested_count: suggested,
             stable_count: stable,
+            stable_window: window,
             truncation: &truncation,
             within_cycle: &within,
         };
-        let mut bytes = serde_json::to_vec_pretty(&report)
-            .map_err(|e| Error::Computation(format!("cannot render JSON: {e}")))?;
-        bytes.push(b'\n');
+        let bytes = crate::export::json::to_json_bytes(&report)?;
         output::write_atomic(path, &bytes)?;
         text.push_str(&format!("wrote {}\n", path.display()));
     }

@@ -17,8 +17,8 @@ use crate::export::tunnel::{long_table, Layout};
 use crate::export::{exporter_for, number_text, unique_keys, Cell, Document, Table};
 use crate::fit::{fit_dataset, FamilyFit, FitFile};
 use crate::horizon::{
-    boundary_log_survival, default_horizon, stable_count, suggested_count, truncation_table,
-    within_cycle_table, TruncationRow, WithinCycleRow, DEFAULT_HORIZON_SURVIVAL,
+    boundary_log_survival, default_horizon, stable_count, stable_window, suggested_count,
+    truncation_table, within_cycle_table, TruncationRow, WithinCycleRow, DEFAULT_HORIZON_SURVIVAL,
     MAX_HORIZON_CYCLES,
 };
 use crate::input::{self, Dataset, InputOptions};
@@ -78,8 +78,11 @@ pub struct RunResult {
     pub truncation: Vec<TruncationRow>,
     /// Smallest count with both truncation errors within the tolerance.
     pub suggested_count: usize,
-    /// First tunnel after which p_exit is stable within the tolerance.
-    pub stable_count: usize,
+    /// First tunnel from which p_exit is stable within the tolerance (see
+    /// [`crate::horizon::stable_count`]); `None` when not reached within the horizon.
+    pub stable_count: Option<usize>,
+    /// Fewest tunnels the stable stretch must span.
+    pub stable_window: usize,
     /// The within-cycle table.
     pub within_cycle: Vec<WithinCycleRow>,
     /// The rebuild, when the data were rebuilt from a digitised curve (`[data] curve`).
@@ -115,10 +118,14 @@ impl RunResult {
             ),
             ("parameter_time_unit".into(), self.curve.unit.name().into()),
             (
+                "parameter_units".into(),
+                crate::families::parameter_units_text(family, self.curve.unit),
+            ),
+            (
                 "cycle".into(),
                 format!(
                     "{} {}",
-                    number_text(self.tunnels.cycle),
+                    crate::format::readable(self.tunnels.cycle),
                     self.tunnels.time_unit.name_for(self.tunnels.cycle)
                 ),
             ),
@@ -185,7 +192,19 @@ impl RunResult {
             ("horizon_rule".into(), self.horizon_rule.clone()),
             ("tolerance".into(), number_text(self.analysis.tolerance)),
             ("suggested_count".into(), self.suggested_count.to_string()),
-            ("stable_count".into(), self.stable_count.to_string()),
+            (
+                "stable_count".into(),
+                self.stable_count
+                    .map_or("not reached".into(), |k| k.to_string()),
+            ),
+            (
+                "stable_definition".into(),
+                format!(
+                    "first tunnel k from which every later p_exit up to the horizon is within the tolerance (relative) of p_exit(k), over at least {} tunnels ({} years)",
+                    self.stable_window,
+                    crate::horizon::STABLE_WINDOW_YEARS
+                ),
+            ),
         ]);
         let rows = self
             .truncation
@@ -384,11 +403,7 @@ impl RunResult {
         metadata.extend([
             ("horizon_cycles".into(), self.horizon_cycles.to_string()),
             ("discount".into(), number_text(self.analysis.discount)),
-            // The unit of every life-year column (the cycle's, as the table is computed).
-            (
-                "life_years_unit".into(),
-                self.analysis.cycle.unit.name().into(),
-            ),
+            ("life_years_unit".into(), "years".into()),
         ]);
         let rows = self
             .within_cycle
@@ -672,7 +687,8 @@ pub fn compute(
     let truncation = truncation_table(&log_s, cycle.value);
     let suggested = suggested_count(&truncation, analysis.tolerance);
     let p_exit: Vec<f64> = truncation.iter().map(|r| r.p_exit_last).collect();
-    let stable = stable_count(&p_exit, analysis.tolerance);
+    let window = stable_window(cycle);
+    let stable = stable_count(&p_exit, analysis.tolerance, window);
     let (count, count_rule) = match analysis.count {
         Count::Auto => (suggested, "auto: the suggested count".to_string()),
         Count::Fixed(n) => (n, "fixed in the analysis file".to_string()),
@@ -731,6 +747,7 @@ pub fn compute(
         truncation,
         suggested_count: suggested,
         stable_count: stable,
+        stable_window: window,
         within_cycle,
         rebuild: None,
     })
@@ -742,9 +759,7 @@ pub fn compute(
 /// report's date, the package's `created`); without it a rerun writes the same bytes.
 pub fn render_files(result: &RunResult, created: Option<u64>) -> Result<Vec<(String, Vec<u8>)>> {
     let mut files: Vec<(String, Vec<u8>)> = Vec::new();
-    let mut fit_json = serde_json::to_vec_pretty(&result.fits)
-        .map_err(|e| Error::Computation(format!("cannot render JSON: {e}")))?;
-    fit_json.push(b'\n');
+    let fit_json = crate::export::json::to_json_bytes(&result.fits)?;
     files.push(("fit.json".into(), fit_json));
     let mut documents = vec![
         ("tunnels", result.tunnel_document()),
@@ -783,16 +798,15 @@ pub fn render_files(result: &RunResult, created: Option<u64>) -> Result<Vec<(Str
         title: format!("Tunnel table: {}", result.curve.family.name()),
         table: &result.tunnels,
         colour: plot::family_colour(result.curve.family.name()),
-        markers: vec![
-            TunnelMarker {
-                label: "suggested count".into(),
-                tunnel: result.suggested_count,
-            },
-            TunnelMarker {
-                label: "p_exit stable from".into(),
-                tunnel: result.stable_count,
-            },
-        ],
+        markers: std::iter::once(TunnelMarker {
+            label: "suggested count".into(),
+            tunnel: result.suggested_count,
+        })
+        .chain(result.stable_count.map(|k| TunnelMarker {
+            label: "p_exit stable from".into(),
+            tunnel: k,
+        }))
+        .collect(),
     };
     figures.extend(plot::both("tunnels", &tunnel_plot)?);
     let horizon_plot = HorizonPlot {
@@ -858,14 +872,17 @@ pub fn summary(result: &RunResult, folder: &Path) -> String {
             "adjustments (in the tunnel table and the checks): {added}\n"
         ));
     }
+    let stable = match result.stable_count {
+        Some(k) => format!("p_exit stable from tunnel {k}"),
+        None => "p_exit stable: not reached within the horizon".to_string(),
+    };
     text.push_str(&format!(
-        "tunnel table: {} tunnel states of {} {} ({}); suggested count {}, p_exit stable from tunnel {} (tolerance {})\n",
-        result.tunnels.rows.len(),
-        number_text(result.tunnels.cycle),
+        "tunnel table: {} of {} {} ({}); suggested count {}, {stable} (tolerance {})\n",
+        crate::format::counted(result.tunnels.rows.len(), "tunnel state"),
+        crate::format::readable(result.tunnels.cycle),
         unit.name_for(result.tunnels.cycle),
         result.count_rule,
         result.suggested_count,
-        result.stable_count,
         result.analysis.tolerance
     ));
     if let Some(source) = &result.analysis.rebuild {

@@ -9,7 +9,7 @@ use crate::export::tunnel::{
     long_table, matrix_by_cause_table, matrix_table, tunnel_document, Layout,
 };
 use crate::export::{number_text, Cell, Table, Target};
-use crate::format::sig;
+use crate::format::{counted, readable, sig};
 use crate::output;
 use crate::units::{Duration, TimeUnit};
 use clap::Args;
@@ -92,7 +92,7 @@ pub fn header(
     let mut metadata = vec![("tool_version".to_string(), crate::VERSION.to_string())];
     metadata.extend(curve_metadata.iter().cloned());
     metadata.extend([
-        ("cycle".to_string(), format!("{} {}", number_text(table.cycle), table.time_unit.name_for(table.cycle))),
+        ("cycle".to_string(), format!("{} {}", readable(table.cycle), table.time_unit.name_for(table.cycle))),
         ("time_unit".to_string(), table.time_unit.name().to_string()),
         ("count".to_string(), table.rows.len().to_string()),
         ("layout".to_string(), layout.name().to_string()),
@@ -119,11 +119,11 @@ fn time_text(t: f64) -> String {
 pub fn render_text(table: &TunnelTable, layout: Layout) -> String {
     let unit = table.time_unit;
     let mut out = format!(
-        "curve: {}\ncycle: {} {}; {} tunnel states; times in {unit}\n",
+        "curve: {}\ncycle: {} {}; {}; times in {unit}\n",
         table.curve,
-        number_text(table.cycle),
+        readable(table.cycle),
         unit.name_for(table.cycle),
-        table.rows.len()
+        counted(table.rows.len(), "tunnel state")
     );
     match layout {
         Layout::Long => {
@@ -220,12 +220,33 @@ fn workbook_tables(
     let text = |s: &str| Cell::Text(s.to_string());
     let family = built.base.family;
     let mut rows = vec![vec![text("family"), text(family.name()), Cell::Missing]];
-    for (name, value) in family.param_names().iter().zip(&built.base.params) {
+    let unit = built.base.unit;
+    for ((name, value), kind) in family
+        .param_names()
+        .iter()
+        .zip(&built.base.params)
+        .zip(family.param_units())
+    {
         rows.push(vec![
             text(name),
             Cell::Number(*value),
-            text(built.base.unit.name()),
+            text(&kind.label(unit)),
         ]);
+    }
+    if let Some(settings) = family.settings() {
+        if let Some(scale) = &settings.scale {
+            rows.push(vec![text("spline_scale"), text(scale), Cell::Missing]);
+        }
+        let times = [("knot", settings.knots), ("cut", settings.cuts)];
+        for (what, values) in times {
+            for (i, t) in values.iter().flatten().enumerate() {
+                rows.push(vec![
+                    text(&format!("{what}_{}", i + 1)),
+                    Cell::Number(*t),
+                    text(unit.name()),
+                ]);
+            }
+        }
     }
     rows.push(vec![
         text("cycle"),
@@ -350,11 +371,11 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
                 None => String::new(),
             };
             output::print(&format!(
-                "wrote {} ({} tunnel states of {} {}, {} layout, {}{described})\n",
+                "wrote {} ({} of {} {}, {} layout, {}{described})\n",
                 target.path.display(),
-                table.rows.len(),
-                number_text(table.cycle),
-                table.time_unit,
+                counted(table.rows.len(), "tunnel state"),
+                readable(table.cycle),
+                table.time_unit.name_for(table.cycle),
                 args.layout.name(),
                 exporter.extension()
             ));

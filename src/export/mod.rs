@@ -253,7 +253,9 @@ pub fn known_formats() -> Vec<&'static str> {
 }
 
 /// A real number in its shortest form that reads back to the same `f64` (plain notation for
-/// ordinary magnitudes, exponent notation for very small or large ones); empty when not finite.
+/// ordinary magnitudes, exponent notation for very small or large ones); "0" for either zero;
+/// empty when not finite. For files and metadata a machine reads back; text for reading uses
+/// [`crate::format`].
 pub fn number_text(x: f64) -> String {
     let mut out = String::new();
     push_number_text(&mut out, x);
@@ -285,17 +287,23 @@ fn with_number_text(x: f64, emit: impl FnOnce(&str)) {
     if !x.is_finite() {
         return;
     }
+    // A zero is written "0" whatever its sign: "-0" (from -expm1(0), say) means nothing to a
+    // reader or a spreadsheet, and reads back equal to 0.
+    if x == 0.0 {
+        emit("0");
+        return;
+    }
     // Whole numbers (cycle boundaries, counts) skip the shortest-digit search: their digits
-    // are the integer's, as `{x}` writes them. Zero keeps the general path for its sign.
+    // are the integer's, as `{x}` writes them.
     // (`as i64` then back is exact for whole numbers below 1e15 and cheaper than `trunc`.)
-    if a < 1e15 && x != 0.0 && (x as i64) as f64 == x {
+    if a < 1e15 && (x as i64) as f64 == x {
         let mut buffer = itoa::Buffer::new();
         emit(buffer.format(x as i64));
         return;
     }
     let mut buffer = zmij::Buffer::new();
     let digits = buffer.format_finite(x);
-    let plain = a == 0.0 || (1e-5..1e16).contains(&a);
+    let plain = (1e-5..1e16).contains(&a);
     // zmij lays out plainly exactly when the shortest digits lie in [1e-5, 1e16); only values
     // near those limits can round across them, so only there is the text searched for 'e'.
     // (An exponent takes at most the last five bytes, "e-324", so only they are searched.)
@@ -337,7 +345,8 @@ mod tests {
         }
         assert_eq!(number_text(0.25), "0.25");
         assert_eq!(number_text(1.0), "1");
-        assert_eq!(number_text(-0.0), "-0");
+        assert_eq!(number_text(-0.0), "0");
+        assert_eq!(number_text(0.0), "0");
         assert_eq!(number_text(f64::NAN), "");
     }
 
@@ -373,14 +382,19 @@ mod tests {
             // Reference: the standard library's shortest round-trip formatting (`{}` and `{:e}`).
             // Both give the shortest digits that read back exactly; where two such strings
             // exist (a tie in the last digit) they may pick different ones, so the check is:
-            // exact read-back, the same length and the same notation.
+            // exact read-back, the same length and the same notation. Zero is "0" either way.
             for x in [f64::from_bits(bits), (bits as f64 / u64::MAX as f64) * 10f64.powi(scale)] {
                 let got = number_text(x);
                 if !x.is_finite() {
                     proptest::prop_assert_eq!(got, "");
                     continue;
                 }
-                let expected = if x == 0.0 || (1e-5..1e16).contains(&x.abs()) {
+                if x == 0.0 {
+                    // Either zero is written "0" (no "-0" in any output).
+                    proptest::prop_assert_eq!(got, "0");
+                    continue;
+                }
+                let expected = if (1e-5..1e16).contains(&x.abs()) {
                     format!("{x}")
                 } else {
                     format!("{x:e}")

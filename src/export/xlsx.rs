@@ -86,7 +86,8 @@ fn write_cell(sheet: &mut Worksheet, row: u32, col: u16, cell: &Cell) -> Result<
     let result = match cell {
         // Whole numbers up to 2^53 are exact as doubles, far beyond any tunnel or draw count.
         Cell::Int(i) => sheet.write_number(row, col, *i as f64).map(|_| ()),
-        Cell::Number(x) if x.is_finite() => sheet.write_number(row, col, *x).map(|_| ()),
+        // Adding +0 turns a negative zero into 0 (IEEE 754) and leaves every other value as is.
+        Cell::Number(x) if x.is_finite() => sheet.write_number(row, col, *x + 0.0).map(|_| ()),
         Cell::Number(x) => sheet.write_string(row, col, x.to_string()).map(|_| ()),
         Cell::Text(s) => sheet.write_string(row, col, s.as_str()).map(|_| ()),
         Cell::Missing => Ok(()),
@@ -289,6 +290,28 @@ mod tests {
                 .unwrap();
             assert_eq!(node.text(), Some("1980-01-01T00:00:00Z"), "{tag}");
         }
+    }
+
+    #[test]
+    fn negative_zero_is_stored_as_zero() {
+        // Read back with calamine: the sign bit of the stored zero must be clear.
+        let document = Document {
+            metadata: vec![],
+            tables: vec![Table {
+                name: "t".into(),
+                columns: vec!["p_exit".into(), "x".into()],
+                rows: vec![vec![Cell::Number(-0.0), Cell::Number(-2.5)]],
+            }],
+        };
+        let bytes = Xlsx.render(&document).unwrap();
+        let mut book = read_back(bytes);
+        let range = book.worksheet_range("t").unwrap();
+        match range.get((1, 0)) {
+            Some(Data::Float(y)) => assert_eq!(y.to_bits(), 0.0f64.to_bits()),
+            Some(Data::Int(0)) => {}
+            other => panic!("expected 0, got {other:?}"),
+        }
+        assert_eq!(range.get((1, 1)), Some(&Data::Float(-2.5)));
     }
 
     #[test]

@@ -8,7 +8,7 @@
 //! ln S, whose derivative in the base parameters is w·∂ln S_u with w = (1 - π)S_u/S, the base
 //! log-likelihood's gradient on the censored times weighted by w.
 
-use super::{Family, LogLogistic, LogNormal, Weibull};
+use super::{Family, LogLogistic, LogNormal, ParamUnit, Weibull};
 use crate::fit::FitData;
 use crate::numeric::{logistic, softplus};
 
@@ -87,6 +87,12 @@ impl Family for Cure {
     }
     fn param_names(&self) -> &'static [&'static str] {
         self.param_names
+    }
+    fn param_units(&self) -> Vec<ParamUnit> {
+        // The base family's parameters, then the cured fraction (a proportion).
+        let mut units = self.base.param_units();
+        units.push(ParamUnit::Unitless);
+        units
     }
     fn estimation_names(&self) -> &'static [&'static str] {
         self.estimation_names

@@ -1,6 +1,6 @@
 //! Exponential family: S(t) = exp(-rate·t), constant hazard `rate`; estimated as `ln_rate`.
 
-use super::{check_positive, Family};
+use super::{check_positive, Family, ParamUnit};
 use crate::fit::FitData;
 
 /// Constant hazard. The maximum-likelihood rate is events / total time at risk.
@@ -12,6 +12,9 @@ impl Family for Exponential {
     }
     fn param_names(&self) -> &'static [&'static str] {
         &["rate"]
+    }
+    fn param_units(&self) -> Vec<ParamUnit> {
+        vec![ParamUnit::PerTime]
     }
     fn estimation_names(&self) -> &'static [&'static str] {
         &["ln_rate"]

@@ -10,7 +10,7 @@
 //! of ln Γ(a) cancel analytically (Stirling remainder), stable for every q.
 
 use super::incomplete_gamma::{expm1_minus_x_over_x2, log_gamma_pq, stirlerr};
-use super::{check_finite, check_positive, quantile_by_bisection, Family};
+use super::{check_finite, check_positive, quantile_by_bisection, Family, ParamUnit};
 use crate::fit::{sum_terms, FitData};
 use crate::numeric::{expm1_over_x, inverse_mills, log_normal_sf, normal_quantile, LN_SQRT_2PI};
 
@@ -89,6 +89,9 @@ impl Family for GeneralizedGamma {
     }
     fn param_names(&self) -> &'static [&'static str] {
         &["mu", "sigma", "q"]
+    }
+    fn param_units(&self) -> Vec<ParamUnit> {
+        vec![ParamUnit::LogTime, ParamUnit::Unitless, ParamUnit::Unitless]
     }
     fn estimation_names(&self) -> &'static [&'static str] {
         &["mu", "ln_sigma", "q"]

@@ -1,7 +1,7 @@
 //! Gompertz family: hazard rate·e^(shape·t), S(t) = exp(-(rate/shape)(e^(shape·t) - 1));
 //! estimated as `shape`, `ln_rate`. Negative shape: survival levels off at exp(rate/shape).
 
-use super::{check_finite, check_positive, Family};
+use super::{check_finite, check_positive, Family, ParamUnit};
 use crate::fit::{sum_terms, FitData};
 use crate::numeric::{expm1_over_x, ln1p_over_x};
 
@@ -25,6 +25,10 @@ impl Family for Gompertz {
     }
     fn param_names(&self) -> &'static [&'static str] {
         &["shape", "rate"]
+    }
+    fn param_units(&self) -> Vec<ParamUnit> {
+        // The hazard is rate·e^(shape·t): both are per unit time.
+        vec![ParamUnit::PerTime, ParamUnit::PerTime]
     }
     fn estimation_names(&self) -> &'static [&'static str] {
         &["shape", "ln_rate"]

@@ -1,6 +1,6 @@
 //! Log-logistic family: S(t) = 1/(1 + (t/scale)^shape); estimated as `ln_shape`, `ln_scale`.
 
-use super::{check_positive, Family};
+use super::{check_positive, Family, ParamUnit};
 use crate::fit::{sum_terms, FitData};
 use crate::numeric::softplus;
 
@@ -13,6 +13,9 @@ impl Family for LogLogistic {
     }
     fn param_names(&self) -> &'static [&'static str] {
         &["shape", "scale"]
+    }
+    fn param_units(&self) -> Vec<ParamUnit> {
+        vec![ParamUnit::Unitless, ParamUnit::Time]
     }
     fn estimation_names(&self) -> &'static [&'static str] {
         &["ln_shape", "ln_scale"]

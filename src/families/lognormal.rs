@@ -1,7 +1,7 @@
 //! Log-normal family: S(t) = 1 - Φ((ln t - mu)/sigma); estimated as `mu`, `ln_sigma`.
 //! Log-survival uses the log upper-tail form of the normal, never ln(1 - Φ).
 
-use super::{check_finite, check_positive, Family};
+use super::{check_finite, check_positive, Family, ParamUnit};
 use crate::fit::{sum_terms, FitData};
 use crate::numeric::{
     inverse_mills, log_normal_sf, normal_pdf, normal_quantile, normal_sf, LN_SQRT_2PI,
@@ -16,6 +16,9 @@ impl Family for LogNormal {
     }
     fn param_names(&self) -> &'static [&'static str] {
         &["mu", "sigma"]
+    }
+    fn param_units(&self) -> Vec<ParamUnit> {
+        vec![ParamUnit::LogTime, ParamUnit::Unitless]
     }
     fn estimation_names(&self) -> &'static [&'static str] {
         &["mu", "ln_sigma"]

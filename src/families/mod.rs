@@ -12,6 +12,7 @@
 //! [`crate::fit::FamilyFit::family`] rebuilds the exact curve later.
 
 use crate::fit::FitData;
+use crate::units::TimeUnit;
 use serde::{Deserialize, Serialize};
 use std::sync::Mutex;
 
@@ -43,6 +44,10 @@ pub trait Family: Sync + Send {
 
     /// Natural parameter names, in order (interface names).
     fn param_names(&self) -> &'static [&'static str];
+
+    /// What each natural parameter is measured in, in the same order: the one place that says
+    /// which parameters carry the time unit (written beside the values in every output).
+    fn param_units(&self) -> Vec<ParamUnit>;
 
     /// Estimation-scale parameter names, in the same order (e.g. `ln_scale`).
     fn estimation_names(&self) -> &'static [&'static str];
@@ -149,6 +154,55 @@ pub trait Family: Sync + Send {
     fn rescaled_family(&self, _factor: f64) -> Option<&'static dyn Family> {
         None
     }
+}
+
+/// What a natural parameter is measured in, for a curve with time in some unit. Converting a
+/// curve to another unit (t_new = factor·t_old) multiplies a `Time` parameter by the factor,
+/// divides a `PerTime` one by it, adds ln(factor) to a `LogTime` one and leaves a `Unitless` one
+/// alone (tested against every family's `rescale_time`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ParamUnit {
+    /// A time: Weibull and log-logistic `scale`; spline knots and cut points.
+    Time,
+    /// Per unit time: rates (exponential, piecewise, Gompertz `rate`) and the Gompertz `shape`.
+    PerTime,
+    /// The logarithm of a time: log-normal and generalized-gamma `mu`.
+    LogTime,
+    /// A pure number, the same in every time unit: shapes, `sigma`, `q`, the cure fraction,
+    /// spline coefficients after `c0`.
+    Unitless,
+    /// A pure number whose value still depends on the time unit: the spline intercept `c0` of
+    /// s(ln t) (c0' = c0 - c1·ln factor).
+    LogTimeIntercept,
+}
+
+impl ParamUnit {
+    /// The unit as written beside a value with time in `unit`: `months`, `per month`,
+    /// `ln(months)`, `unitless`, or `unitless (intercept on ln t, t in months)`.
+    pub fn label(self, unit: TimeUnit) -> String {
+        let singular = unit.name_for(1.0);
+        match self {
+            ParamUnit::Time => unit.name().to_string(),
+            ParamUnit::PerTime => format!("per {singular}"),
+            ParamUnit::LogTime => format!("ln({})", unit.name()),
+            ParamUnit::Unitless => "unitless".to_string(),
+            ParamUnit::LogTimeIntercept => {
+                format!("unitless (intercept on ln t, t in {})", unit.name())
+            }
+        }
+    }
+}
+
+/// `name: unit; …` for every parameter of `family` with time in `unit`, as recorded in output
+/// metadata (`parameter_units`).
+pub fn parameter_units_text(family: &dyn Family, unit: TimeUnit) -> String {
+    family
+        .param_names()
+        .iter()
+        .zip(family.param_units())
+        .map(|(name, kind)| format!("{name}: {}", kind.label(unit)))
+        .collect::<Vec<_>>()
+        .join("; ")
 }
 
 /// Settings of a configured family, written to the fit file beside its parameters (an
@@ -478,6 +532,74 @@ pub(crate) mod tests {
                 }
             }
         }
+    }
+
+    /// Every family with example parameters, the configured ones configured.
+    fn every_family_with_examples() -> Vec<(&'static dyn Family, Vec<Vec<f64>>)> {
+        let mut out: Vec<(&'static dyn Family, Vec<Vec<f64>>)> =
+            all().into_iter().map(|f| (f, examples(f.name()))).collect();
+        out.push((
+            Piecewise::with_cuts(&[6.0, 12.0]).unwrap(),
+            vec![vec![0.05, 0.08, 0.12]],
+        ));
+        for scale in ["ph", "po", "probit"] {
+            let settings = FamilySettings {
+                scale: Some(scale.into()),
+                knots: Some(vec![0.5, 6.0, 40.0]),
+                cuts: None,
+            };
+            let name = format!("spline-{scale}-1");
+            out.push((
+                configured(&name, Some(&settings)).unwrap(),
+                vec![vec![-2.0, 1.1, 0.02]],
+            ));
+        }
+        out
+    }
+
+    #[test]
+    fn parameter_units_say_how_each_parameter_moves_with_the_time_unit() {
+        // Definitions of the units (dimensional analysis, common practice): a time scales with
+        // the factor, a rate with its inverse, a log-time shifts by ln(factor), a pure number
+        // stays; checked against each family's own exact rescaling.
+        let factor = 12.0 / 365.25;
+        for (family, examples) in every_family_with_examples() {
+            let units = family.param_units();
+            assert_eq!(units.len(), family.param_names().len(), "{}", family.name());
+            for p in examples {
+                let q = family.rescale_time(&p, factor);
+                for (i, kind) in units.iter().enumerate() {
+                    let expected = match kind {
+                        ParamUnit::Time => p[i] * factor,
+                        ParamUnit::PerTime => p[i] / factor,
+                        ParamUnit::LogTime => p[i] + factor.ln(),
+                        ParamUnit::Unitless => p[i],
+                        // c0' = c0 - c1·ln(factor) (Royston and Parmar, 2002: s is a function
+                        // of ln t).
+                        ParamUnit::LogTimeIntercept => p[i] - p[i + 1] * factor.ln(),
+                    };
+                    assert!(
+                        (q[i] - expected).abs() <= 1e-12 * expected.abs().max(1.0),
+                        "{} {}: {} vs {expected}",
+                        family.name(),
+                        family.param_names()[i],
+                        q[i]
+                    );
+                }
+            }
+        }
+        assert_eq!(
+            parameter_units_text(&LogNormal, TimeUnit::Months),
+            "mu: ln(months); sigma: unitless"
+        );
+        assert_eq!(
+            parameter_units_text(&Gompertz, TimeUnit::Days),
+            "shape: per day; rate: per day"
+        );
+        assert_eq!(
+            parameter_units_text(&CURE_WEIBULL, TimeUnit::Years),
+            "shape: unitless; scale: years; cure: unitless"
+        );
     }
 
     #[test]

@@ -3,7 +3,7 @@
 //! e.g. `rate[0,6)`, `rate[6,12)`, `rate[12,inf)`. Estimated as `ln_rate[…]`; the maximum
 //! likelihood estimate is closed-form: events / time at risk in each interval.
 
-use super::{check_positive, intern, leak_names, Family, FamilyOptions, FamilySettings};
+use super::{check_positive, intern, leak_names, Family, FamilyOptions, FamilySettings, ParamUnit};
 use crate::fit::FitData;
 
 /// Piecewise-constant hazard; proportional-hazards (a hazard ratio scales every rate).
@@ -30,9 +30,10 @@ fn check_cuts(cuts: &[f64]) -> Result<(), String> {
             return Err(format!("cut point {c} must be a positive time"));
         }
         if i > 0 && cuts[i - 1] >= *c {
+            let texts = crate::format::readable_all(&[cuts[i - 1], *c]);
             return Err(format!(
-                "cut points must increase: {} is followed by {c}",
-                cuts[i - 1]
+                "cut points must increase: {} is followed by {}",
+                texts[0], texts[1]
             ));
         }
     }
@@ -57,8 +58,9 @@ impl Piecewise {
             ..FamilySettings::default()
         };
         Ok(intern("piecewise", Some(settings), || {
+            // Readable bounds (a cut converted between units is not written 5.999999999999999).
             let bounds: Vec<String> = std::iter::once("0".to_string())
-                .chain(cuts.iter().map(|c| format!("{c}")))
+                .chain(crate::format::readable_all(cuts))
                 .chain(std::iter::once("inf".to_string()))
                 .collect();
             let names: Vec<String> = bounds
@@ -115,6 +117,9 @@ impl Family for Piecewise {
     }
     fn param_names(&self) -> &'static [&'static str] {
         self.param_names
+    }
+    fn param_units(&self) -> Vec<ParamUnit> {
+        vec![ParamUnit::PerTime; self.param_names.len()]
     }
     fn estimation_names(&self) -> &'static [&'static str] {
         self.estimation_names

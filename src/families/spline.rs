@@ -15,7 +15,7 @@
 //! slope exactly (it is quadratic between knots, constant outside) and rejects any parameter
 //! set where it is not positive, naming the time where survival would rise.
 
-use super::{intern, quantile_by_bisection, Family, FamilyOptions, FamilySettings};
+use super::{intern, quantile_by_bisection, Family, FamilyOptions, FamilySettings, ParamUnit};
 use crate::fit::{sum_terms, FitData};
 use crate::numeric::LN_SQRT_2PI;
 use crate::numeric::{inverse_mills, log_normal_sf, logistic, normal_quantile, softplus};
@@ -218,9 +218,10 @@ fn check_increasing(times: &[f64]) -> Result<(), String> {
             return Err(format!("knot {t} must be a positive time"));
         }
         if i > 0 && times[i - 1] >= *t {
+            let texts = crate::format::readable_all(&[times[i - 1], *t]);
             return Err(format!(
-                "knots must increase: {} is followed by {t}",
-                times[i - 1]
+                "knots must increase: {} is followed by {}",
+                texts[0], texts[1]
             ));
         }
     }
@@ -238,6 +239,13 @@ impl Family for Spline {
     }
     fn param_names(&self) -> &'static [&'static str] {
         &COEFFICIENT_NAMES[..self.internal + 2]
+    }
+    fn param_units(&self) -> Vec<ParamUnit> {
+        // s(ln t) = c0 + c1·ln t + …: c0 moves with the time unit (c0' = c0 - c1·ln factor),
+        // the others do not (the basis depends on differences of ln t only).
+        let mut units = vec![ParamUnit::LogTimeIntercept];
+        units.extend(vec![ParamUnit::Unitless; self.internal + 1]);
+        units
     }
     fn estimation_names(&self) -> &'static [&'static str] {
         &COEFFICIENT_NAMES[..self.internal + 2]

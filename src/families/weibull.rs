@@ -1,6 +1,6 @@
 //! Weibull family: S(t) = exp(-(t/scale)^shape); estimated as `ln_shape`, `ln_scale`.
 
-use super::{check_positive, Family};
+use super::{check_positive, Family, ParamUnit};
 use crate::fit::{sum_terms, FitData};
 
 /// Monotone hazard (increasing for shape > 1); both proportional-hazards and accelerated-failure-time.
@@ -12,6 +12,9 @@ impl Family for Weibull {
     }
     fn param_names(&self) -> &'static [&'static str] {
         &["shape", "scale"]
+    }
+    fn param_units(&self) -> Vec<ParamUnit> {
+        vec![ParamUnit::Unitless, ParamUnit::Time]
     }
     fn estimation_names(&self) -> &'static [&'static str] {
         &["ln_shape", "ln_scale"]

@@ -61,7 +61,7 @@ impl Plot for TunnelPlot<'_> {
                 &format!(
                     "Tunnel state (cycle of {} {} since entry)",
                     tick_label(self.table.cycle),
-                    self.table.time_unit
+                    self.table.time_unit.name_for(self.table.cycle)
                 ),
                 "p_exit (per cycle)",
             ),

@@ -6,7 +6,8 @@ tunnelcast uses), cumulative hazards of:
   * a waning hazard ratio, h(t) = h0(t) * X**w(t), w = 1 before START, linear to 0 at END,
     0 after, for a Weibull with an unbounded hazard at 0 and for a log-normal;
   * a hazard floored at a constant background hazard, max(h0(t), h_b), for a log-normal whose
-    hazard rises through h_b and falls back below it, with the crossings found by brentq.
+    hazard rises through h_b and falls back below it, with the crossings found by brentq, and
+    the relative rise of each quarter-year tunnel's exit probability that the floor causes.
 
 Needs SciPy and NumPy (pip install scipy numpy). Run from the repository root:
     python3 tests/reference/adjust_reference.py
@@ -81,6 +82,20 @@ def floor_case(name, mu, sigma, qx, start_age, times):
         for a, b in zip(edges, edges[1:]):
             total += integrate.quad(lambda u: max(hazard(u), h_b), a, b, **QUAD)[0]
         values.append(total)
+    # Per tunnel of quarter-year cycles (80 of them), the relative rise of p_exit that the
+    # floor causes: p_exit = 1 - exp(-∫ over the cycle of the hazard), with and without the
+    # floor, each integral by quad on the hazard itself (split at the crossings).
+    cycle = 0.25
+    rises = []
+    for k in range(80):
+        a, b = k * cycle, (k + 1) * cycle
+        edges = [a] + [c for c in crossings if a < c < b] + [b]
+        with_floor = sum(
+            integrate.quad(lambda u: max(hazard(u), h_b), x, y, **QUAD)[0]
+            for x, y in zip(edges, edges[1:])
+        )
+        alone = sum(integrate.quad(hazard, x, y, **QUAD)[0] for x, y in zip(edges, edges[1:]))
+        rises.append(math.expm1(-with_floor) / math.expm1(-alone) - 1.0)
     return {
         "name": name,
         "kind": "floor",
@@ -94,6 +109,7 @@ def floor_case(name, mu, sigma, qx, start_age, times):
         "times": times,
         "cumulative_hazard": values,
         "crossings": crossings,
+        "quarter_year_p_exit_rise": rises,
     }
 
 
@@ -130,6 +146,7 @@ def main():
     ]
     for case in cases:
         case.setdefault("crossings", None)
+        case.setdefault("quarter_year_p_exit_rise", None)
     with open("tests/reference/adjust.json", "w") as out:
         json.dump({"generator": "tests/reference/adjust_reference.py (SciPy quad)", "cases": cases}, out, indent=1)
         out.write("\n")
