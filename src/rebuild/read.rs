@@ -4,8 +4,8 @@
 //! that names the row.
 
 use super::{Point, RiskRow};
+use crate::csv_read::{CsvReader, Settings};
 use crate::error::{Error, Result};
-use crate::input::{detect_delimiter, find_column, parse_number, strip_bom};
 
 /// Digitising tolerance on the proportion scale: values up to this far above 1 or below 0, and
 /// rises up to this size, are treated as noise and cleaned; larger ones are errors. Two
@@ -78,98 +78,42 @@ struct Row {
     arm: Option<String>,
 }
 
-/// Reads the named numeric columns (and the arm column) of a CSV file's bytes.
+/// Reads the named numeric columns (and the arm column) of a CSV file's bytes through the
+/// shared reading discipline.
 fn read_table(file: &str, bytes: &[u8], names: &[&str], arm_col: Option<&str>) -> Result<Table> {
-    let body = strip_bom(bytes);
-    if body.iter().all(|b| b.is_ascii_whitespace()) {
-        return Err(Error::input(
-            file,
-            "file is empty (expected a header row and data rows)",
-        ));
-    }
-    let mut reader = csv::ReaderBuilder::new()
-        .delimiter(detect_delimiter(body))
-        .flexible(true)
-        .has_headers(true)
-        .from_reader(body);
-    let headers = reader
-        .byte_headers()
-        .map_err(|e| Error::input(file, format!("cannot read the header row: {e}")))?
-        .clone();
+    let mut reader = CsvReader::new(file, bytes, Settings::default())?;
     let mut columns = Vec::new();
     for name in names {
-        columns.push((find_column(file, &headers, name)?, name.to_string()));
+        columns.push((reader.column(name)?, name.to_string()));
     }
     let arm = match arm_col {
-        Some(name) => Some((find_column(file, &headers, name)?, name.to_string())),
+        Some(name) => Some(reader.column(name)?),
         None => None,
     };
-    let needed = columns
-        .iter()
-        .map(|c| c.0)
-        .chain(arm.iter().map(|a| a.0))
-        .max()
-        .unwrap_or(0);
     let mut rows = Vec::new();
-    let mut record = csv::ByteRecord::new();
-    loop {
-        let line_hint = reader.position().line();
-        match reader.read_byte_record(&mut record) {
-            Ok(false) => break,
-            Ok(true) => {}
-            Err(e) => {
-                let line = e.position().map(|p| p.line()).unwrap_or(line_hint);
-                return Err(Error::input(
-                    file,
-                    format!("line {line}: malformed CSV: {e}"),
-                ));
-            }
-        }
-        let line = record.position().map(|p| p.line()).unwrap_or(line_hint);
-        if record.len() == 1 && record.get(0).is_some_and(|f| f.trim_ascii().is_empty()) {
-            continue;
-        }
-        if record.len() <= needed {
-            return Err(Error::at(
-                file,
-                line,
-                record.len() + 1,
-                &String::from_utf8_lossy(headers.get(needed).unwrap_or_default()),
-                format!(
-                    "row has {} field(s) but the header has {} (wrong delimiter?)",
-                    record.len(),
-                    headers.len()
-                ),
-            ));
-        }
-        let text = |idx: usize, name: &str| -> Result<&str> {
-            std::str::from_utf8(&record[idx])
-                .map_err(|_| Error::at(file, line, idx + 1, name, "value is not valid UTF-8"))
-        };
+    while let Some(row) = reader.next_row()? {
         let mut values = Vec::with_capacity(columns.len());
-        for (idx, name) in &columns {
-            let v = parse_number(text(*idx, name)?)
-                .map_err(|m| Error::at(file, line, idx + 1, name, m))?;
-            values.push(v);
+        for (idx, _) in &columns {
+            values.push(row.number(*idx)?);
         }
-        let arm_value = match &arm {
-            Some((idx, name)) => {
-                let v = text(*idx, name)?.trim();
+        let arm_value = match arm {
+            Some(idx) => {
+                let v = row.text(idx)?;
                 if v.is_empty() {
-                    return Err(Error::at(file, line, idx + 1, name, "arm is empty"));
+                    return Err(row.error(idx, "arm is empty"));
                 }
                 Some(v.to_string())
             }
             None => None,
         };
         rows.push(Row {
-            line,
+            line: row.line(),
             values,
             arm: arm_value,
         });
     }
     if rows.is_empty() {
-        return Err(Error::input(file, "no data rows after the header"));
+        return Err(reader.no_rows());
     }
     Ok(Table { columns, rows })
 }
@@ -550,6 +494,24 @@ mod tests {
             .unwrap_err()
             .to_string();
         assert!(err.starts_with("r.csv line 4 column 2"), "{err}");
+    }
+
+    #[test]
+    fn lines_are_physical_and_rows_are_checked_against_the_header() {
+        let err = |text: &[u8]| read_curves("c.csv", text, None).unwrap_err().to_string();
+        // CR-only line ends were counted as one line ("line 1" for the third line).
+        assert!(err(b"time,survival\r0,1\r2,x\r").starts_with("c.csv line 3 column 2"));
+        assert!(err(b"time,survival\n0,abc\n2,0.9\n").starts_with("c.csv line 2 column 2"));
+        // A decimal comma in a comma file was read as survival 0.
+        assert!(err(b"time,survival\n0,1\n2,0,9\n").contains("\"0,9\" (write 0.9)"));
+        let err = read_risk_tables("r.csv", b"time,at_risk\n0,50\n5,44,0\n", None)
+            .unwrap_err()
+            .to_string();
+        assert!(err.starts_with("r.csv line 3 column 1"), "{err}");
+        let err = read_risk_tables("r.csv", b"time,at_risk\n0,50\n5\n", None)
+            .unwrap_err()
+            .to_string();
+        assert!(err.starts_with("r.csv line 3 column 2"), "{err}");
     }
 
     proptest::proptest! {
