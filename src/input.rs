@@ -111,6 +111,60 @@ pub fn load(path: &Path, options: &InputOptions) -> Result<Dataset> {
 /// Most distinct arms accepted; more means `--arm-col` probably names a subject identifier.
 pub const MAX_ARMS: usize = 1000;
 
+/// The words every "say the time unit" message uses: the units and, when known, the range of
+/// the times (`"; they run from 0.3 to 40.2"`), so the user can tell days from months.
+pub fn time_unit_needed(what: &str, file: &str, range: Option<(f64, f64)>) -> String {
+    let units: Vec<&str> = crate::units::ALL_UNITS.iter().map(|u| u.name()).collect();
+    // Four significant digits, no trailing zeros: "0.3", "40.25", "1.5e+06".
+    let short = |x: f64| {
+        if x == 0.0 || !x.is_finite() {
+            return format!("{x}");
+        }
+        // Rounded by the formatter (correctly), then printed in its shortest form.
+        let r: f64 = format!("{x:.3e}").parse().unwrap_or(x);
+        if (1e-4..1e7).contains(&r.abs()) {
+            format!("{r}")
+        } else {
+            format!("{r:e}")
+        }
+    };
+    let range = range
+        .map(|(lo, hi)| format!("; they run from {} to {}", short(lo), short(hi)))
+        .unwrap_or_default();
+    format!(
+        "{what} is required: say what the times in {} are in ({}){range}",
+        shown(file),
+        units.join(", ")
+    )
+}
+
+/// Smallest and largest value of the numeric column `column`, over the rows that read cleanly
+/// (best effort, for messages: `None` when the file or the column cannot be read).
+pub fn column_range(bytes: &[u8], column: &str) -> Option<(f64, f64)> {
+    let mut reader = CsvReader::new("", bytes, Settings::default()).ok()?;
+    let idx = reader.column(column).ok()?;
+    let mut range: Option<(f64, f64)> = None;
+    while let Ok(Some(row)) = reader.next_row() {
+        if let Ok(v) = row.number(idx) {
+            range = Some(range.map_or((v, v), |(lo, hi)| (lo.min(v), hi.max(v))));
+        }
+    }
+    range
+}
+
+impl Dataset {
+    /// Smallest and largest time over every arm.
+    pub fn time_range(&self) -> Option<(f64, f64)> {
+        let times = self
+            .arms
+            .iter()
+            .flat_map(|a| a.records.iter().map(|r| r.time));
+        times.fold(None, |acc, t| {
+            Some(acc.map_or((t, t), |(lo, hi): (f64, f64)| (lo.min(t), hi.max(t))))
+        })
+    }
+}
+
 /// Validates the bytes of a time-to-event CSV into a sorted dataset.
 pub fn parse(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Dataset> {
     // The checksum does not depend on the rows, so it is computed on another core meanwhile.
@@ -290,6 +344,26 @@ mod tests {
             .unwrap_err()
             .to_string()
             .contains("no data rows"));
+    }
+
+    #[test]
+    fn the_time_unit_message_lists_the_units_and_the_range() {
+        assert_eq!(
+            time_unit_needed("--time-unit", "data.csv", Some((0.3, 40.249))),
+            "--time-unit is required: say what the times in data.csv are in (days, weeks, months, years); they run from 0.3 to 40.25"
+        );
+        assert!(
+            time_unit_needed("x", "d.csv", Some((0.01, 1.5e6))).ends_with("from 0.01 to 1500000")
+        );
+        assert!(time_unit_needed("x", "d.csv", Some((1e-5, 2.5e8))).ends_with("from 1e-5 to 2.5e8"));
+        assert!(time_unit_needed("x", "d.csv", None).ends_with("years)"));
+        let data = parse_str("time,event\n3,1\n0.5,0\n12,1\n").unwrap();
+        assert_eq!(data.time_range(), Some((0.5, 12.0)));
+        assert_eq!(
+            column_range(b"a,time\nx,4\ny,-2\nz,q\n", "time"),
+            Some((-2.0, 4.0))
+        );
+        assert_eq!(column_range(b"a,b\n1,2\n", "time"), None);
     }
 
     #[test]
