@@ -39,7 +39,7 @@ PY
 
 measure() { # label rows columns file [extra fit options]
     local rc=0
-    /usr/bin/time -v "$BIN" fit "$4" "${@:5}" --json "$WORK/fit.json" --force >"$WORK/stdout" 2>"$WORK/time" || rc=$?
+    /usr/bin/time -v "$BIN" fit "$4" --time-unit days "${@:5}" --json "$WORK/fit.json" --force >"$WORK/stdout" 2>"$WORK/time" || rc=$?
     local kb secs mb
     kb=$(awk -F': ' '/Maximum resident set size/ {print $2}' "$WORK/time")
     secs=$(awk -F': ' '/Elapsed \(wall clock\)/ {print $2}' "$WORK/time")

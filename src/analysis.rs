@@ -481,7 +481,25 @@ impl Analysis {
                 .get_ref()
                 .parse()
                 .map_err(|e: String| bad(u.span(), format!("[data] time_unit: {e}")))?,
-            None => TimeUnit::Days,
+            None => {
+                // Said with the range of the times when the file can be read (best effort; a
+                // bad file is reported in full once the unit is given).
+                let (shown_file, column) = match (&data.file, &data.curve) {
+                    (Some(f), _) => (
+                        f.get_ref().clone(),
+                        data.time_column.as_deref().unwrap_or("time"),
+                    ),
+                    (_, Some(c)) => (c.get_ref().clone(), "time"),
+                    _ => (String::new(), "time"),
+                };
+                let range = std::fs::read(&data_path)
+                    .ok()
+                    .and_then(|bytes| crate::input::column_range(&bytes, column));
+                return Err(bad(
+                    data_span,
+                    crate::input::time_unit_needed("[data] time_unit", &shown_file, range),
+                ));
+            }
         };
 
         let fit = raw.fit.unwrap_or(RawFit {

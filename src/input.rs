@@ -1,9 +1,10 @@
 //! Time-to-event CSV input: the one place where raw rows become a validated, sorted
 //! [`Dataset`] that later code trusts without re-checking.
 //!
-//! Accepts a header row, UTF-8 with or without a byte-order mark, CRLF or LF line ends,
-//! quoted fields, and a comma, semicolon or tab delimiter (detected from the header unless set).
+//! Rows are read through the shared discipline of [`crate::csv_read`] (encoding, delimiter,
+//! field counts, line numbers, number syntax); this module adds what a time-to-event file means.
 
+use crate::csv_read::{CsvReader, Settings};
 use crate::error::{Error, Result};
 use crate::format::shown;
 use sha2::{Digest, Sha256};
@@ -92,6 +93,9 @@ impl Dataset {
     }
 }
 
+/// Number syntax shared by every reader and option value (kept here for older callers).
+pub use crate::csv_read::parse_number;
+
 /// Lower-case hex SHA-256 of some bytes.
 pub fn sha256_hex(bytes: &[u8]) -> String {
     let digest = Sha256::digest(bytes);
@@ -100,120 +104,64 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
 
 /// Reads and validates a time-to-event CSV file.
 pub fn load(path: &Path, options: &InputOptions) -> Result<Dataset> {
-    let name = path.display().to_string();
-    let bytes =
-        std::fs::read(path).map_err(|e| Error::input(&name, format!("cannot read: {e}")))?;
-    parse(&name, &bytes, options)
-}
-
-/// Detects the delimiter from the header line: the most frequent of `,`, `;` and tab.
-pub fn detect_delimiter(bytes: &[u8]) -> u8 {
-    let header_end = bytes
-        .iter()
-        .position(|&b| b == b'\n' || b == b'\r')
-        .unwrap_or(bytes.len());
-    let header = &bytes[..header_end];
-    let count = |d: u8| header.iter().filter(|&&b| b == d).count();
-    [b',', b';', b'\t']
-        .into_iter()
-        .max_by_key(|&d| (count(d), d == b','))
-        .unwrap_or(b',')
-}
-
-/// Strips a UTF-8 byte-order mark.
-pub fn strip_bom(bytes: &[u8]) -> &[u8] {
-    bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes)
-}
-
-/// 1-based line of the first non-blank byte at or after `offset` in `body`, counting LF, CRLF
-/// and lone CR as line ends (the csv reader's own line count misses lone CRs and points at
-/// blank lines before a record).
-pub fn line_at(body: &[u8], offset: u64) -> u64 {
-    let mut start = (offset as usize).min(body.len());
-    while start < body.len() && (body[start] == b'\n' || body[start] == b'\r') {
-        start += 1;
-    }
-    let before = &body[..start];
-    let mut lines = 1;
-    for (i, &b) in before.iter().enumerate() {
-        if b == b'\n' || (b == b'\r' && before.get(i + 1) != Some(&b'\n')) {
-            lines += 1;
-        }
-    }
-    lines
+    let bytes = crate::csv_read::read_file(path)?;
+    parse(&path.display().to_string(), &bytes, options)
 }
 
 /// Most distinct arms accepted; more means `--arm-col` probably names a subject identifier.
 pub const MAX_ARMS: usize = 1000;
 
-/// Finds a named column in a header; errors when missing or duplicated.
-pub fn find_column(file: &str, headers: &csv::ByteRecord, name: &str) -> Result<usize> {
-    let matches: Vec<usize> = headers
-        .iter()
-        .enumerate()
-        .filter(|(_, h)| String::from_utf8_lossy(h).trim() == name)
-        .map(|(i, _)| i)
-        .collect();
-    match matches.as_slice() {
-        [one] => Ok(*one),
-        [] => {
-            let names: Vec<String> = headers
-                .iter()
-                .take(12)
-                .map(|h| shown(String::from_utf8_lossy(h).trim()))
-                .collect();
-            let refs: Vec<&str> = names.iter().map(String::as_str).collect();
-            let hint = crate::units::nearest(name, &refs)
-                .map(|n| format!(" (did you mean \"{n}\"?)"))
-                .unwrap_or_default();
-            Err(Error::at(
-                file,
-                1,
-                headers.len().max(1),
-                name,
-                format!(
-                    "no column named \"{}\"{hint}; the header has: {}{}",
-                    shown(name),
-                    names.join(", "),
-                    if headers.len() > 12 { ", …" } else { "" }
-                ),
-            ))
+/// The words every "say the time unit" message uses: the units and, when known, the range of
+/// the times (`"; they run from 0.3 to 40.2"`), so the user can tell days from months.
+pub fn time_unit_needed(what: &str, file: &str, range: Option<(f64, f64)>) -> String {
+    let units: Vec<&str> = crate::units::ALL_UNITS.iter().map(|u| u.name()).collect();
+    // Four significant digits, no trailing zeros: "0.3", "40.25", "1.5e+06".
+    let short = |x: f64| {
+        if x == 0.0 || !x.is_finite() {
+            return format!("{x}");
         }
-        [first, second, ..] => Err(Error::at(
-            file,
-            1,
-            second + 1,
-            name,
-            format!(
-                "column \"{}\" appears more than once (columns {} and {})",
-                shown(name),
-                first + 1,
-                second + 1
-            ),
-        )),
-    }
+        // Rounded by the formatter (correctly), then printed in its shortest form.
+        let r: f64 = format!("{x:.3e}").parse().unwrap_or(x);
+        if (1e-4..1e7).contains(&r.abs()) {
+            format!("{r}")
+        } else {
+            format!("{r:e}")
+        }
+    };
+    let range = range
+        .map(|(lo, hi)| format!("; they run from {} to {}", short(lo), short(hi)))
+        .unwrap_or_default();
+    format!(
+        "{what} is required: say what the times in {} are in ({}){range}",
+        shown(file),
+        units.join(", ")
+    )
 }
 
-/// Parses a numeric field, trimming spaces; the error explains what is wrong with it.
-pub fn parse_number(raw: &str) -> std::result::Result<f64, String> {
-    let text = raw.trim();
-    if text.is_empty() {
-        return Err("value is empty".into());
-    }
-    match text.parse::<f64>() {
-        Ok(v) if v.is_finite() => Ok(v),
-        Ok(v) => Err(format!("\"{}\" is not a finite number ({v})", shown(text))),
-        Err(_) => {
-            let hint = if text.contains(',')
-                && (text.replace(',', ".").parse::<f64>().is_ok()
-                    || text.replace(',', "").parse::<f64>().is_ok())
-            {
-                " (a decimal comma or a thousands separator? write plain numbers with a decimal point, e.g. 1234.5)"
-            } else {
-                ""
-            };
-            Err(format!("\"{}\" is not a number{hint}", shown(text)))
+/// Smallest and largest value of the numeric column `column`, over the rows that read cleanly
+/// (best effort, for messages: `None` when the file or the column cannot be read).
+pub fn column_range(bytes: &[u8], column: &str) -> Option<(f64, f64)> {
+    let mut reader = CsvReader::new("", bytes, Settings::default()).ok()?;
+    let idx = reader.column(column).ok()?;
+    let mut range: Option<(f64, f64)> = None;
+    while let Ok(Some(row)) = reader.next_row() {
+        if let Ok(v) = row.number(idx) {
+            range = Some(range.map_or((v, v), |(lo, hi)| (lo.min(v), hi.max(v))));
         }
+    }
+    range
+}
+
+impl Dataset {
+    /// Smallest and largest time over every arm.
+    pub fn time_range(&self) -> Option<(f64, f64)> {
+        let times = self
+            .arms
+            .iter()
+            .flat_map(|a| a.records.iter().map(|r| r.time));
+        times.fold(None, |acc, t| {
+            Some(acc.map_or((t, t), |(lo, hi): (f64, f64)| (lo.min(t), hi.max(t))))
+        })
     }
 }
 
@@ -228,37 +176,18 @@ pub fn parse(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Dataset
 
 /// [`parse`] without the checksum (left empty).
 fn parse_rows(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Dataset> {
-    let sha256 = String::new();
-    if bytes.starts_with(b"\xFF\xFE") || bytes.starts_with(b"\xFE\xFF") {
-        return Err(Error::at(
-            file,
-            1,
-            1,
-            &options.time_col,
-            "the file is UTF-16 encoded; save it as UTF-8 CSV",
-        ));
-    }
-    let body = strip_bom(bytes);
-    if body.iter().all(|b| b.is_ascii_whitespace()) {
-        return Err(Error::input(
-            file,
-            "file is empty (expected a header row and data rows)",
-        ));
-    }
-    let delimiter = options.delimiter.unwrap_or_else(|| detect_delimiter(body));
-    let mut reader = csv::ReaderBuilder::new()
-        .delimiter(delimiter)
-        .flexible(true)
-        .has_headers(true)
-        .from_reader(body);
-    let headers = reader
-        .byte_headers()
-        .map_err(|e| Error::input(file, format!("cannot read the header row: {e}")))?
-        .clone();
-    let time_idx = find_column(file, &headers, &options.time_col)?;
-    let event_idx = find_column(file, &headers, &options.event_col)?;
+    let mut reader = CsvReader::new(
+        file,
+        bytes,
+        Settings {
+            delimiter: options.delimiter,
+            comments: false,
+        },
+    )?;
+    let time_idx = reader.column(&options.time_col)?;
+    let event_idx = reader.column(&options.event_col)?;
     let arm_idx = match &options.arm_col {
-        Some(name) => Some(find_column(file, &headers, name)?),
+        Some(name) => Some(reader.column(name)?),
         None => None,
     };
 
@@ -266,69 +195,10 @@ fn parse_rows(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Datase
     let mut arm_slots: std::collections::HashMap<Option<String>, usize> =
         std::collections::HashMap::new();
     let mut zero_times_replaced = 0;
-    let mut record = csv::ByteRecord::new();
-    loop {
-        let offset_hint = reader.position().byte();
-        match reader.read_byte_record(&mut record) {
-            Ok(false) => break,
-            Ok(true) => {}
-            Err(e) => {
-                let offset = e.position().map(|p| p.byte()).unwrap_or(offset_hint);
-                return Err(Error::input(
-                    file,
-                    format!("line {}: malformed CSV: {e}", line_at(body, offset)),
-                ));
-            }
-        }
-        let offset = record.position().map(|p| p.byte()).unwrap_or(offset_hint);
-        let line = || line_at(body, offset);
-        // Blank lines and rows of empty fields (spreadsheets export ",," for empty rows) carry no data.
-        if record.iter().all(|f| f.trim_ascii().is_empty()) {
-            continue;
-        }
-        // Extra trailing fields are tolerated only when empty (a trailing delimiter); any other
-        // mismatch means the columns are not where the header says they are.
-        let filled = record
-            .iter()
-            .rposition(|f| !f.trim_ascii().is_empty())
-            .map_or(0, |i| i + 1);
-        if record.len() < headers.len() || filled > headers.len() {
-            let (fields, column) = if record.len() < headers.len() {
-                (record.len(), record.len() + 1)
-            } else {
-                (filled, headers.len() + 1)
-            };
-            let name = headers
-                .get(column - 1)
-                .map(|h| String::from_utf8_lossy(h).trim().to_string())
-                .unwrap_or_else(|| "beyond the header".into());
-            return Err(Error::at(
-                file,
-                line(),
-                column,
-                &name,
-                format!(
-                    "row has {fields} field(s) but the header has {} (wrong delimiter, a decimal comma or thousands separator, or an unquoted delimiter in a value?)",
-                    headers.len()
-                ),
-            ));
-        }
-        let field = |idx: usize, name: &str| -> Result<&str> {
-            std::str::from_utf8(&record[idx])
-                .map_err(|_| Error::at(file, line(), idx + 1, name, "value is not valid UTF-8"))
-        };
-        let time_name = options.time_col.as_str();
-        let raw_time = field(time_idx, time_name)?;
-        let mut time = parse_number(raw_time)
-            .map_err(|m| Error::at(file, line(), time_idx + 1, time_name, m))?;
+    while let Some(row) = reader.next_row()? {
+        let mut time = row.number(time_idx)?;
         if time < 0.0 {
-            return Err(Error::at(
-                file,
-                line(),
-                time_idx + 1,
-                time_name,
-                format!("time {time} is negative"),
-            ));
+            return Err(row.error(time_idx, format!("time {time} is negative")));
         }
         if time == 0.0 {
             match options.zero_time {
@@ -337,27 +207,19 @@ fn parse_rows(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Datase
                     zero_times_replaced += 1;
                 }
                 None => {
-                    return Err(Error::at(
-                        file,
-                        line(),
-                        time_idx + 1,
-                        time_name,
+                    return Err(row.error(
+                        time_idx,
                         "time is 0; survival times must be positive (add --zero-time VALUE to replace zero times by a stated small positive time, e.g. half a day)",
                     ))
                 }
             }
         }
-        let event_name = options.event_col.as_str();
-        let raw_event = field(event_idx, event_name)?.trim();
-        let event = match raw_event {
+        let event = match row.text(event_idx)? {
             "1" | "1.0" => true,
             "0" | "0.0" => false,
             other => {
-                return Err(Error::at(
-                    file,
-                    line(),
-                    event_idx + 1,
-                    event_name,
+                return Err(row.error(
+                    event_idx,
                     format!(
                         "event must be 1 (event) or 0 (censored), got \"{}\"",
                         shown(other)
@@ -365,26 +227,22 @@ fn parse_rows(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Datase
                 ))
             }
         };
-        let arm = match (arm_idx, &options.arm_col) {
-            (Some(idx), Some(name)) => {
-                let value = field(idx, name)?.trim();
+        let arm = match arm_idx {
+            Some(idx) => {
+                let value = row.text(idx)?;
                 if value.is_empty() {
-                    return Err(Error::at(file, line(), idx + 1, name, "arm is empty"));
+                    return Err(row.error(idx, "arm is empty"));
                 }
                 Some(value.to_string())
             }
-            _ => None,
+            None => None,
         };
         let slot = match arm_slots.get(&arm) {
             Some(&i) => i,
             None => {
                 if arms.len() == MAX_ARMS {
-                    let idx = arm_idx.unwrap_or(0);
-                    return Err(Error::at(
-                        file,
-                        line(),
-                        idx + 1,
-                        options.arm_col.as_deref().unwrap_or_default(),
+                    return Err(row.error(
+                        arm_idx.unwrap_or(0),
                         format!(
                             "more than {MAX_ARMS} distinct arms; does --arm-col name the treatment arm rather than a subject identifier?"
                         ),
@@ -401,7 +259,7 @@ fn parse_rows(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Datase
         arms[slot].records.push(Record { time, event });
     }
     if arms.is_empty() {
-        return Err(Error::input(file, "no data rows after the header"));
+        return Err(reader.no_rows());
     }
     for arm in &mut arms {
         arm.records.sort_by(|a, b| {
@@ -425,7 +283,7 @@ fn parse_rows(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Datase
     }
     Ok(Dataset {
         file: file.to_string(),
-        sha256,
+        sha256: String::new(),
         arms,
         zero_times_replaced,
     })
@@ -489,6 +347,26 @@ mod tests {
     }
 
     #[test]
+    fn the_time_unit_message_lists_the_units_and_the_range() {
+        assert_eq!(
+            time_unit_needed("--time-unit", "data.csv", Some((0.3, 40.249))),
+            "--time-unit is required: say what the times in data.csv are in (days, weeks, months, years); they run from 0.3 to 40.25"
+        );
+        assert!(
+            time_unit_needed("x", "d.csv", Some((0.01, 1.5e6))).ends_with("from 0.01 to 1500000")
+        );
+        assert!(time_unit_needed("x", "d.csv", Some((1e-5, 2.5e8))).ends_with("from 1e-5 to 2.5e8"));
+        assert!(time_unit_needed("x", "d.csv", None).ends_with("years)"));
+        let data = parse_str("time,event\n3,1\n0.5,0\n12,1\n").unwrap();
+        assert_eq!(data.time_range(), Some((0.5, 12.0)));
+        assert_eq!(
+            column_range(b"a,time\nx,4\ny,-2\nz,q\n", "time"),
+            Some((-2.0, 4.0))
+        );
+        assert_eq!(column_range(b"a,b\n1,2\n", "time"), None);
+    }
+
+    #[test]
     fn zero_time_replacement_is_counted() {
         let options = InputOptions {
             zero_time: Some(0.5),
@@ -517,7 +395,12 @@ mod tests {
         let err = parse_str("time,event\n2,0,1\n3,1\n")
             .unwrap_err()
             .to_string();
-        assert!(err.contains("line 2 column 3"), "{err}");
+        // Now also named as a possible decimal comma, at the first field of the split value.
+        assert!(err.contains("line 2 column 1"), "{err}");
+        assert!(
+            err.contains("\"2,0\" (write 2.0) or \"0,1\" (write 0.1)"),
+            "{err}"
+        );
         let err = parse_str("time,event,note\n2,1\n").unwrap_err().to_string();
         assert!(err.contains("line 2 column 3"), "{err}");
         // Trailing delimiters (empty extra fields) and all-empty rows are harmless.
@@ -537,7 +420,6 @@ mod tests {
             .unwrap_err()
             .to_string();
         assert!(err.contains("line 4 "), "{err}");
-        assert_eq!(line_at(b"a\r\nb\rc\nd", 9), 4);
     }
 
     #[test]

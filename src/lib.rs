@@ -12,6 +12,7 @@ pub mod adjust;
 pub mod analysis;
 pub mod cli;
 pub mod cmd;
+pub mod csv_read;
 pub mod curve;
 pub mod discretise;
 pub mod draws;

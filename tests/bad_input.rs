@@ -1,8 +1,10 @@
-//! Hostile and malformed inputs for `tunnelcast fit`: every file in `tests/bad_input/` (and the
-//! large ones generated here at run time) is run through the real binary in a fresh folder with
-//! `--json out.json`, and the outcome is checked against `tests/bad_input/manifest.tsv`
+//! Hostile and malformed inputs for every CSV reader, run through the real binary in a fresh
+//! folder: time-to-event files through `fit` (`tests/bad_input/`, plus large ones generated here
+//! at run time), life tables through `tunnels --background` (`tests/bad_input/life_table/`),
+//! digitised points and risk tables through `rebuild` (`tests/bad_input/digitised/`,
+//! `tests/bad_input/at_risk/`). Each outcome is checked against the folder's `manifest.tsv`
 //! (written by `scripts/make_bad_input.py`; expected outcomes are the project's input rules
-//! from the interface contract, common practice for CSV files).
+//! from the interface contract and docs/robustness.md, common practice for CSV files).
 
 mod shell;
 use shell::listing;
@@ -11,11 +13,131 @@ use assert_cmd::Command;
 use std::path::{Path, PathBuf};
 use tunnelcast::fit::FitFile;
 
+/// Which reader a corpus is for, and how its files are run.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Reader {
+    TimeToEvent,
+    LifeTable,
+    Digitised,
+    AtRisk,
+}
+
+/// The digitised curve every risk table of the corpus is read against (see make_bad_input.py).
+const RISK_CURVE: &str = "time,survival\n0,1\n5,0.9\n10,0.8\n20,0.7\n";
+
+impl Reader {
+    fn folder(self) -> PathBuf {
+        let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/bad_input");
+        match self {
+            Reader::TimeToEvent => root,
+            Reader::LifeTable => root.join("life_table"),
+            Reader::Digitised => root.join("digitised"),
+            Reader::AtRisk => root.join("at_risk"),
+        }
+    }
+
+    /// The command line for `file`, before the case's own arguments.
+    fn command(self, file: &str) -> Vec<String> {
+        let words: Vec<&str> = match self {
+            Reader::TimeToEvent => vec!["fit", file, "--time-unit", "days", "--json", "out.json"],
+            Reader::LifeTable => vec![
+                "tunnels",
+                "--family",
+                "exponential",
+                "--param",
+                "rate=0.01",
+                "--time-unit",
+                "years",
+                "--cycle",
+                "1 year",
+                "--count",
+                "3",
+                "--background",
+                file,
+                "--start-age",
+                "50",
+                "--background-mode",
+                "add",
+                "--out",
+                "out.csv",
+            ],
+            Reader::Digitised => vec![
+                "rebuild",
+                "--curve",
+                file,
+                "--patients",
+                "50",
+                "--out",
+                "out.csv",
+            ],
+            Reader::AtRisk => vec![
+                "rebuild",
+                "--curve",
+                "curve.csv",
+                "--at-risk",
+                file,
+                "--out",
+                "out.csv",
+            ],
+        };
+        words.into_iter().map(str::to_string).collect()
+    }
+
+    /// Files a successful run leaves beside the input (a CSV output with its descriptor).
+    fn outputs(self) -> Vec<&'static str> {
+        match self {
+            Reader::TimeToEvent => vec!["out.json"],
+            Reader::AtRisk => vec!["curve.csv", "out.csv", "out.resource.json"],
+            _ => vec!["out.csv", "out.resource.json"],
+        }
+    }
+
+    /// Items an accepted file was read as: records (from the fit file), ages, cleaned points or
+    /// risk-table rows (from the library's reader on the same bytes).
+    fn count(self, dir: &Path, file: &str, args: &[String]) -> std::result::Result<usize, String> {
+        let bytes = std::fs::read(dir.join(file)).unwrap();
+        match self {
+            Reader::TimeToEvent => {
+                let text = std::fs::read_to_string(dir.join("out.json")).unwrap();
+                let fit: FitFile = serde_json::from_str(&text)
+                    .map_err(|e| format!("fit file does not read back: {e}"))?;
+                Ok(fit.data.n)
+            }
+            Reader::LifeTable => {
+                use tunnelcast::adjust::lifetable::{parse, Sex};
+                let sex = match args
+                    .iter()
+                    .position(|a| a == "--sex")
+                    .map(|i| args[i + 1].as_str())
+                {
+                    Some("female") => Some(Sex::Female),
+                    Some("male") => Some(Sex::Male),
+                    _ => None,
+                };
+                parse(file, &bytes, sex)
+                    .map(|t| t.qx.len())
+                    .map_err(|e| e.to_string())
+            }
+            Reader::Digitised => tunnelcast::rebuild::read_curves(file, &bytes, None)
+                .map(|c| c[0].points.len())
+                .map_err(|e| e.to_string()),
+            Reader::AtRisk => tunnelcast::rebuild::read_risk_tables(file, &bytes, None)
+                .map(|t| t[0].rows.len())
+                .map_err(|e| e.to_string()),
+        }
+    }
+}
+
 /// What the manifest says should happen to one input.
 #[derive(Debug)]
 enum Expect {
-    /// Read as this many records; the command exits with this status (0, or 1 when no family converged).
-    Accept { records: usize, exit: i32 },
+    /// Read as this many items; the command exits with this status (0, or 1 when no family
+    /// converged); `warn`: stderr carries a `warning:` line (and otherwise must not).
+    Accept {
+        records: usize,
+        exit: i32,
+        warn: bool,
+    },
     /// Exit 2 with a one-line error naming this line (and column, when given).
     RejectAt { line: u64, column: Option<usize> },
     /// Exit 2 with a one-line error about the file as a whole.
@@ -23,26 +145,29 @@ enum Expect {
 }
 
 struct Case {
+    reader: Reader,
     name: String,
     expect: Expect,
     args: Vec<String>,
     what: String,
 }
 
-fn corpus_dir() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/bad_input")
-}
-
 fn parse_expect(text: &str) -> Expect {
-    let words: Vec<&str> = text.split_whitespace().collect();
+    let mut words: Vec<&str> = text.split_whitespace().collect();
+    let warn = words.last() == Some(&"warn");
+    if warn {
+        words.pop();
+    }
     match words.as_slice() {
         ["accept", n] => Expect::Accept {
             records: n.parse().unwrap(),
             exit: 0,
+            warn,
         },
         ["accept", n, "exit", e] => Expect::Accept {
             records: n.parse().unwrap(),
             exit: e.parse().unwrap(),
+            warn,
         },
         ["reject", "file"] => Expect::RejectFile,
         ["reject", at] => {
@@ -56,14 +181,15 @@ fn parse_expect(text: &str) -> Expect {
     }
 }
 
-fn manifest() -> Vec<Case> {
-    let text = std::fs::read_to_string(corpus_dir().join("manifest.tsv")).unwrap();
+fn manifest(reader: Reader) -> Vec<Case> {
+    let text = std::fs::read_to_string(reader.folder().join("manifest.tsv")).unwrap();
     text.lines()
         .filter(|l| !l.starts_with('#') && !l.trim().is_empty())
         .map(|l| {
             let parts: Vec<&str> = l.split('\t').collect();
             assert_eq!(parts.len(), 4, "manifest line {l:?}");
             Case {
+                reader,
                 name: parts[0].to_string(),
                 expect: parse_expect(parts[1]),
                 args: parts[2].split_whitespace().map(str::to_string).collect(),
@@ -124,15 +250,21 @@ fn run_case(case: &Case) -> Option<String> {
     let file = if case.name.starts_with('@') {
         generate(&case.name, dir.path())
     } else {
-        std::fs::copy(corpus_dir().join(&case.name), dir.path().join(&case.name)).unwrap();
+        std::fs::copy(
+            case.reader.folder().join(&case.name),
+            dir.path().join(&case.name),
+        )
+        .unwrap();
         case.name.clone()
     };
+    if case.reader == Reader::AtRisk {
+        std::fs::write(dir.path().join("curve.csv"), RISK_CURVE).unwrap();
+    }
+    let before = listing(dir.path());
     let output = Command::cargo_bin("tunnelcast")
         .unwrap()
         .current_dir(dir.path())
-        .arg("fit")
-        .arg(&file)
-        .args(["--json", "out.json"])
+        .args(case.reader.command(&file))
         .args(&case.args)
         .output()
         .unwrap();
@@ -149,29 +281,42 @@ fn run_case(case: &Case) -> Option<String> {
     }
     let files = listing(dir.path());
     match case.expect {
-        Expect::Accept { records, exit } => {
+        Expect::Accept {
+            records,
+            exit,
+            warn,
+        } => {
             if code != Some(exit) {
                 return fail(format!("exit {code:?}, expected {exit}"));
             }
-            let mut expected = vec![file.clone(), "out.json".to_string()];
+            let mut expected: Vec<String> = case
+                .reader
+                .outputs()
+                .into_iter()
+                .map(str::to_string)
+                .chain([file.clone()])
+                .collect();
             expected.sort();
             if files != expected {
                 return fail(format!("folder holds {files:?}"));
             }
-            let text = std::fs::read_to_string(dir.path().join("out.json")).unwrap();
-            let fit: FitFile = match serde_json::from_str(&text) {
-                Ok(f) => f,
-                Err(e) => return fail(format!("fit file does not read back: {e}")),
-            };
-            if fit.data.n != records {
-                return fail(format!("{} records, expected {records}", fit.data.n));
+            if stderr.contains("warning:") != warn {
+                return fail(format!(
+                    "a warning was {}expected",
+                    if warn { "" } else { "not " }
+                ));
+            }
+            match case.reader.count(dir.path(), &file, &case.args) {
+                Ok(n) if n == records => {}
+                Ok(n) => return fail(format!("{n} items, expected {records}")),
+                Err(e) => return fail(e),
             }
         }
         Expect::RejectAt { .. } | Expect::RejectFile => {
             if code != Some(2) {
                 return fail(format!("exit {code:?}, expected 2"));
             }
-            if files != [file.clone()] {
+            if files != before {
                 return fail(format!("output left behind: {files:?}"));
             }
             let message = stderr.strip_suffix('\n').unwrap_or(&stderr);
@@ -205,12 +350,25 @@ fn run_case(case: &Case) -> Option<String> {
     None
 }
 
-#[test]
-fn corpus_has_at_least_forty_cases_and_every_file_is_listed() {
-    let cases = manifest();
-    assert!(cases.len() >= 40, "{} cases", cases.len());
+/// Every case of one corpus run; the failures, one line each.
+fn failures(reader: Reader, generated: bool) -> Vec<String> {
+    manifest(reader)
+        .iter()
+        .filter(|c| c.name.starts_with('@') == generated)
+        .filter_map(run_case)
+        .collect()
+}
+
+/// The corpus of `reader` has at least `least` cases, and every file in its folder is listed.
+fn check_listing(reader: Reader, least: usize) {
+    let cases = manifest(reader);
+    assert!(cases.len() >= least, "{} cases", cases.len());
     let listed: Vec<&str> = cases.iter().map(|c| c.name.as_str()).collect();
-    for name in listing(&corpus_dir()) {
+    let folder = reader.folder();
+    for name in listing(&folder) {
+        if folder.join(&name).is_dir() {
+            continue;
+        }
         assert!(
             name == "manifest.tsv" || listed.contains(&name.as_str()),
             "{name} is not in the manifest"
@@ -219,21 +377,34 @@ fn corpus_has_at_least_forty_cases_and_every_file_is_listed() {
 }
 
 #[test]
+fn every_corpus_has_its_cases_and_every_file_is_listed() {
+    check_listing(Reader::TimeToEvent, 40);
+    check_listing(Reader::LifeTable, 30);
+    check_listing(Reader::Digitised, 20);
+    check_listing(Reader::AtRisk, 15);
+}
+
+#[test]
 fn every_corpus_file_meets_its_stated_outcome() {
-    let failures: Vec<String> = manifest()
-        .iter()
-        .filter(|c| !c.name.starts_with('@'))
-        .filter_map(run_case)
-        .collect();
+    let failures = failures(Reader::TimeToEvent, false);
     assert!(failures.is_empty(), "{}", failures.join("\n"));
 }
 
 #[test]
 fn generated_large_inputs_meet_their_stated_outcome() {
-    let failures: Vec<String> = manifest()
-        .iter()
-        .filter(|c| c.name.starts_with('@'))
-        .filter_map(run_case)
-        .collect();
+    let failures = failures(Reader::TimeToEvent, true);
     assert!(failures.is_empty(), "{}", failures.join("\n"));
+}
+
+#[test]
+fn every_life_table_file_meets_its_stated_outcome() {
+    let failures = failures(Reader::LifeTable, false);
+    assert!(failures.is_empty(), "{}", failures.join("\n"));
+}
+
+#[test]
+fn every_digitised_and_risk_table_file_meets_its_stated_outcome() {
+    let mut found = failures(Reader::Digitised, false);
+    found.extend(failures(Reader::AtRisk, false));
+    assert!(found.is_empty(), "{}", found.join("\n"));
 }

@@ -94,7 +94,14 @@ fn option_errors_are_one_line_usage_errors() {
         ),
     ] {
         let out = tunnelcast(dir.path())
-            .args(["fit", "trial.csv", "--json", "fit.json"])
+            .args([
+                "fit",
+                "trial.csv",
+                "--time-unit",
+                "months",
+                "--json",
+                "fit.json",
+            ])
             .args(&args)
             .assert()
             .code(2);
@@ -161,6 +168,8 @@ fn spline_knots_are_recorded_settable_and_reused() {
         .args([
             "fit",
             "trial.csv",
+            "--time-unit",
+            "months",
             "--families",
             "spline-ph-2",
             "--knots",

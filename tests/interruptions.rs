@@ -26,7 +26,14 @@ fn interrupted_fit_leaves_nothing(signal: &str, number: i32) {
     write_large(&dir.path().join("big.csv"));
     let mut child = Command::new(env!("CARGO_BIN_EXE_tunnelcast"))
         .current_dir(dir.path())
-        .args(["fit", "big.csv", "--json", "out.json"])
+        .args([
+            "fit",
+            "big.csv",
+            "--time-unit",
+            "days",
+            "--json",
+            "out.json",
+        ])
         .stdout(Stdio::null())
         .stderr(Stdio::piped())
         .spawn()

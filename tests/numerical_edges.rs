@@ -199,7 +199,7 @@ fn run_fit(data: &str, extra: &[&str]) -> (i32, String, String, Option<tunnelcas
     let out = Command::cargo_bin("tunnelcast")
         .unwrap()
         .current_dir(dir.path())
-        .args(["fit", "d.csv", "--json", "fit.json"])
+        .args(["fit", "d.csv", "--time-unit", "days", "--json", "fit.json"])
         .args(extra)
         .output()
         .unwrap();

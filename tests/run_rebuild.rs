@@ -317,7 +317,7 @@ fn events_by_arm_without_an_arm_column_name_the_keys() {
     .unwrap();
     std::fs::write(
         dir.path().join("analysis.toml"),
-        "[data]\ncurve = \"curve.csv\"\nat_risk = \"risk.csv\"\nevents = { a = 50 }\n[tunnels]\ncycle = \"1 month\"\n",
+        "[data]\ncurve = \"curve.csv\"\nat_risk = \"risk.csv\"\nevents = { a = 50 }\ntime_unit = \"months\"\n[tunnels]\ncycle = \"1 month\"\n",
     )
     .unwrap();
     let out = tunnelcast(dir.path())

@@ -4,9 +4,11 @@
 //! Accepted layout: a header with `age` and either `qx` or both `qx_female` and `qx_male`; ages
 //! are consecutive whole years; every qx lies in [0, 1], and qx = 1 (certain death) only at the
 //! last age. Lines starting with `#` are comments (the bundled synthetic table labels itself so).
+//! Rows are read through the shared discipline of [`crate::csv_read`].
 
+use crate::csv_read::{CsvReader, Settings};
 use crate::error::{Error, Result};
-use crate::input::{detect_delimiter, find_column, parse_number, sha256_hex, strip_bom};
+use crate::input::sha256_hex;
 use std::path::Path;
 
 /// Which column of a two-sex life table to use.
@@ -61,78 +63,34 @@ impl LifeTable {
 
 /// Reads and validates a life table file, picking the column for `sex` when it has two.
 pub fn load(path: &Path, sex: Option<Sex>) -> Result<LifeTable> {
-    let name = path.display().to_string();
-    let bytes =
-        std::fs::read(path).map_err(|e| Error::input(&name, format!("cannot read: {e}")))?;
-    parse(&name, &bytes, sex)
+    let bytes = crate::csv_read::read_file(path)?;
+    parse(&path.display().to_string(), &bytes, sex)
 }
 
 /// Validates the bytes of a life table CSV (see the module documentation for the layout).
 pub fn parse(file: &str, bytes: &[u8], sex: Option<Sex>) -> Result<LifeTable> {
     let sha256 = sha256_hex(bytes);
-    let body = strip_bom(bytes);
-    // Each line is parsed on its own (life tables have no multi-line fields), so that line
-    // numbers in messages are those of the file whatever comments and blank lines it holds.
-    let mut lines = body
-        .split(|&b| b == b'\n')
-        .enumerate()
-        .map(|(i, l)| (i as u64 + 1, l.strip_suffix(b"\r").unwrap_or(l)))
-        .filter(|(_, l)| !l.trim_ascii().is_empty() && !l.starts_with(b"#"));
-    let Some((header_line, header_bytes)) = lines.next() else {
-        return Err(Error::input(
-            file,
-            "file is empty (expected a header row with age and qx, then one row per age)",
-        ));
-    };
-    let delimiter = detect_delimiter(header_bytes);
-    let read_line = |line: u64, bytes: &[u8]| -> Result<csv::ByteRecord> {
-        let mut record = csv::ByteRecord::new();
-        csv::ReaderBuilder::new()
-            .delimiter(delimiter)
-            .has_headers(false)
-            .from_reader(bytes)
-            .read_byte_record(&mut record)
-            .map_err(|e| Error::input(file, format!("line {line}: malformed CSV: {e}")))?;
-        Ok(record)
-    };
-    let headers = read_line(header_line, header_bytes)?;
-    // `find_column` reports the header as line 1; comments may have pushed it further down.
-    let at_header = |e: Error| match e {
-        Error::InputAt {
-            file,
-            column,
-            message,
-            ..
-        } => Error::InputAt {
-            file,
-            line: header_line,
-            column,
-            message,
+    let mut reader = CsvReader::new(
+        file,
+        bytes,
+        Settings {
+            delimiter: None,
+            comments: true,
         },
-        other => other,
-    };
-    let age_idx = find_column(file, &headers, "age").map_err(at_header)?;
-    let has = |name: &str| {
-        headers
-            .iter()
-            .any(|h| String::from_utf8_lossy(h).trim() == name)
-    };
-    let sex_columns = has("qx_female") || has("qx_male");
-    let columns: Vec<(String, usize)> = if sex_columns {
-        let female = find_column(file, &headers, "qx_female").map_err(at_header)?;
-        let male = find_column(file, &headers, "qx_male").map_err(at_header)?;
-        vec![("qx_female".into(), female), ("qx_male".into(), male)]
-    } else if has("qx") {
-        vec![(
-            "qx".into(),
-            find_column(file, &headers, "qx").map_err(at_header)?,
-        )]
+    )?;
+    let age_idx = reader.column("age")?;
+    let sex_columns = reader.has("qx_female") || reader.has("qx_male");
+    let columns: Vec<(&str, usize)> = if sex_columns {
+        vec![
+            ("qx_female", reader.column("qx_female")?),
+            ("qx_male", reader.column("qx_male")?),
+        ]
+    } else if reader.has("qx") {
+        vec![("qx", reader.column("qx")?)]
     } else {
-        return Err(Error::at(
-            file,
-            header_line,
-            headers.len().max(1),
-            "qx",
+        return Err(reader.error_at(
+            reader.header_line(),
+            reader.headers().len().max(1) - 1,
             "a life table needs a column \"qx\", or both \"qx_female\" and \"qx_male\"",
         ));
     };
@@ -152,49 +110,23 @@ pub fn parse(file: &str, bytes: &[u8], sex: Option<Sex>) -> Result<LifeTable> {
             )))
         }
     };
-    let needed = columns.iter().map(|c| c.1).max().unwrap_or(0).max(age_idx);
 
     let mut first_age: Option<u32> = None;
     let mut values: Vec<Vec<f64>> = vec![Vec::new(); columns.len()];
-    // Line and column of the row holding qx = 1 in each column, which must be the last row.
-    let mut certain_death: Vec<Option<(u64, usize)>> = vec![None; columns.len()];
-    for (line, bytes) in lines {
-        let record = read_line(line, bytes)?;
-        if record.len() <= needed {
-            let name = headers
-                .get(needed)
-                .map(|h| String::from_utf8_lossy(h).trim().to_string())
-                .unwrap_or_default();
-            return Err(Error::at(
-                file,
+    // Line and column of the row holding qx = 1, which must be the last row.
+    let mut certain_death: Option<(u64, usize)> = None;
+    while let Some(row) = reader.next_row()? {
+        if let Some((line, column)) = certain_death {
+            return Err(reader.error_at(
                 line,
-                record.len() + 1,
-                &name,
-                format!(
-                    "row has {} field(s) but the header has {}",
-                    record.len(),
-                    headers.len()
-                ),
-            ));
-        }
-        if let Some((dead_line, column)) = certain_death.iter().flatten().next() {
-            return Err(Error::at(
-                file,
-                *dead_line,
-                column + 1,
-                &columns.iter().find(|c| c.1 == *column).unwrap().0,
+                column,
                 "qx = 1 (certain death) is allowed only at the last age of the table",
             ));
         }
-        let text = |idx: usize| String::from_utf8_lossy(&record[idx]).into_owned();
-        let age = parse_number(&text(age_idx))
-            .map_err(|m| Error::at(file, line, age_idx + 1, "age", m))?;
+        let age = row.number(age_idx)?;
         if age < 0.0 || age.fract() != 0.0 || age > 200.0 {
-            return Err(Error::at(
-                file,
-                line,
-                age_idx + 1,
-                "age",
+            return Err(row.error(
+                age_idx,
                 format!("age {age} is not a whole number of years between 0 and 200"),
             ));
         }
@@ -204,11 +136,8 @@ pub fn parse(file: &str, bytes: &[u8], sex: Option<Sex>) -> Result<LifeTable> {
             Some(first) => {
                 let expected = first + values[0].len() as u32;
                 if age != expected {
-                    return Err(Error::at(
-                        file,
-                        line,
-                        age_idx + 1,
-                        "age",
+                    return Err(row.error(
+                        age_idx,
                         format!(
                             "age {age} follows age {}; ages must be consecutive whole years",
                             expected - 1
@@ -218,31 +147,31 @@ pub fn parse(file: &str, bytes: &[u8], sex: Option<Sex>) -> Result<LifeTable> {
             }
         }
         for (slot, (name, idx)) in columns.iter().enumerate() {
-            let q =
-                parse_number(&text(*idx)).map_err(|m| Error::at(file, line, idx + 1, name, m))?;
+            let q = row.number(*idx)?;
             if !(0.0..=1.0).contains(&q) {
-                return Err(Error::at(
-                    file,
-                    line,
-                    idx + 1,
-                    name,
-                    format!("{name} {q} is not a probability between 0 and 1"),
+                let hint = if q > 1.0 && q <= 1000.0 {
+                    " (per 1,000 or per 100,000 people? write the probability, e.g. 0.004787)"
+                } else {
+                    ""
+                };
+                return Err(row.error(
+                    *idx,
+                    format!("{name} {q} is not a probability between 0 and 1{hint}"),
                 ));
             }
-            if q == 1.0 {
-                certain_death[slot] = Some((line, *idx));
+            if q == 1.0 && certain_death.is_none() {
+                certain_death = Some((row.line(), *idx));
             }
             values[slot].push(q);
         }
     }
     let Some(first_age) = first_age else {
-        return Err(Error::input(file, "no rows after the header"));
+        return Err(reader.no_rows());
     };
-    let (column, _) = columns[chosen].clone();
     Ok(LifeTable {
         file: file.to_string(),
         sha256,
-        column,
+        column: columns[chosen].0.to_string(),
         first_age,
         qx: values.swap_remove(chosen),
     })
@@ -282,11 +211,11 @@ mod tests {
         );
         assert_eq!(
             err("# note\nage,qx\n50,0.01\n51,1.2\n"),
-            "life.csv line 4 column 2 (\"qx\"): qx 1.2 is not a probability between 0 and 1"
+            "life.csv line 4 column 2 (\"qx\"): qx 1.2 is not a probability between 0 and 1 (per 1,000 or per 100,000 people? write the probability, e.g. 0.004787)"
         );
         assert_eq!(
             err("age,qx\n50,0.01\n# a comment inside\n51,1.2\n"),
-            "life.csv line 4 column 2 (\"qx\"): qx 1.2 is not a probability between 0 and 1"
+            "life.csv line 4 column 2 (\"qx\"): qx 1.2 is not a probability between 0 and 1 (per 1,000 or per 100,000 people? write the probability, e.g. 0.004787)"
         );
         assert_eq!(
             err("age,qx\n50,1\n51,0.5\n"),
@@ -298,8 +227,22 @@ mod tests {
         assert!(err("years,qx\n50,0.1\n").starts_with("life.csv line 1"));
         assert!(err("# about\n\nyears,qx\n50,0.1\n").starts_with("life.csv line 3 column"));
         assert!(err("age,qx_female\n50,0.1\n").contains("qx_male"));
+        // Decimal commas through the shared reader (before it, "50,0,004787" under age,qx was
+        // read as qx = 0 and the rest dropped).
+        assert_eq!(
+            err("age,qx\n50,0,004787\n51,0,0052\n"),
+            "life.csv line 2 column 2 (\"qx\"): row has 3 fields but the header has 2: \"0,004787\" looks like a decimal comma: write 0.004787"
+        );
+        assert_eq!(
+            err("age;qx\n50;0,004787\n"),
+            "life.csv line 2 column 2 (\"qx\"): \"0,004787\" looks like a decimal comma: write 0.004787"
+        );
+        // Short and long rows.
+        assert!(err("age,qx\n50,0.01\n51\n")
+            .starts_with("life.csv line 3 column 2 (\"qx\"): row has 1 field(s)"));
+        assert!(err("age,qx\n50,0.01,x\n").starts_with("life.csv line 2 column 3"));
         assert!(err("").contains("empty"));
-        assert!(err("age,qx\n").contains("no rows"));
+        assert!(err("age,qx\n").contains("no data rows"));
     }
 
     #[test]

@@ -14,6 +14,7 @@ pub mod background;
 pub mod effects;
 pub mod floor;
 pub mod lifetable;
+pub mod plausible;
 
 use crate::curve::{Curve, ParametricCurve};
 use crate::error::{Error, Result};
@@ -164,6 +165,13 @@ impl Adjustments {
                 return Err(Error::Usage(format!(
                     "--start-age must be a non-negative number of years, got {}",
                     b.start_age
+                )));
+            }
+            if b.start_age > plausible::START_AGE_POSSIBLE {
+                return Err(Error::Usage(format!(
+                    "--start-age {} is impossible: nobody is known to have lived past {} years",
+                    b.start_age,
+                    plausible::START_AGE_POSSIBLE
                 )));
             }
         }
@@ -471,7 +479,7 @@ fn build(
     adjustments.validate()?;
     let family = base.family;
     let unit = base.unit;
-    let mut warnings = Vec::new();
+    let mut warnings = plausible::effect_warnings(adjustments);
     let mut metadata = Vec::new();
     let mut curve: Box<dyn Curve> = Box::new(base);
     if let Some(ratio) = adjustments.hazard_ratio {
@@ -513,6 +521,8 @@ fn build(
     }
     let combined = match (&adjustments.background, table) {
         (Some(settings), Some(table)) => {
+            warnings.extend(plausible::start_age_warnings(settings.start_age));
+            warnings.extend(plausible::life_table_warnings(&table));
             metadata.extend([
                 ("background_table".to_string(), table.file.clone()),
                 ("background_sha256".to_string(), table.sha256.clone()),

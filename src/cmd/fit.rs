@@ -30,9 +30,10 @@ pub struct FitArgs {
     /// Column naming the arm; each arm is fitted separately.
     #[arg(long)]
     pub arm_col: Option<String>,
-    /// Time unit of the data (days, weeks, months, years).
-    #[arg(long, default_value = "days")]
-    pub time_unit: TimeUnit,
+    /// Time unit of the data (days, weeks, months, years); required, since no default can be
+    /// right for every trial and a wrong one changes every table by an order of magnitude.
+    #[arg(long)]
+    pub time_unit: Option<TimeUnit>,
     /// Families to fit, comma-separated (default: the five standard families plus generalized-gamma).
     #[arg(long, value_delimiter = ',')]
     pub families: Vec<String>,
@@ -217,16 +218,33 @@ pub(crate) fn parse_durations(option: &str, text: &str, unit: TimeUnit) -> Resul
 
 /// Runs `fit`.
 pub fn run(args: FitArgs) -> Result<()> {
+    let Some(time_unit) = args.time_unit else {
+        // Said after reading the data, so the message can give the range of the times (and a
+        // bad file is reported first).
+        let options = InputOptions {
+            time_col: args.time_col.clone(),
+            event_col: args.event_col.clone(),
+            arm_col: args.arm_col.clone(),
+            delimiter: args.delimiter.filter(char::is_ascii).map(|c| c as u8),
+            zero_time: args.zero_time,
+        };
+        let data = input::load(&args.data, &options)?;
+        return Err(Error::Usage(input::time_unit_needed(
+            "--time-unit",
+            &args.data.display().to_string(),
+            data.time_range(),
+        )));
+    };
     let options = families::FamilyOptions {
         cuts: args
             .cuts
             .as_deref()
-            .map(|t| parse_durations("--cuts", t, args.time_unit))
+            .map(|t| parse_durations("--cuts", t, time_unit))
             .transpose()?,
         knots: args
             .knots
             .as_deref()
-            .map(|t| parse_durations("--knots", t, args.time_unit))
+            .map(|t| parse_durations("--knots", t, time_unit))
             .transpose()?,
     };
     let families = select_families_with(&args.families, &options)?;
@@ -260,14 +278,14 @@ pub fn run(args: FitArgs) -> Result<()> {
         zero_time: args.zero_time,
     };
     let data = input::load(&args.data, &options)?;
-    let file = fit_dataset(&data, &families, args.time_unit, args.zero_time);
+    let file = fit_dataset(&data, &families, time_unit, args.zero_time);
     let mut text = render_comparison(&file);
     if data.zero_times_replaced > 0 {
         text.push_str(&format!(
             "note: {} zero time(s) replaced by {} {}\n",
             data.zero_times_replaced,
             args.zero_time.unwrap_or(0.0),
-            args.time_unit
+            time_unit
         ));
     }
     if let Some(path) = &args.json {

@@ -162,6 +162,13 @@ pub fn cleaning_text(c: &Cleaning) -> String {
     if c.reordered {
         cleaned.push("rows sorted by time".to_string());
     }
+    if c.jitter_moved > 0 {
+        cleaned.push(format!(
+            "{} point(s) reordered top first among clicks less than {} apart in time",
+            c.jitter_moved,
+            sig(c.time_tolerance, 2)
+        ));
+    }
     if c.above_one > 0 {
         cleaned.push(format!("{} value(s) above 1 set to 1", c.above_one));
     }

@@ -909,6 +909,10 @@ pub fn execute(
     folder: &Path,
 ) -> Result<String> {
     let mut result = compute(analysis, data_bytes, lifetable_bytes)?;
+    // Printed as every command prints them; `metadata` records them in each output.
+    for w in result.adjusted.iter().flat_map(|a| &a.warnings) {
+        eprintln!("warning: {w}");
+    }
     result.rebuild = rebuilt;
     let files = render_files(&result, output::source_date_epoch()?)?;
     let staged = StagedFolder::new(folder)?;

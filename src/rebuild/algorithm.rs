@@ -409,6 +409,46 @@ mod tests {
     }
 
     #[test]
+    fn the_earlier_censoring_rate_is_rounded_half_away_from_zero() {
+        // The hand-worked curve followed to time 35 instead of 30, worked by hand through
+        // Guyot et al.'s (2012) steps with this module's documented choices (docs/rebuild.md):
+        //   Intervals (0, 10) and (10, 20) as before: censorings at 5 and 15, events at 2, 7,
+        //   12 and 18; 4 at risk at 20, rebuilt survival 0.54.
+        //   Last interval (20, 35), no total given: earlier rate 2 censorings / 20 = 0.1 per
+        //   unit; 0.1 · 15 = 1.5 censorings, rounded half away from zero → 2 (floor would give
+        //   1), spread evenly at 20 + 15·j/3 = 25 and 30.
+        //   t = 22: 4 at risk (no censoring before 22); bottom corner 0.405:
+        //           d = round(4 · (1 − 0.405/0.54)) = round(1.0) = 1 → Ŝ = 0.405, 3 at risk.
+        //   t = 25: censored → 2 at risk.
+        //   t = 26: bottom corner 0.27: d = round(2 · (1 − 0.27/0.405)) = round(0.667) = 1
+        //           → 1 at risk.
+        //   t = 30: censored → 0 at risk; none left at 35.
+        // With 1 censoring (floor) it would sit at 27.5, after the event at 26 (3 at risk there,
+        // d = round(3 · 1/3) = 1), and one patient would be censored at 35 instead.
+        let (mut points, risk, _) = hand_worked();
+        points.last_mut().unwrap().time = 35.0;
+        let rebuilt = rebuild(&points, &risk, None).unwrap();
+        let last = rebuilt.intervals.last().unwrap();
+        assert_eq!(last.rule, CensoringRule::EarlierRate(0.1));
+        assert_eq!((last.censored, last.events), (2, 2));
+        let censored: Vec<f64> = rebuilt
+            .records
+            .iter()
+            .filter(|r| !r.event)
+            .map(|r| r.time)
+            .collect();
+        assert_eq!(censored, vec![5.0, 15.0, 25.0, 30.0]);
+        let events: Vec<f64> = rebuilt
+            .records
+            .iter()
+            .filter(|r| r.event)
+            .map(|r| r.time)
+            .collect();
+        assert_eq!(events, vec![2.0, 7.0, 12.0, 18.0, 22.0, 26.0]);
+        assert_eq!(rebuilt.censored_at_end, 0);
+    }
+
+    #[test]
     fn too_few_total_events_is_an_error() {
         let (points, risk, _) = hand_worked();
         // Four events happen before the last table time (20); a total of 1 is beyond the slack

@@ -4,14 +4,21 @@
 //! that names the row.
 
 use super::{Point, RiskRow};
+use crate::csv_read::{CsvReader, Settings};
 use crate::error::{Error, Result};
-use crate::input::{detect_delimiter, find_column, parse_number, strip_bom};
 
 /// Digitising tolerance on the proportion scale: values up to this far above 1 or below 0, and
 /// rises up to this size, are treated as noise and cleaned; larger ones are errors. Two
 /// percentage points is about the width of a plotted line on a typical published figure
 /// (common practice, not a published figure).
 pub const TOLERANCE: f64 = 0.02;
+
+/// Sideways digitising tolerance, as a share of the last digitised time: clicks closer than this
+/// in time cannot be ordered by time (a drop's top corner can land just after its bottom one),
+/// so their survival values are put top first before rises are judged. A careful click lands within 2–3 pixels sideways, and a published figure's time axis
+/// is 500–1000 pixels wide, so the top corner of a drop can land up to about 0.5% of the axis
+/// after the bottom one (common practice, not a published figure).
+pub const TIME_TOLERANCE_SHARE: f64 = 0.005;
 
 /// A file's survival values are read as percentages when any value exceeds this.
 pub const PERCENT_THRESHOLD: f64 = 1.5;
@@ -27,6 +34,11 @@ pub struct Cleaning {
     pub largest_value: f64,
     /// Whether the rows were out of time order (they are sorted).
     pub reordered: bool,
+    /// Points whose survival value was moved to a neighbouring click less than the sideways
+    /// tolerance away, to put the top of a drop before its bottom.
+    pub jitter_moved: usize,
+    /// The sideways tolerance used, in the figure's time unit.
+    pub time_tolerance: f64,
     /// Values above 1 (100%) set to 1.
     pub above_one: usize,
     /// Values below 0 set to 0.
@@ -78,98 +90,42 @@ struct Row {
     arm: Option<String>,
 }
 
-/// Reads the named numeric columns (and the arm column) of a CSV file's bytes.
+/// Reads the named numeric columns (and the arm column) of a CSV file's bytes through the
+/// shared reading discipline.
 fn read_table(file: &str, bytes: &[u8], names: &[&str], arm_col: Option<&str>) -> Result<Table> {
-    let body = strip_bom(bytes);
-    if body.iter().all(|b| b.is_ascii_whitespace()) {
-        return Err(Error::input(
-            file,
-            "file is empty (expected a header row and data rows)",
-        ));
-    }
-    let mut reader = csv::ReaderBuilder::new()
-        .delimiter(detect_delimiter(body))
-        .flexible(true)
-        .has_headers(true)
-        .from_reader(body);
-    let headers = reader
-        .byte_headers()
-        .map_err(|e| Error::input(file, format!("cannot read the header row: {e}")))?
-        .clone();
+    let mut reader = CsvReader::new(file, bytes, Settings::default())?;
     let mut columns = Vec::new();
     for name in names {
-        columns.push((find_column(file, &headers, name)?, name.to_string()));
+        columns.push((reader.column(name)?, name.to_string()));
     }
     let arm = match arm_col {
-        Some(name) => Some((find_column(file, &headers, name)?, name.to_string())),
+        Some(name) => Some(reader.column(name)?),
         None => None,
     };
-    let needed = columns
-        .iter()
-        .map(|c| c.0)
-        .chain(arm.iter().map(|a| a.0))
-        .max()
-        .unwrap_or(0);
     let mut rows = Vec::new();
-    let mut record = csv::ByteRecord::new();
-    loop {
-        let line_hint = reader.position().line();
-        match reader.read_byte_record(&mut record) {
-            Ok(false) => break,
-            Ok(true) => {}
-            Err(e) => {
-                let line = e.position().map(|p| p.line()).unwrap_or(line_hint);
-                return Err(Error::input(
-                    file,
-                    format!("line {line}: malformed CSV: {e}"),
-                ));
-            }
-        }
-        let line = record.position().map(|p| p.line()).unwrap_or(line_hint);
-        if record.len() == 1 && record.get(0).is_some_and(|f| f.trim_ascii().is_empty()) {
-            continue;
-        }
-        if record.len() <= needed {
-            return Err(Error::at(
-                file,
-                line,
-                record.len() + 1,
-                &String::from_utf8_lossy(headers.get(needed).unwrap_or_default()),
-                format!(
-                    "row has {} field(s) but the header has {} (wrong delimiter?)",
-                    record.len(),
-                    headers.len()
-                ),
-            ));
-        }
-        let text = |idx: usize, name: &str| -> Result<&str> {
-            std::str::from_utf8(&record[idx])
-                .map_err(|_| Error::at(file, line, idx + 1, name, "value is not valid UTF-8"))
-        };
+    while let Some(row) = reader.next_row()? {
         let mut values = Vec::with_capacity(columns.len());
-        for (idx, name) in &columns {
-            let v = parse_number(text(*idx, name)?)
-                .map_err(|m| Error::at(file, line, idx + 1, name, m))?;
-            values.push(v);
+        for (idx, _) in &columns {
+            values.push(row.number(*idx)?);
         }
-        let arm_value = match &arm {
-            Some((idx, name)) => {
-                let v = text(*idx, name)?.trim();
+        let arm_value = match arm {
+            Some(idx) => {
+                let v = row.text(idx)?;
                 if v.is_empty() {
-                    return Err(Error::at(file, line, idx + 1, name, "arm is empty"));
+                    return Err(row.error(idx, "arm is empty"));
                 }
                 Some(v.to_string())
             }
             None => None,
         };
         rows.push(Row {
-            line,
+            line: row.line(),
             values,
             arm: arm_value,
         });
     }
     if rows.is_empty() {
-        return Err(Error::input(file, "no data rows after the header"));
+        return Err(reader.no_rows());
     }
     Ok(Table { columns, rows })
 }
@@ -283,6 +239,9 @@ pub fn read_curves(file: &str, bytes: &[u8], arm_col: Option<&str>) -> Result<Ve
             .any(|w| w[1].0 < w[0].0 || (w[1].0 == w[0].0 && w[1].1 > w[0].1));
         // Ties in time keep the top of a drop before its bottom.
         pts.sort_by(|a, b| a.0.total_cmp(&b.0).then(b.1.total_cmp(&a.1)));
+        let last_time = pts.last().map_or(0.0, |p| p.0);
+        cleaning.time_tolerance = TIME_TOLERANCE_SHARE * last_time;
+        cleaning.jitter_moved = top_first_within(&mut pts, cleaning.time_tolerance);
         let mut highest_earlier: Option<(f64, u64, f64)> = None;
         let mut lowest = f64::INFINITY;
         for p in &pts {
@@ -357,6 +316,42 @@ pub fn read_curves(file: &str, bytes: &[u8], arm_col: Option<&str>) -> Result<Ve
         });
     }
     Ok(curves)
+}
+
+/// Puts survival values top first among clicks less than `tolerance` apart in time: such
+/// clicks cannot be ordered by time (a drop's top corner can land just after its bottom one),
+/// so a higher value moves to the earlier click. No value ever moves more than `tolerance` from
+/// where it was clicked, so a mistyped value or a point from another curve still shows as a
+/// rise. Points are (time, survival, line, raw value), sorted by time; times stay, the other
+/// fields move together. Returns the number of points whose value moved.
+fn top_first_within(pts: &mut [(f64, f64, u64, f64)], tolerance: f64) -> usize {
+    if tolerance <= 0.0 {
+        return 0;
+    }
+    let times: Vec<f64> = pts.iter().map(|p| p.0).collect();
+    // Each value with the time it was clicked at.
+    let mut values: Vec<(f64, u64, f64, f64)> = pts.iter().map(|p| (p.1, p.2, p.3, p.0)).collect();
+    for i in 1..values.len() {
+        let mut j = i;
+        // Insertion: the value at j passes the one before it while it is higher and neither
+        // ends up more than `tolerance` from its own click.
+        while j > 0
+            && values[j].0 > values[j - 1].0
+            && times[j - 1] >= values[j].3 - tolerance
+            && times[j] <= values[j - 1].3 + tolerance
+        {
+            values.swap(j - 1, j);
+            j -= 1;
+        }
+    }
+    let mut moved = 0;
+    for (p, v) in pts.iter_mut().zip(values) {
+        if p.2 != v.1 {
+            moved += 1;
+        }
+        (p.1, p.2, p.3) = (v.0, v.1, v.2);
+    }
+    moved
 }
 
 /// Least-squares non-increasing fit to a sequence (pool adjacent violators, equal weights):
@@ -550,6 +545,55 @@ mod tests {
             .unwrap_err()
             .to_string();
         assert!(err.starts_with("r.csv line 4 column 2"), "{err}");
+    }
+
+    #[test]
+    fn a_top_corner_clicked_just_after_its_bottom_is_the_same_drop() {
+        // Drop from 0.9 to 0.87 at time 10 on an axis to 20 (tolerance 0.5% of 20 = 0.1): the
+        // bottom corner clicked at 9.97, the top at 10.03. Sorted by time that is a rise of
+        // 0.03, beyond the 0.02 tolerance; as one drop, the values are put top first.
+        let text = b"time,survival\n0,1\n5,0.9\n10.03,0.9\n9.97,0.87\n20,0.87\n";
+        let curve = &read_curves("c.csv", text, None).unwrap()[0];
+        let pts: Vec<(f64, f64)> = curve.points.iter().map(|p| (p.time, p.survival)).collect();
+        assert_eq!(
+            pts,
+            [
+                (0.0, 1.0),
+                (5.0, 0.9),
+                (9.97, 0.9),
+                (10.03, 0.87),
+                (20.0, 0.87)
+            ]
+        );
+        assert_eq!(curve.cleaning.jitter_moved, 2);
+        assert_eq!(curve.cleaning.monotone_changed, 0);
+        // 0.11 apart is beyond the tolerance: still a rise, and refused.
+        let text = b"time,survival\n0,1\n5,0.9\n10.08,0.9\n9.97,0.87\n20,0.87\n";
+        let err = read_curves("c.csv", text, None).unwrap_err().to_string();
+        assert!(err.starts_with("c.csv line 4 column 2"), "{err}");
+        // A mistyped low value cannot hide by moving: it moves at most the tolerance, and the
+        // next point shows the rise.
+        let text = b"time,survival\n0,1\n5,0.9\n9.97,0.5\n10.03,0.88\n12,0.87\n20,0.87\n";
+        let err = read_curves("c.csv", text, None).unwrap_err().to_string();
+        assert!(err.starts_with("c.csv line 6 column 2"), "{err}");
+    }
+
+    #[test]
+    fn lines_are_physical_and_rows_are_checked_against_the_header() {
+        let err = |text: &[u8]| read_curves("c.csv", text, None).unwrap_err().to_string();
+        // CR-only line ends were counted as one line ("line 1" for the third line).
+        assert!(err(b"time,survival\r0,1\r2,x\r").starts_with("c.csv line 3 column 2"));
+        assert!(err(b"time,survival\n0,abc\n2,0.9\n").starts_with("c.csv line 2 column 2"));
+        // A decimal comma in a comma file was read as survival 0.
+        assert!(err(b"time,survival\n0,1\n2,0,9\n").contains("\"0,9\" (write 0.9)"));
+        let err = read_risk_tables("r.csv", b"time,at_risk\n0,50\n5,44,0\n", None)
+            .unwrap_err()
+            .to_string();
+        assert!(err.starts_with("r.csv line 3 column 1"), "{err}");
+        let err = read_risk_tables("r.csv", b"time,at_risk\n0,50\n5\n", None)
+            .unwrap_err()
+            .to_string();
+        assert!(err.starts_with("r.csv line 3 column 2"), "{err}");
     }
 
     proptest::proptest! {

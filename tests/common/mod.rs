@@ -123,6 +123,53 @@ pub fn digitise(
     text
 }
 
+/// Digitising-like points of the exact Kaplan–Meier curve as a careful user clicks a printed
+/// figure, as CSV text in clicking order: both corners of every drop (top, then bottom), each
+/// click's time off by a uniform error of ±`time_jitter` on its own (so at a drop the top corner
+/// lands after the bottom one about half the time), survival read to ±`surv_noise`, and the end
+/// of follow-up clicked last.
+pub fn digitise_jittered(
+    records: &[Record],
+    seed: u64,
+    surv_noise: f64,
+    time_jitter: f64,
+) -> String {
+    let mut rng = Rng::new(seed);
+    let km = KaplanMeier::from_records(records);
+    let mut text = String::from("time,survival\n0,1\n");
+    let mut before = 1.0;
+    for step in km.steps.iter().filter(|s| s.events > 0) {
+        for s in [before, step.survival] {
+            let t = (step.time + time_jitter * (2.0 * rng.uniform() - 1.0)).max(0.0);
+            let v = s + surv_noise * (2.0 * rng.uniform() - 1.0);
+            text.push_str(&format!("{t},{v}\n"));
+        }
+        before = step.survival;
+    }
+    text.push_str(&format!("{},{before}\n", records.last().unwrap().time));
+    text
+}
+
+/// Whether the cleaning rule before the sideways tolerance would refuse `text`: sorted by time
+/// (ties top first), some point lies more than `tolerance` above the lowest earlier one.
+pub fn refused_without_sideways_tolerance(text: &str, tolerance: f64) -> bool {
+    let mut pts: Vec<(f64, f64)> = text
+        .lines()
+        .skip(1)
+        .map(|l| {
+            let (t, s) = l.split_once(',').unwrap();
+            (t.parse().unwrap(), s.parse().unwrap())
+        })
+        .collect();
+    pts.sort_by(|a, b| a.0.total_cmp(&b.0).then(b.1.total_cmp(&a.1)));
+    let mut lowest = f64::INFINITY;
+    pts.iter().any(|&(_, s)| {
+        let rise = s > lowest + tolerance;
+        lowest = lowest.min(s);
+        rise
+    })
+}
+
 /// Digitised text read and cleaned by the tool's own reader.
 pub fn clean(text: &str) -> Vec<Point> {
     read_curves("digitised.csv", text.as_bytes(), None)
@@ -137,10 +184,15 @@ pub fn clean(text: &str) -> Vec<Point> {
 /// [t - time_error, t + time_error]. Both curves are constant between jumps, so the supremum is
 /// reached at a jump time or just before one.
 pub fn sup_distance(a: &KaplanMeier, b: &KaplanMeier, time_error: f64) -> f64 {
-    one_way(a, b, time_error).max(one_way(b, a, time_error))
+    sup_distance_until(a, b, time_error, f64::INFINITY)
 }
 
-fn one_way(a: &KaplanMeier, b: &KaplanMeier, time_error: f64) -> f64 {
+/// [`sup_distance`] over the times up to `until` only (for a tail too thin to compare).
+pub fn sup_distance_until(a: &KaplanMeier, b: &KaplanMeier, time_error: f64, until: f64) -> f64 {
+    one_way(a, b, time_error, until).max(one_way(b, a, time_error, until))
+}
+
+fn one_way(a: &KaplanMeier, b: &KaplanMeier, time_error: f64, until: f64) -> f64 {
     let left_limit = |km: &KaplanMeier, t: f64| {
         let idx = km.steps.partition_point(|s| s.time < t);
         if idx == 0 {
@@ -150,7 +202,13 @@ fn one_way(a: &KaplanMeier, b: &KaplanMeier, time_error: f64) -> f64 {
         }
     };
     let mut worst: f64 = 0.0;
-    for t in a.steps.iter().chain(&b.steps).map(|s| s.time) {
+    for t in a
+        .steps
+        .iter()
+        .chain(&b.steps)
+        .map(|s| s.time)
+        .filter(|&t| t <= until)
+    {
         for (value, at) in [(a.survival_at(t), t), (left_limit(a, t), t)] {
             // Values of b over the window around `at`, b being non-increasing.
             let high = if time_error > 0.0 {

@@ -27,6 +27,36 @@ pub fn check_error(error: &Error) {
     assert_eq!(error.exit_code(), 2, "{message}");
 }
 
+/// A rejected file read through the shared reading discipline (`src/csv_read.rs`): the error
+/// names the file, and a place in it is a real one (line 1 up to the file's last physical line,
+/// counting LF, CRLF and lone CR; column 1 or more), or it is about the file as a whole.
+pub fn check_reader_error(error: &Error, body: &[u8]) {
+    check_error(error);
+    let lines = 1 + body
+        .iter()
+        .enumerate()
+        .filter(|&(i, &b)| b == b'\n' || (b == b'\r' && body.get(i + 1) != Some(&b'\n')))
+        .count() as u64;
+    match error {
+        Error::InputAt {
+            file, line, column, ..
+        } => {
+            assert_eq!(file, "fuzz.csv");
+            assert!((1..=lines).contains(line), "line {line} of {lines}");
+            let number: usize = column
+                .split(' ')
+                .next()
+                .and_then(|n| n.parse().ok())
+                .unwrap_or_else(|| panic!("column {column:?}"));
+            assert!(number >= 1, "{column}");
+        }
+        Error::Input { file, .. } => assert_eq!(file, "fuzz.csv"),
+        // The life table's --sex mismatch names the file in a usage error.
+        Error::Usage(message) => assert!(message.contains("fuzz.csv"), "{message}"),
+        other => panic!("unexpected error {other:?}"),
+    }
+}
+
 /// An accepted time-to-event file: every arm non-empty with an event, records finite, positive,
 /// sorted by time with events first at ties, arms distinct.
 pub fn check_dataset(data: &Dataset) {
@@ -75,7 +105,7 @@ pub fn time_to_event_csv(bytes: &[u8]) -> Option<Dataset> {
             Some(data)
         }
         Err(e) => {
-            check_error(&e);
+            check_reader_error(&e, body);
             None
         }
     }
@@ -137,7 +167,7 @@ pub fn life_table(bytes: &[u8]) {
             assert!(table.qx[..last].iter().all(|&q| q < 1.0));
             assert!(table.end_age().is_finite());
         }
-        Err(e) => check_error(&e),
+        Err(e) => check_reader_error(&e, body),
     }
 }
 
@@ -166,7 +196,7 @@ pub fn digitised(bytes: &[u8]) {
                     .all(|q| q.time.is_finite() && (0.0..=1.0).contains(&q.survival)));
             }
         }
-        Err(e) => check_error(&e),
+        Err(e) => check_reader_error(&e, body),
     }
     match read_risk_tables("fuzz.csv", body, arm) {
         Ok(tables) => {
@@ -180,6 +210,6 @@ pub fn digitised(bytes: &[u8]) {
                 }
             }
         }
-        Err(e) => check_error(&e),
+        Err(e) => check_reader_error(&e, body),
     }
 }
