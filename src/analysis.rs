@@ -263,6 +263,10 @@ pub struct Analysis {
     pub adjustments: Adjustments,
     /// Where `[adjust]` is written, for errors found when the adjustments are applied.
     pub adjust_place: Place,
+    /// The life table of `[adjust] background` as written in the analysis file (relative to
+    /// it): names the table in every output, message and warning, as the other commands name
+    /// it as given on the command line (the file is read from `adjustments`' resolved path).
+    pub background_name: Option<String>,
     /// Uncertainty draws from `[draws]`, if any.
     pub draws: Option<DrawSettings>,
 }
@@ -708,6 +712,10 @@ impl Analysis {
             formats,
             adjustments,
             adjust_place,
+            background_name: raw
+                .adjust
+                .as_ref()
+                .and_then(|a| a.get_ref().background.clone()),
             draws,
         })
     }
@@ -822,6 +830,7 @@ seed = 7
         assert_eq!((w.start.value, w.end.value), (3.0, 6.0));
         let b = adj.background.as_ref().unwrap();
         assert_eq!(b.path, PathBuf::from("/x/life.csv"));
+        assert_eq!(a.background_name.as_deref(), Some("life.csv"));
         assert_eq!(b.start_age, 62.0);
         assert_eq!(b.sex, Some(crate::adjust::lifetable::Sex::Male));
         assert_eq!(b.mode, crate::adjust::BackgroundMode::Add);

@@ -392,7 +392,7 @@ mod tests {
         let w = ParametricCurve::new(&Weibull, vec![1.5, 12.0], TimeUnit::Months).unwrap();
         // Γ(1 + 1/1.5) = Γ(5/3) = 0.902745292950934 (from memory, A&S table 6.1).
         assert!((w.restricted_mean(1e6) - 12.0 * 0.902_745_292_950_934).abs() < 1e-9);
-        // Restricted mean where the horizon cuts the curve: scale·Γ(1+1/k)·P(1+1/k, (τ/scale)^k),
+        // Restricted mean where the horizon cuts the curve: scale·Γ(1+1/k)·P(1/k, (τ/scale)^k),
         // compared with adaptive quadrature of S itself.
         let numeric = crate::numeric::integrate(|t| w.survival(t), 0.0, 10.0, 1e-13);
         assert!((w.restricted_mean(10.0) - numeric).abs() < 1e-9);

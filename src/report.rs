@@ -476,7 +476,9 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
         None => h.push_str("<p>None: the chosen curve is used as fitted (no hazard ratio, acceleration factor or background mortality was requested).</p>\n"),
         Some(adjusted) => {
             h.push_str("<p>The tunnel table, the truncation and the within-cycle checks use the chosen curve with these adjustments (<code>[adjust]</code> of the analysis file):</p>\n<dl>\n");
-            for (k, v) in &crate::cmd::run::adjusted_metadata(adjusted) {
+            // The floor lines over the tunnel table's count, as its files record them.
+            let floor = result.floor_report(result.tunnels.rows.len());
+            for (k, v) in adjusted.metadata.iter().chain(&floor) {
                 h.push_str(&format!("<dt>{}</dt><dd><code>{}</code></dd>\n", escape(k), escape(v)));
             }
             h.push_str("</dl>\n");

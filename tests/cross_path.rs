@@ -595,3 +595,607 @@ fn mpmath_reference_tables_agree_with_the_closed_forms_and_the_tunnel_tables() {
         }
     }
 }
+
+// Horizon leg: the life-years of the within-cycle table (in years) and the truncation table,
+// from `horizon --json` and from `run`'s within_cycle and truncation files (CSV and JSON), equal
+// to each other and to values computed without the library.
+
+/// Annual discount rate of the within-cycle tables: the default of `horizon --discount` and of
+/// an analysis file's `[tunnels] discount` (docs/tunnels.md, docs/report.md).
+const DISCOUNT: f64 = 0.035;
+
+/// Columns of `run`'s within-cycle files (docs/outputs.md).
+const WITHIN_COLUMNS: [&str; 9] = [
+    "method",
+    "life_years",
+    "exact",
+    "error",
+    "rel_error",
+    "discounted_life_years",
+    "discounted_exact",
+    "discounted_error",
+    "discounted_rel_error",
+];
+
+/// A within-cycle table: per method, the numbers of [`WITHIN_COLUMNS`] after `method`.
+type WithinRows = Vec<(String, [f64; 8])>;
+
+/// The `within_cycle` objects of `horizon --json`.
+fn horizon_within(h: &serde_json::Value) -> WithinRows {
+    h["within_cycle"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| {
+            let values = std::array::from_fn(|i| {
+                let key = WITHIN_COLUMNS[i + 1];
+                r[key].as_f64().unwrap_or_else(|| panic!("no {key} in {r}"))
+            });
+            (r["method"].as_str().unwrap().to_string(), values)
+        })
+        .collect()
+}
+
+/// The `truncation` objects of `horizon --json` as (count, max_surv_gap, ly_rel_error,
+/// p_exit_last).
+fn horizon_truncation(h: &serde_json::Value) -> Vec<[f64; 4]> {
+    h["truncation"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| {
+            ["count", "max_surv_gap", "ly_rel_error", "p_exit_last"]
+                .map(|k| r[k].as_f64().unwrap_or_else(|| panic!("no {k} in {r}")))
+        })
+        .collect()
+}
+
+/// `horizon --json FILE` over the 10-year horizon of the curve `curve` with `adjust`.
+fn horizon_json(d: &Path, curve: &[&str], adjust: Adjust, file: &str) -> serde_json::Value {
+    run_cli(
+        d,
+        "horizon",
+        curve,
+        adjust,
+        &["--horizon", "10 years", "--json", file],
+    );
+    let h: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(d.join(file)).unwrap()).unwrap();
+    // Life-years in years, times in the cycle's unit (interface.md, horizon; docs/tunnels.md).
+    assert_eq!(h["life_years_unit"], "years");
+    assert_eq!(h["time_unit"], "months");
+    assert_eq!(h["horizon_cycles"], HORIZON);
+    assert_eq!(h["discount"], DISCOUNT);
+    h
+}
+
+/// A within-cycle table against the boundary sums of the closed-form survival (`expected`) and
+/// the exact integrals `exact` (plain, discounted; years) computed without the library: each
+/// method's life-years, the exact integral beside it, and the error and relative error between
+/// them. Returns the largest relative distance of the table's exact integrals from `exact`.
+fn check_within(
+    what: &str,
+    rows: &WithinRows,
+    expected: &[closed_form::WithinCycle],
+    exact: (f64, f64),
+    adjust: Adjust,
+) -> f64 {
+    let methods: Vec<&str> = rows.iter().map(|(m, _)| m.as_str()).collect();
+    assert_eq!(methods, closed_form::METHODS, "{what} {adjust:?}");
+    let mut worst: f64 = 0.0;
+    for ((method, got), want) in rows.iter().zip(expected) {
+        for (offset, life_years, exact) in [
+            (0, want.life_years, exact.0),
+            (4, want.discounted_life_years, exact.1),
+        ] {
+            let [ly, ex, error, rel_error] = [0, 1, 2, 3].map(|i| got[offset + i]);
+            let column = |i: usize| WITHIN_COLUMNS[offset + i + 1];
+            assert!(
+                close(ly, life_years, REL),
+                "{what} {adjust:?} {method} {}: {ly} vs closed-form boundary sum {life_years}",
+                column(0)
+            );
+            // The library's adaptive quadrature is asked for 1e-10 relative (Curve::restricted_mean
+            // and horizon's 64 discounted pieces); measured distances are printed by the callers.
+            assert!(
+                close(ex, exact, REL),
+                "{what} {adjust:?} {method} {}: {ex} vs {exact}",
+                column(1)
+            );
+            worst = worst.max((ex - exact).abs() / exact);
+            // The error is a difference of two values near 4 years: within REL of them.
+            let want_error = life_years - exact;
+            assert!(
+                (error - want_error).abs() <= REL * exact,
+                "{what} {adjust:?} {method} {}: {error} vs {want_error}",
+                column(2)
+            );
+            assert!(
+                (rel_error - want_error / exact).abs() <= REL,
+                "{what} {adjust:?} {method} {}: {rel_error} vs {}",
+                column(3),
+                want_error / exact
+            );
+        }
+    }
+    worst
+}
+
+/// `run` of the scenario's invented trial with `adjust`, no draws, CSV and JSON: the fitted
+/// Weibull, the within-cycle table from JSON and from CSV, and the truncation table from JSON
+/// and from CSV. Both formats must hold the same numbers to the bit and say that life-years are
+/// in years.
+fn run_tables(d: &Path, adjust: Adjust) -> (Weibull, WithinRows, Vec<[f64; 4]>) {
+    let analysis = format!(
+        "title = \"cross-path life-years (invented)\"\n\n[data]\nfile = \"trial.csv\"\ntime_unit = \"months\"\n\n\
+         [fit]\nfamilies = [\"weibull\"]\nchoose = \"weibull\"\n\n\
+         [tunnels]\ncycle = \"1 month\"\ncount = 36\nhorizon = \"10 years\"\ndiscount = {DISCOUNT}\n\n\
+         [output]\nformats = [\"csv\", \"json\"]\n\n{}",
+        adjust_toml(adjust)
+    );
+    std::fs::write(d.join("ly.toml"), analysis).unwrap();
+    tunnelcast(d)
+        .args(["run", "ly.toml", "--out", "ly"])
+        .assert()
+        .success();
+    let out = d.join("ly");
+    let fit: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(out.join("fit.json")).unwrap()).unwrap();
+    let params = &fit["fits"][0]["params"];
+    let w = Weibull {
+        shape: params["shape"].as_f64().unwrap(),
+        scale: params["scale"].as_f64().unwrap(),
+    };
+
+    let json = JsonTables::read(&out.join("within_cycle.json"));
+    assert_eq!(json.columns("within_cycle"), WITHIN_COLUMNS);
+    assert_eq!(json.metadata("life_years_unit"), "years");
+    let methods: Vec<String> = json.value["tables"][0]["rows"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| r[0].as_str().unwrap().to_string())
+        .collect();
+    let from_json: WithinRows = methods
+        .into_iter()
+        .zip(json.rows("within_cycle"))
+        .map(|(m, r)| (m, std::array::from_fn(|i| r[i + 1])))
+        .collect();
+    let csv = read_csv_table(&out.join("within_cycle.csv"));
+    assert_eq!(csv.columns, WITHIN_COLUMNS);
+    let descriptor = shell::read_descriptor(&out.join("within_cycle.csv"));
+    assert_eq!(descriptor["tunnelcast"]["life_years_unit"], "years");
+    let from_csv: WithinRows = csv
+        .rows
+        .iter()
+        .map(|r| {
+            let values = std::array::from_fn(|i| r[i + 1].parse().unwrap());
+            (r[0].clone(), values)
+        })
+        .collect();
+    assert_eq!(
+        from_csv, from_json,
+        "run within_cycle CSV and JSON {adjust:?}"
+    );
+
+    let json = JsonTables::read(&out.join("truncation.json"));
+    let csv = read_csv_table(&out.join("truncation.csv"));
+    let columns = ["count", "max_surv_gap", "ly_rel_error", "p_exit_last"];
+    assert_eq!(json.columns("truncation"), columns);
+    assert_eq!(csv.columns, columns);
+    let truncation: Vec<[f64; 4]> = json
+        .rows("truncation")
+        .iter()
+        .map(|r| std::array::from_fn(|i| r[i]))
+        .collect();
+    let from_csv: Vec<[f64; 4]> = csv
+        .numbers()
+        .iter()
+        .map(|r| std::array::from_fn(|i| r[i]))
+        .collect();
+    assert_eq!(
+        from_csv, truncation,
+        "run truncation CSV and JSON {adjust:?}"
+    );
+    (w, from_json, truncation)
+}
+
+/// The horizon leg for one adjustment: `horizon --json` of the published curve against the
+/// closed-form boundary sums and the mpmath restricted means of `cross_path.json`; `run`'s
+/// within-cycle and truncation files (CSV, JSON) against `horizon --json` on the fit file `run`
+/// wrote (the same curve: equal to the bit) and against the closed forms at its parameters.
+fn check_life_years(name: &str) {
+    let adjust = ADJUSTMENTS.iter().find(|(n, _)| *n == name).unwrap().1;
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    scenario::write_trial(d);
+    write_lifetable(d);
+    let reference: serde_json::Value =
+        serde_json::from_str(include_str!("reference/cross_path.json")).unwrap();
+    let means = &reference["restricted_mean"];
+    assert_eq!(means["horizon_months"], HORIZON);
+    assert_eq!(means["discount"], DISCOUNT);
+    let mpmath = (
+        means["by_adjustment"][name]["life_years"].as_f64().unwrap(),
+        means["by_adjustment"][name]["discounted_life_years"]
+            .as_f64()
+            .unwrap(),
+    );
+    let end = HORIZON as f64;
+    // The test's own quadrature of the closed-form survival, which the run check below relies
+    // on, against mpmath at 20 digits (tests/reference/cross_path_reference.py).
+    let closed = (
+        closed_form::restricted_mean(CURVE, adjust, end, 0.0),
+        closed_form::restricted_mean(CURVE, adjust, end, DISCOUNT),
+    );
+    assert!(
+        close(closed.0, mpmath.0, 1e-12) && close(closed.1, mpmath.1, 1e-12),
+        "{name}: closed-form quadrature {closed:?} vs mpmath {mpmath:?}"
+    );
+
+    let h = horizon_json(d, &PUBLISHED, adjust, "h.json");
+    let expected = closed_form::within_cycle(CURVE, adjust, 1.0, HORIZON, DISCOUNT);
+    let published = check_within("horizon", &horizon_within(&h), &expected, mpmath, adjust);
+    check_truncation("horizon", &horizon_truncation(&h), CURVE, adjust);
+
+    let (w, within, truncation) = run_tables(d, adjust);
+    let h = horizon_json(
+        d,
+        &["--fit", "ly/fit.json", "--family", "weibull"],
+        adjust,
+        "hf.json",
+    );
+    assert_eq!(horizon_within(&h), within, "run and horizon {adjust:?}");
+    assert_eq!(
+        horizon_truncation(&h),
+        truncation,
+        "run and horizon {adjust:?}"
+    );
+    let exact = (
+        closed_form::restricted_mean(w, adjust, end, 0.0),
+        closed_form::restricted_mean(w, adjust, end, DISCOUNT),
+    );
+    let expected = closed_form::within_cycle(w, adjust, 1.0, HORIZON, DISCOUNT);
+    let fitted = check_within("run", &within, &expected, exact, adjust);
+    check_truncation("run", &truncation, w, adjust);
+    // Shown with --nocapture: how far the library's exact integrals sat from the independent ones.
+    eprintln!(
+        "{name}: exact life-years within {published:.1e} (relative) of mpmath for the published curve, {fitted:.1e} of the closed-form quadrature for run's fit"
+    );
+}
+
+#[test]
+fn no_adjustment_gives_the_same_life_years_on_every_path() {
+    check_life_years("none");
+}
+
+#[test]
+fn a_hazard_ratio_gives_the_same_life_years_on_every_path() {
+    check_life_years("hazard ratio");
+}
+
+#[test]
+fn an_acceleration_factor_gives_the_same_life_years_on_every_path() {
+    check_life_years("acceleration factor");
+}
+
+#[test]
+fn waning_gives_the_same_life_years_on_every_path() {
+    check_life_years("waning");
+}
+
+#[test]
+fn added_background_mortality_gives_the_same_life_years_on_every_path() {
+    check_life_years("add");
+}
+
+#[test]
+fn a_background_floor_gives_the_same_life_years_on_every_path() {
+    check_life_years("floor");
+}
+
+// Metadata of the same curve alike on every path: where the background floor binds, and the
+// life table's name.
+
+/// The metadata lines of the floor mode (docs/adjustments.md).
+const FLOOR_KEYS: [&str; 4] = [
+    "floor_binds_in_tunnels",
+    "floor_largest_change",
+    "floor_materiality",
+    "floor_first_binds_at_age",
+];
+
+/// The provenance of an output file as (key, value) lines: the descriptor's `tunnelcast`
+/// property beside a CSV file, `metadata` in JSON, the `notes` sheet (item, value) in XLSX.
+fn provenance(path: &Path) -> Vec<(String, String)> {
+    let object = |v: &serde_json::Value| -> Vec<(String, String)> {
+        v.as_object()
+            .unwrap_or_else(|| panic!("{}: no provenance", path.display()))
+            .iter()
+            .map(|(k, v)| (k.clone(), v.as_str().unwrap_or_default().to_string()))
+            .collect()
+    };
+    match path.extension().unwrap().to_str().unwrap() {
+        "csv" => object(&shell::read_descriptor(path)["tunnelcast"]),
+        "json" => {
+            let v: serde_json::Value =
+                serde_json::from_slice(&std::fs::read(path).unwrap()).unwrap();
+            object(&v["metadata"])
+        }
+        "xlsx" => {
+            use calamine::Reader;
+            let mut book: calamine::Xlsx<_> = calamine::open_workbook(path).unwrap();
+            let range = book.worksheet_range("notes").unwrap();
+            range
+                .rows()
+                .skip(1)
+                .map(|r| (r[0].to_string(), r[1].to_string()))
+                .collect()
+        }
+        other => panic!("no provenance in a .{other} file"),
+    }
+}
+
+/// The floor lines of an output file, in [`FLOOR_KEYS`] order (panics naming a missing one).
+fn floor_lines(path: &Path) -> Vec<String> {
+    let lines = provenance(path);
+    FLOOR_KEYS
+        .iter()
+        .map(|key| {
+            lines
+                .iter()
+                .find(|(k, _)| k == key)
+                .unwrap_or_else(|| panic!("{} has no {key}", path.display()))
+                .1
+                .clone()
+        })
+        .collect()
+}
+
+/// The floor lines printed by a command ("floor binds in tunnels: …"), in [`FLOOR_KEYS`] order.
+fn printed_floor_lines(text: &str) -> Vec<String> {
+    FLOOR_KEYS
+        .iter()
+        .map(|key| {
+            let label = format!("{}: ", key.replace('_', " "));
+            text.lines()
+                .find_map(|l| l.strip_prefix(label.as_str()))
+                .unwrap_or_else(|| panic!("no \"{label}\" line in:\n{text}"))
+                .to_string()
+        })
+        .collect()
+}
+
+/// The floor lines of `count` monthly tunnels of `w` floored at the scenario's background
+/// hazard, computed from the closed forms: the tunnels whose p_exit the floor raises by at
+/// least 0.1% relative to the curve alone, as ranges `a–b` (docs/adjustments.md), and the
+/// tunnel with the largest rise with that rise in percent. The first binding age is the age at
+/// entry, as a Weibull hazard with shape > 1 starts at 0, below any background hazard.
+fn expected_floor(w: Weibull, count: usize) -> (String, usize, f64) {
+    let rise: Vec<f64> = (0..count)
+        .map(|k| {
+            let (a, b) = (k as f64, k as f64 + 1.0);
+            closed_form::p_exit(w, Adjust::Floor { qx: scenario::QX }, a, b)
+                / closed_form::p_exit(w, Adjust::None, a, b)
+                - 1.0
+        })
+        .collect();
+    let material: Vec<usize> = (1..=count).filter(|k| rise[k - 1] >= 1e-3).collect();
+    // Here the binding tunnels are one run from tunnel 1 (the hazard rises through the
+    // background's once, at `closed_form::crossing`).
+    assert!(material.windows(2).all(|p| p[1] == p[0] + 1));
+    let binds = format!("{}–{}", material[0], material.last().unwrap());
+    let largest = (0..count)
+        .max_by(|i, j| rise[*i].total_cmp(&rise[*j]))
+        .unwrap();
+    (binds, largest + 1, 100.0 * rise[largest])
+}
+
+/// Checks floor lines against [`expected_floor`].
+fn check_floor_lines(what: &str, lines: &[String], w: Weibull, count: usize) {
+    let (binds, tunnel, percent) = expected_floor(w, count);
+    assert_eq!(lines[0], binds, "{what}");
+    let (shown, rest) = lines[1]
+        .strip_prefix('+')
+        .and_then(|l| l.split_once("% in tunnel "))
+        .unwrap_or_else(|| panic!("{what}: {}", lines[1]));
+    let shown: f64 = shown.parse().unwrap();
+    // Shown at 3 significant digits.
+    assert!(
+        (shown - percent).abs() <= 0.005 * percent,
+        "{what}: {} vs closed form {percent}%",
+        lines[1]
+    );
+    assert!(
+        rest.starts_with(&format!("{tunnel} (")),
+        "{what}: {}",
+        lines[1]
+    );
+    assert!(lines[2].contains("at least 0.1% relative"), "{what}");
+    assert_eq!(lines[3], scenario::START_AGE, "{what}");
+}
+
+/// Every output of one floored curve says where the floor binds, alike: `tunnels` (CSV, JSON,
+/// XLSX, printed), `horizon` over as many cycles (JSON, printed), `draws` for the point
+/// estimate (CSV and JSON draws files, summary, printed), and `run` (every table file, the
+/// report) beside `tunnels` and `horizon` on the fit file it wrote. The lines are checked
+/// against the closed forms.
+#[test]
+fn the_floor_is_reported_alike_on_every_path() {
+    let adjust = Adjust::Floor { qx: scenario::QX };
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    write_fit(d);
+    write_lifetable(d);
+    let text = |command: &str, curve: &[&str], extra: &[&str]| -> String {
+        let out = tunnelcast(d)
+            .arg(command)
+            .args(curve)
+            .args(adjust_args(adjust))
+            .args(["--cycle", "1 month"])
+            .args(extra)
+            .output()
+            .unwrap();
+        assert!(out.status.success(), "{command}: {:?}", out.stderr);
+        String::from_utf8(out.stdout).unwrap()
+    };
+    for out in ["t.csv", "t.json", "t.xlsx"] {
+        tunnels(d, &FROM_FIT, adjust, &["--out", out]);
+    }
+    let mut files: Vec<(String, Vec<String>)> = ["t.csv", "t.json", "t.xlsx"]
+        .iter()
+        .map(|f| (format!("tunnels {f}"), floor_lines(&d.join(f))))
+        .collect();
+    let printed = text("tunnels", &FROM_FIT, &["--count", "36"]);
+    files.push(("tunnels printed".into(), printed_floor_lines(&printed)));
+    // The same count of cycles to the horizon.
+    let printed = text(
+        "horizon",
+        &FROM_FIT,
+        &["--horizon", "3 years", "--json", "h.json"],
+    );
+    files.push(("horizon printed".into(), printed_floor_lines(&printed)));
+    files.push(("horizon JSON".into(), floor_lines(&d.join("h.json"))));
+    let draws = ["--count", "36", "--draws", "5", "--quiet"];
+    let printed = text(
+        "draws",
+        &FROM_FIT,
+        &[&draws[..], &["--out", "d.csv", "--summary-out", "s.json"]].concat(),
+    );
+    files.push(("draws printed".into(), printed_floor_lines(&printed)));
+    text(
+        "draws",
+        &FROM_FIT,
+        &[&draws[..], &["--out", "d.json", "--summary-out", "s.csv"]].concat(),
+    );
+    for f in ["d.csv", "s.json", "d.json", "s.csv"] {
+        files.push((format!("draws {f}"), floor_lines(&d.join(f))));
+    }
+    for (what, lines) in &files {
+        assert_eq!(lines, &files[0].1, "{what} and tunnels CSV");
+    }
+    check_floor_lines("tunnels", &files[0].1, CURVE, COUNT);
+
+    // run: 36 tunnels and a 3-year horizon, so every file covers the same 36 cycles.
+    let analysis = format!(
+        "[data]\nfile = \"trial.csv\"\ntime_unit = \"months\"\n\n[fit]\nfamilies = [\"weibull\"]\nchoose = \"weibull\"\n\n\
+         [tunnels]\ncycle = \"1 month\"\ncount = 36\nhorizon = \"3 years\"\n\n[draws]\ncount = 5\nseed = 2\n\n\
+         [output]\nformats = [\"csv\", \"json\", \"xlsx\"]\n\n{}",
+        adjust_toml(adjust)
+    );
+    std::fs::write(d.join("floor.toml"), analysis).unwrap();
+    tunnelcast(d)
+        .args(["run", "floor.toml", "--out", "out"])
+        .assert()
+        .success();
+    let fitted = ["--fit", "out/fit.json", "--family", "weibull"];
+    tunnels(d, &fitted, adjust, &["--out", "r.json"]);
+    let want = floor_lines(&d.join("r.json"));
+    let run_fit: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(d.join("out/fit.json")).unwrap()).unwrap();
+    let w = Weibull {
+        shape: run_fit["fits"][0]["params"]["shape"].as_f64().unwrap(),
+        scale: run_fit["fits"][0]["params"]["scale"].as_f64().unwrap(),
+    };
+    check_floor_lines("tunnels on run's fit", &want, w, COUNT);
+    let printed = text("horizon", &fitted, &["--horizon", "3 years"]);
+    assert_eq!(printed_floor_lines(&printed), want, "horizon on run's fit");
+    for stem in ["tunnels", "truncation", "within_cycle", "draws_summary"] {
+        for ext in ["csv", "json", "xlsx"] {
+            let file = format!("out/{stem}.{ext}");
+            assert_eq!(floor_lines(&d.join(&file)), want, "run {file}");
+        }
+    }
+    let report = std::fs::read_to_string(d.join("out/report.html")).unwrap();
+    for (key, value) in FLOOR_KEYS.iter().zip(&want) {
+        let line = format!("<dt>{key}</dt><dd><code>{value}</code></dd>");
+        assert!(report.contains(&line), "report: no {line}");
+    }
+}
+
+/// The life table is named as given, the same on every path: on the command line as typed, in
+/// an analysis file as written there (relative to that file), whatever the working folder.
+/// Before, `run` recorded only the file name in its files and the path joined to the analysis
+/// file's folder in its printed summary.
+#[test]
+fn the_life_table_is_named_as_given_on_every_path() {
+    let adjust = Adjust::Add { qx: scenario::QX };
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let study = d.join("study");
+    std::fs::create_dir_all(study.join("tables")).unwrap();
+    scenario::write_trial(&study);
+    write_lifetable(&study.join("tables"));
+    let toml = adjust_toml(adjust).replace("\"life.csv\"", "\"tables/life.csv\"");
+    assert!(toml.contains("background = \"tables/life.csv\""));
+    let analysis = format!(
+        "[data]\nfile = \"trial.csv\"\ntime_unit = \"months\"\n\n[fit]\nfamilies = [\"weibull\"]\nchoose = \"weibull\"\n\n\
+         [tunnels]\ncycle = \"1 month\"\ncount = 12\nhorizon = \"1 year\"\n\n[output]\nformats = [\"csv\", \"json\"]\n\n{toml}"
+    );
+    std::fs::write(study.join("analysis.toml"), analysis).unwrap();
+    let name = "tables/life.csv";
+    let described = format!("background mortality added from {name} (qx) from age 60");
+    // From the parent folder and from the analysis file's own folder: the same names.
+    for (cwd, file, out) in [
+        (d, "study/analysis.toml", "out"),
+        (study.as_path(), "analysis.toml", "out"),
+    ] {
+        let printed = tunnelcast(cwd)
+            .args(["run", file, "--out", out])
+            .output()
+            .unwrap();
+        assert!(printed.status.success());
+        let printed = String::from_utf8(printed.stdout).unwrap();
+        assert!(printed.contains(&described), "run printed:\n{printed}");
+        let out = cwd.join(out);
+        for file in ["tunnels.csv", "tunnels.json", "within_cycle.json"] {
+            let lines = provenance(&out.join(file));
+            let table = lines.iter().find(|(k, _)| k == "background_table");
+            assert_eq!(table.map(|(_, v)| v.as_str()), Some(name), "run {file}");
+        }
+        let package = shell::read_package(&out);
+        assert_eq!(package["tunnelcast"]["background_table"], name);
+        let report = std::fs::read_to_string(out.join("report.html")).unwrap();
+        assert!(report.contains(&format!(
+            "<dt>background_table</dt><dd><code>{name}</code></dd>"
+        )));
+    }
+    // The other commands, run in the analysis file's folder with the table given as there.
+    let curve = ["--fit", "out/fit.json", "--family", "weibull"];
+    let args: Vec<String> = adjust_args(adjust)
+        .into_iter()
+        .map(|a| if a == "life.csv" { name.to_string() } else { a })
+        .collect();
+    let printed = tunnelcast(&study)
+        .arg("tunnels")
+        .args(curve)
+        .args(&args)
+        .args(["--cycle", "1 month", "--count", "12"])
+        .output()
+        .unwrap();
+    let printed = String::from_utf8(printed.stdout).unwrap();
+    assert!(printed.contains(&described), "tunnels printed:\n{printed}");
+    for (command, extra) in [
+        ("tunnels", ["--count", "12", "--out", "t.json"]),
+        ("horizon", ["--horizon", "1 year", "--json", "h.json"]),
+        ("draws", ["--count", "12", "--out", "d.json"]),
+    ] {
+        tunnelcast(&study)
+            .arg(command)
+            .args(curve)
+            .args(&args)
+            .args(["--cycle", "1 month"])
+            .args(extra)
+            .args(
+                ["--draws", "2", "--quiet"]
+                    .iter()
+                    .filter(|_| command == "draws"),
+            )
+            .assert()
+            .success();
+        let file = extra[3];
+        let lines = provenance(&study.join(file));
+        let table = lines.iter().find(|(k, _)| k == "background_table");
+        assert_eq!(table.map(|(_, v)| v.as_str()), Some(name), "{command}");
+    }
+}

@@ -47,6 +47,7 @@ fn plural_after_one(text: &str) -> Option<String> {
         "tunnel states",
         "cycles",
         "tunnels",
+        "draws",
     ] {
         let phrase = format!("1 {word}");
         for (i, _) in text.match_indices(&phrase) {
@@ -74,6 +75,7 @@ fn the_detectors_find_what_they_look_for() {
     assert!(negative_zero("-0.5, -0.000123, 1e-0, t-0x, 2.5e-05").is_none());
     assert!(plural_after_one("a cycle of 1 months since").is_some());
     assert!(plural_after_one("1 tunnel states of").is_some());
+    assert!(plural_after_one("36 tunnel states; 1 draws; times").is_some());
     assert!(plural_after_one("11 months, 0.1 months, 1 month, 21 days").is_none());
 }
 
@@ -200,6 +202,53 @@ fn one_is_singular_in_every_printed_line_and_file() {
             assert_eq!(negative_zero(text), None, "{name}");
         }
     }
+}
+
+#[test]
+fn draws_print_one_tunnel_state_and_one_draw_in_the_singular() {
+    // The summary line of `draws` said "1 tunnel states; 1 draws", and gave the cycle at full
+    // precision where the other commands print it at 10 significant digits (a week is
+    // 7/(365.25/12) = 0.2299794661 months, 0.22997946611909653 at full precision).
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    // An invented trial: 40 times 0.75 months apart, every fourth censored.
+    let mut trial = String::from("time,event\n");
+    for i in 1..=40 {
+        trial.push_str(&format!("{},{}\n", i as f64 * 0.75, u8::from(i % 4 != 0)));
+    }
+    std::fs::write(d.join("trial.csv"), trial).unwrap();
+    tunnelcast(d)
+        .args([
+            "fit",
+            "trial.csv",
+            "--time-unit",
+            "months",
+            "--json",
+            "fit.json",
+        ])
+        .args(["--families", "weibull"])
+        .assert()
+        .success();
+    let out = tunnelcast(d)
+        .args(["draws", "--fit", "fit.json", "--family", "weibull"])
+        .args([
+            "--cycle",
+            "1 week",
+            "--table-unit",
+            "months",
+            "--count",
+            "1",
+        ])
+        .args(["--draws", "1", "--quiet"])
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(
+        text.contains("cycle: 0.2299794661 months; 1 tunnel state; 1 draw; times in months"),
+        "{text}"
+    );
+    assert_eq!(plural_after_one(&text), None, "{text}");
 }
 
 /// The knots printed by `fit` for a spline, as numbers, from the settings line of `arm`.

@@ -12,10 +12,10 @@ use crate::discretise::{count_until, tunnel_table, TunnelTable};
 use crate::draws::{self, Bootstrap, CurveBuilder, Sampler, SummaryBuilder, SummaryRow};
 use crate::error::{Error, Result};
 use crate::export::tunnel::{draw_columns, draw_rows, Layout};
-use crate::export::{number_text, xlsx, Cell, Document, Table, Target};
+use crate::export::{xlsx, Cell, Document, Table, Target};
 use crate::families::Family;
 use crate::fit::FitFile;
-use crate::format::sig;
+use crate::format::{counted, readable, sig};
 use crate::input::{self, InputOptions, Record};
 use crate::output;
 use crate::progress::LongRun;
@@ -227,11 +227,12 @@ fn parameter_table(family: &dyn Family, params: &[Vec<f64>]) -> Table {
 fn render_summary(point: &TunnelTable, rows: &[SummaryRow], draws: usize) -> String {
     let unit = point.time_unit;
     let mut out = format!(
-        "curve: {}\ncycle: {} {}; {} tunnel states; {draws} draws; times in {unit}\n",
+        "curve: {}\ncycle: {} {}; {}; {}; times in {unit}\n",
         point.curve,
-        number_text(point.cycle),
+        readable(point.cycle),
         unit.name_for(point.cycle),
-        point.rows.len()
+        counted(point.rows.len(), "tunnel state"),
+        counted(draws, "draw")
     );
     let text: Vec<Vec<String>> = rows
         .iter()
@@ -471,8 +472,12 @@ pub fn run(args: DrawsArgs) -> Result<()> {
         value: cycle.in_unit(table_unit),
         unit: table_unit,
     };
-    built.check_horizon(count as f64 * cycle.in_unit(built.curve.time_unit()))?;
+    let cycle_in_curve = cycle.in_unit(built.curve.time_unit());
+    built.check_horizon(count as f64 * cycle_in_curve)?;
     let point = tunnel_table(&built.curve, cycle_in_table, count);
+    // What the floor does to the point estimate's table, as `tunnels` records it for the same
+    // curve and count.
+    let floor = built.floor_report(cycle_in_curve, count);
 
     // Every draw goes through the adjuster that made the point estimate's curve.
     let family = built.base.family;
@@ -487,7 +492,9 @@ pub fn run(args: DrawsArgs) -> Result<()> {
     let (params, method) = draw_parameters(&args, &built, n, &run)?;
     drop(run);
 
-    let mut metadata = header(&point, &built.metadata, Layout::Long);
+    let mut curve_metadata = built.metadata.clone();
+    curve_metadata.extend(floor.iter().cloned());
+    let mut metadata = header(&point, &curve_metadata, Layout::Long);
     for (key, value) in metadata.iter_mut() {
         if key == "layout" {
             *value = args.layout.name().to_string();
@@ -586,6 +593,9 @@ pub fn run(args: DrawsArgs) -> Result<()> {
         t.write(&document)?;
     }
     let mut text = render_summary(&point, &rows, params.len());
+    for (key, value) in &floor {
+        text.push_str(&format!("{}: {value}\n", key.replace('_', " ")));
+    }
     for t in out.iter().chain(summary_out.iter()) {
         text.push_str(&format!("wrote {}\n", t.path.display()));
         if let Some(descriptor) = t.exporter.descriptor_path(&t.path) {

@@ -132,7 +132,7 @@ impl RunResult {
             ("time_unit".into(), self.tunnels.time_unit.name().into()),
         ]);
         if let Some(adjusted) = &self.adjusted {
-            m.extend(adjusted_metadata(adjusted));
+            m.extend(adjusted.metadata.iter().cloned());
             for w in &adjusted.warnings {
                 m.push(("warning".into(), w.clone()));
             }
@@ -146,6 +146,28 @@ impl RunResult {
         }
         m.push(("caution".into(), crate::CAUTION.into()));
         m
+    }
+
+    /// Where the background floor binds among the first `count` cycles of the adjusted curve
+    /// (empty unless `background_mode = "floor"`): the lines `tunnels` (over the table's
+    /// count) and `horizon` (over the horizon's cycles) record for the same curve.
+    pub fn floor_report(&self, count: usize) -> Vec<(String, String)> {
+        match &self.adjusted {
+            Some(a) => a.floor_report(self.analysis.cycle.in_unit(a.time_unit()), count),
+            None => Vec::new(),
+        }
+    }
+
+    /// [`RunResult::metadata`] with the floor lines over `count` cycles after the adjustment
+    /// lines, as a table file of that many cycles records them.
+    fn metadata_with_floor(&self, count: usize) -> Vec<(String, String)> {
+        let mut metadata = self.metadata();
+        let at = metadata
+            .iter()
+            .position(|(k, _)| k == "draws" || k == "caution")
+            .unwrap_or(metadata.len());
+        metadata.splice(at..at, self.floor_report(count));
+        metadata
     }
 
     /// The curve the tunnel table is computed from: the adjusted curve, else the fitted one.
@@ -163,14 +185,14 @@ impl RunResult {
         let mut table = crate::cmd::draws::summary_table(rows);
         table.name = "draws_summary".into();
         Some(Document {
-            metadata: self.metadata(),
+            metadata: self.metadata_with_floor(self.tunnels.rows.len()),
             tables: vec![table],
         })
     }
 
     /// The tunnel table as exported (long layout).
     pub fn tunnel_document(&self) -> Document {
-        let mut metadata = self.metadata();
+        let mut metadata = self.metadata_with_floor(self.tunnels.rows.len());
         metadata.push(("count".into(), self.tunnels.rows.len().to_string()));
         metadata.push(("count_rule".into(), self.count_rule.clone()));
         metadata.push(("layout".into(), Layout::Long.name().into()));
@@ -186,7 +208,7 @@ impl RunResult {
 
     /// The truncation table as exported, every candidate count.
     pub fn truncation_document(&self) -> Document {
-        let mut metadata = self.metadata();
+        let mut metadata = self.metadata_with_floor(self.horizon_cycles);
         metadata.extend([
             ("horizon_cycles".into(), self.horizon_cycles.to_string()),
             ("horizon_rule".into(), self.horizon_rule.clone()),
@@ -399,7 +421,7 @@ impl RunResult {
 
     /// The within-cycle table as exported.
     pub fn within_cycle_document(&self) -> Document {
-        let mut metadata = self.metadata();
+        let mut metadata = self.metadata_with_floor(self.horizon_cycles);
         metadata.extend([
             ("horizon_cycles".into(), self.horizon_cycles.to_string()),
             ("discount".into(), number_text(self.analysis.discount)),
@@ -522,19 +544,6 @@ pub fn rebuild_data(analysis: &Analysis, source: &CurveSource) -> Result<Rebuild
     })
 }
 
-/// The adjustment settings for outputs, the life table named by its file name (so that the
-/// outputs do not depend on the working folder).
-pub fn adjusted_metadata(adjusted: &AdjustedCurve) -> Vec<(String, String)> {
-    adjusted
-        .metadata
-        .iter()
-        .map(|(k, v)| match k.as_str() {
-            "background_table" => (k.clone(), file_name(v)),
-            _ => (k.clone(), v.clone()),
-        })
-        .collect()
-}
-
 /// The last path component of a file name as given (so outputs do not depend on the working folder).
 fn file_name(path: &str) -> String {
     Path::new(path)
@@ -641,15 +650,26 @@ pub fn compute(
         .map_err(|e| Error::Computation(format!("the {} fit: {e}", family.name())))?;
 
     // The one way from the chosen curve to the adjusted curve, also taken by every draw.
+    // The table is named as the analysis file writes it (relative to that file), as the other
+    // commands name it as given: every output records the same name for the same input.
     let settings = &analysis.adjustments;
-    let table = match (&settings.background, lifetable_bytes) {
-        (None, _) => None,
-        (Some(b), None) => Some(lifetable::load(&b.path, b.sex)?),
-        (Some(b), Some(bytes)) => Some(lifetable::parse(
-            &b.path.display().to_string(),
-            bytes,
-            b.sex,
-        )?),
+    let table = match &settings.background {
+        None => None,
+        Some(b) => {
+            let name = analysis
+                .background_name
+                .clone()
+                .unwrap_or_else(|| b.path.display().to_string());
+            let read;
+            let bytes = match lifetable_bytes {
+                Some(bytes) => bytes,
+                None => {
+                    read = crate::csv_read::read_file(&b.path)?;
+                    &read
+                }
+            };
+            Some(lifetable::parse(&name, bytes, b.sex)?)
+        }
     };
     let adjuster = Adjuster::new(settings.clone(), table)?;
     let table_curve = Arc::new(adjuster.adjust(curve.clone())?);

@@ -281,6 +281,115 @@ pub fn truncation(w: Weibull, adjust: Adjust, cycle: f64, n: usize) -> Vec<Trunc
         .collect()
 }
 
+/// The within-cycle methods of the command-line contract (interface.md, horizon; the formulas
+/// in docs/tunnels.md), in table order.
+pub const METHODS: [&str; 5] = ["start", "end", "half-cycle", "trapezoid", "simpson"];
+
+/// ∫ over n intervals of width `h` from the n + 1 values `f` by `method` (docs/tunnels.md):
+/// start h·Σ_{j<n} f_j; end h·Σ_{j≥1} f_j; half-cycle h·(Σ_{j≥1} f_j + f_0/2 - f_n/2);
+/// trapezoid h·Σ (f_{j-1} + f_j)/2; simpson composite 1/3 rule (weights 1, 4, 2, …, 4, 1
+/// times h/3), its last three intervals by the 3/8 rule (1, 3, 3, 1 times 3h/8) when n is odd,
+/// and the trapezoid for n = 1 (Burden and Faires, Numerical Analysis, composite rules; from
+/// memory).
+pub fn boundary_sum(method: &str, f: &[f64], h: f64) -> f64 {
+    let n = f.len() - 1;
+    match method {
+        "start" => h * f[..n].iter().sum::<f64>(),
+        "end" => h * f[1..].iter().sum::<f64>(),
+        "half-cycle" => h * (f[1..].iter().sum::<f64>() + 0.5 * f[0] - 0.5 * f[n]),
+        "trapezoid" => h * (1..=n).map(|j| 0.5 * (f[j - 1] + f[j])).sum::<f64>(),
+        "simpson" if n == 1 => 0.5 * h * (f[0] + f[1]),
+        "simpson" => {
+            let third = if n % 2 == 0 { n } else { n - 3 };
+            let mut weights = vec![0.0; n + 1];
+            for j in 0..=third {
+                weights[j] = if j == 0 || j == third {
+                    h / 3.0
+                } else if j % 2 == 1 {
+                    4.0 * h / 3.0
+                } else {
+                    2.0 * h / 3.0
+                };
+            }
+            if third < n {
+                for (i, w) in [1.0, 3.0, 3.0, 1.0].iter().enumerate() {
+                    weights[third + i] += w * 3.0 * h / 8.0;
+                }
+            }
+            weights.iter().zip(f).map(|(w, v)| w * v).sum()
+        }
+        other => panic!("no method {other}"),
+    }
+}
+
+/// One method's life-years, in years, from the boundary survival (interface.md, horizon).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct WithinCycle {
+    pub method: &'static str,
+    /// The method on S(t_j), j = 0..n.
+    pub life_years: f64,
+    /// The method on S(t_j)·(1 + r)^(-t_j), t_j in years (docs/tunnels.md, discounting).
+    pub discounted_life_years: f64,
+}
+
+/// Every method over `n` cycles of `cycle` months, discounted at `discount` a year, from the
+/// closed-form survival at the boundaries; life-years in years (a month is a twelfth of one).
+pub fn within_cycle(
+    w: Weibull,
+    adjust: Adjust,
+    cycle: f64,
+    n: usize,
+    discount: f64,
+) -> Vec<WithinCycle> {
+    let t: Vec<f64> = (0..=n).map(|j| j as f64 * cycle).collect();
+    let s: Vec<f64> = t.iter().map(|t| survival(w, adjust, *t)).collect();
+    let g: Vec<f64> = s
+        .iter()
+        .zip(&t)
+        .map(|(s, t)| s * (1.0 + discount).powf(-t / MONTHS_PER_YEAR))
+        .collect();
+    let h = cycle / MONTHS_PER_YEAR;
+    METHODS
+        .iter()
+        .map(|&method| WithinCycle {
+            method,
+            life_years: boundary_sum(method, &s, h),
+            discounted_life_years: boundary_sum(method, &g, h),
+        })
+        .collect()
+}
+
+/// Times (months) where the adjusted hazard has a kink: the waning window's ends, the floor's
+/// crossing.
+fn kinks(w: Weibull, adjust: Adjust) -> Vec<f64> {
+    match adjust {
+        Adjust::Waning { start, end, .. } => vec![start, end],
+        Adjust::Floor { qx } => vec![crossing(w, background_hazard(qx))],
+        _ => Vec::new(),
+    }
+}
+
+/// The restricted mean to `end` months, ∫₀^end S(t)·(1 + r)^(-t/12) dt, in years (r = 0: not
+/// discounted): Gauss–Legendre on each month, split at the hazard's kinks.
+pub fn restricted_mean(w: Weibull, adjust: Adjust, end: f64, discount: f64) -> f64 {
+    let kinks = kinks(w, adjust);
+    let f = |t: f64| survival(w, adjust, t) * (1.0 + discount).powf(-t / MONTHS_PER_YEAR);
+    let mut total = 0.0;
+    let mut a = 0.0;
+    while a < end {
+        let b = (a + 1.0).min(end);
+        let mut points = vec![a];
+        points.extend(kinks.iter().copied().filter(|k| *k > a && *k < b));
+        points.push(b);
+        total += points
+            .windows(2)
+            .map(|p| integrate_panels(&f, p[0], p[1], 2))
+            .sum::<f64>();
+        a = b;
+    }
+    total / MONTHS_PER_YEAR
+}
+
 /// Background mortality from a life table for a cohort entering at `start_age` (years), time
 /// in months: the hazard is constant within each year of age at -ln(1 - qx) per year
 /// (interface.md, Background life table), so the cumulative hazard is a sum over the years of
