@@ -134,29 +134,38 @@ fn figure(figures: &[Figure], name: &str, caption: &str) -> String {
     }
 }
 
-const STYLE: &str = "
-body{font-family:'DejaVu Sans',Verdana,sans-serif;font-size:12px;line-height:1.35;color:#1c1c1c;background:#fff;max-width:1000px;margin:0 auto;padding:14px 18px}
-h1{font-size:19px;margin:0 0 2px}
-h2{font-size:14px;margin:22px 0 6px;padding-top:5px;border-top:2px solid #1c1c1c;text-transform:uppercase;letter-spacing:.04em}
-h3{font-size:12.5px;margin:12px 0 4px}
-p{margin:4px 0}
-.meta{color:#505050}
-.caution{border-left:5px solid #b0302e;background:#f7efe9;padding:6px 10px;margin:8px 0}
-table{border-collapse:collapse;margin:4px 0 8px;font-size:11px}
-th,td{padding:2px 7px;border-bottom:1px solid #d6d6d6;vertical-align:top}
-th{text-align:left;border-bottom:1.5px solid #1c1c1c;background:#f1f1ee}
-td.n{text-align:right;font-variant-numeric:tabular-nums;white-space:nowrap}
-tr.mark td{background:#fff3c4}
-dl{display:grid;grid-template-columns:max-content auto;gap:2px 12px;margin:4px 0}
-dt{font-weight:bold}dd{margin:0}
-figure{margin:8px 0 14px}
-figure svg{max-width:100%;height:auto;border:1px solid #e0e0e0}
-figcaption{font-size:11px;color:#505050}
-.file{font-family:'DejaVu Sans Mono',monospace;font-size:10.5px}
-pre{background:#f4f4f1;border:1px solid #ddd;padding:6px 8px;font-size:10.5px;white-space:pre-wrap}
-code{font-family:'DejaVu Sans Mono',monospace}
-@media print{body{max-width:none;padding:0}h2{break-after:avoid}figure,table{break-inside:avoid}}
-";
+/// The report's stylesheet, its colours from the house palette (`crate::plot`), so the report
+/// and its plots share one look.
+fn style() -> String {
+    use crate::plot::{hex, CAUTION, CAUTION_WASH, EMPIRICAL, GRID, MUTED, RULE, TINT};
+    let (ink, grid, muted, rule, tint) =
+        (hex(EMPIRICAL), hex(GRID), hex(MUTED), hex(RULE), hex(TINT));
+    let (caution, wash) = (hex(CAUTION), hex(CAUTION_WASH));
+    format!(
+        "
+body{{font-family:'DejaVu Sans',Verdana,sans-serif;font-size:12px;line-height:1.35;color:{ink};background:#fff;max-width:1000px;margin:0 auto;padding:14px 18px}}
+h1{{font-size:19px;margin:0 0 2px}}
+h2{{font-size:14px;margin:22px 0 6px;padding-top:5px;border-top:2px solid {ink};text-transform:uppercase;letter-spacing:.04em}}
+h3{{font-size:12.5px;margin:12px 0 4px}}
+p{{margin:4px 0}}
+.meta{{color:{muted}}}
+.caution,.warning{{border-left:5px solid {caution};background:{wash};padding:6px 10px;margin:8px 0}}
+table{{border-collapse:collapse;margin:4px 0 8px;font-size:11px}}
+th,td{{padding:2px 7px;border-bottom:1px solid {rule};vertical-align:top}}
+th{{text-align:left;border-bottom:1.5px solid {ink};background:{tint}}}
+td.n{{text-align:right;font-variant-numeric:tabular-nums;white-space:nowrap}}
+dl{{display:grid;grid-template-columns:max-content auto;gap:2px 12px;margin:4px 0}}
+dt{{font-weight:bold}}dd{{margin:0}}
+figure{{margin:8px 0 14px}}
+figure svg{{max-width:100%;height:auto;border:1px solid {grid}}}
+figcaption{{font-size:11px;color:{muted}}}
+.file{{font-family:'DejaVu Sans Mono',monospace;font-size:10.5px}}
+pre{{background:{tint};border:1px solid {rule};padding:6px 8px;font-size:10.5px;white-space:pre-wrap}}
+code{{font-family:'DejaVu Sans Mono',monospace}}
+@media print{{body{{max-width:none;padding:0}}h2{{break-after:avoid}}figure,table{{break-inside:avoid}}}}
+"
+    )
+}
 
 /// Renders the report; `created` (seconds since 1970, from `SOURCE_DATE_EPOCH`) is the only
 /// date it shows, so that without it a rerun writes the same bytes.
@@ -172,7 +181,7 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     let mut h = String::new();
     h.push_str("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\"/>\n");
     h.push_str(&format!("<title>{}</title>\n", escape(&title)));
-    h.push_str(&format!("<style>{STYLE}</style>\n</head>\n<body>\n"));
+    h.push_str(&format!("<style>{}</style>\n</head>\n<body>\n", style()));
     h.push_str(&format!("<h1>{}</h1>\n", escape(&title)));
     h.push_str(&format!(
         "<p class=\"meta\">tunnelcast {} · analysis file <code>{}</code> · data <code>{}</code>{}</p>\n",
@@ -644,6 +653,36 @@ mod tests {
         assert_eq!(format_utc(0), "1970-01-01 00:00 UTC");
         assert_eq!(format_utc(951_782_400), "2000-02-29 00:00 UTC");
         assert_eq!(format_utc(1_700_000_000), "2023-11-14 22:13 UTC");
+    }
+
+    #[test]
+    fn the_stylesheet_takes_every_colour_from_the_house_palette() {
+        use crate::plot::{hex, BAND, CAUTION, CAUTION_WASH, EMPIRICAL, GRID, MUTED, RULE, TINT};
+        let palette: Vec<String> = [
+            BAND,
+            CAUTION,
+            CAUTION_WASH,
+            EMPIRICAL,
+            GRID,
+            MUTED,
+            RULE,
+            TINT,
+        ]
+        .into_iter()
+        .map(hex)
+        .collect();
+        let css = style();
+        let mut found = 0;
+        for (i, _) in css.match_indices('#') {
+            if css[i..].starts_with("#fff;") {
+                continue; // the page itself: white, as the plots' background
+            }
+            let colour: String = css[i..].chars().take(7).collect();
+            assert!(palette.contains(&colour), "{colour} is not in the palette");
+            found += 1;
+        }
+        assert!(found >= 8, "{found} palette colours in the stylesheet");
+        assert!(css.contains(".warning"), "warnings have a style");
     }
 
     #[test]
