@@ -161,7 +161,7 @@ impl Plot for DiagnosticPlot<'_> {
         for (label, _) in &self.curves {
             entries.push((label.clone(), Mark::Line(family_colour(label), 2)));
         }
-        draw_legend(&legend, "Legend", &entries)
+        draw_legend(&legend, "Estimate and fits", &entries)
     }
 }
 

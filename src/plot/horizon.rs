@@ -89,6 +89,6 @@ impl Plot for HorizonPlot {
                 Mark::Line(REFERENCE, 1),
             ),
         ];
-        draw_legend(&legend, "Legend", &entries)
+        draw_legend(&legend, "Errors and tolerance", &entries)
     }
 }

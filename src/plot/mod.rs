@@ -384,7 +384,8 @@ fn text_style(size: u32) -> TextStyle<'static> {
     (FONT, size).into_font().color(&EMPIRICAL)
 }
 
-/// Draws a legend as a list down the panel `area` (beside the plot, never over it).
+/// Draws a legend as a list down the panel `area` (beside the plot, never over it), under a
+/// `heading` that says what the entries are ("Estimate and fits", "By arm"), not "Legend".
 fn draw_legend<DB: DrawingBackend>(
     area: &DrawingArea<DB, Shift>,
     heading: &str,
@@ -553,6 +554,16 @@ mod tests {
         };
         assert_eq!(curves(family_colour("weibull")), 1);
         assert_eq!(curves(family_colour("loglogistic")), 1);
+        // The legend panel says what it lists.
+        let doc = roxmltree::Document::parse(&svg).unwrap();
+        let texts: Vec<&str> = doc
+            .descendants()
+            .filter(|n| n.has_tag_name("text"))
+            .filter_map(|n| n.text())
+            .map(str::trim)
+            .collect();
+        assert!(texts.contains(&"Estimate and fits"), "{texts:?}");
+        assert!(!texts.contains(&"Legend"));
         let steps: Vec<&Vec<(f64, f64)>> = lines
             .iter()
             .filter(|(c, p)| *c == hex(EMPIRICAL) && p.len() > 50)

@@ -194,7 +194,7 @@ impl Plot for RebuildPlot {
             entries.push((format!("{name}rebuilt Kaplan–Meier"), Mark::Line(colour, 2)));
             entries.push((format!("{name}digitised points"), Mark::Point(colour)));
         }
-        draw_legend(&legend, "Legend", &entries)
+        draw_legend(&legend, "By arm", &entries)
     }
 }
 

@@ -100,6 +100,6 @@ impl Plot for TunnelPlot<'_> {
                 )
                 .map_err(err)?;
         }
-        draw_legend(&legend, "Legend", &entries)
+        draw_legend(&legend, "Table and markers", &entries)
     }
 }
