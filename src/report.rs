@@ -120,6 +120,37 @@ fn text_table(id: &str, header: &[&str], rows: &[Vec<String>], numeric: &[bool])
     out
 }
 
+/// A section's one-line reading guide, under its heading: what to look at and what it means.
+fn guide(text: &str) -> String {
+    format!(
+        "<p class=\"guide\"><b>How to read this:</b> {}</p>\n",
+        escape(text)
+    )
+}
+
+/// The report's contents: each `<section id>` of `body` with its `<h2>` heading, in order, as
+/// in-page links. Read from the markup, so a section added later is listed without naming it.
+fn contents(body: &str) -> String {
+    let mut items = String::new();
+    let mut rest = body;
+    while let Some(at) = rest.find("<section id=\"") {
+        rest = &rest[at + "<section id=\"".len()..];
+        let Some(end) = rest.find('"') else { break };
+        let id = &rest[..end];
+        let next = rest.find("<section id=\"").unwrap_or(rest.len());
+        let heading = rest[..next]
+            .find("<h2>")
+            .zip(rest[..next].find("</h2>"))
+            .filter(|(a, b)| a < b)
+            .map(|(a, b)| &rest[a + 4..b]);
+        if let Some(heading) = heading {
+            // `id` and `heading` are already escaped where they were written.
+            items.push_str(&format!("<li><a href=\"#{id}\">{heading}</a></li>"));
+        }
+    }
+    format!("<nav id=\"contents\"><p><b>In this report</b></p><ol>{items}</ol></nav>\n")
+}
+
 /// An inline figure from the rendered SVG named `name`, if present.
 fn figure(figures: &[Figure], name: &str, caption: &str) -> String {
     match figures.iter().find(|(n, _)| n == name) {
@@ -134,29 +165,48 @@ fn figure(figures: &[Figure], name: &str, caption: &str) -> String {
     }
 }
 
-const STYLE: &str = "
-body{font-family:'DejaVu Sans',Verdana,sans-serif;font-size:12px;line-height:1.35;color:#1c1c1c;background:#fff;max-width:1000px;margin:0 auto;padding:14px 18px}
-h1{font-size:19px;margin:0 0 2px}
-h2{font-size:14px;margin:22px 0 6px;padding-top:5px;border-top:2px solid #1c1c1c;text-transform:uppercase;letter-spacing:.04em}
-h3{font-size:12.5px;margin:12px 0 4px}
-p{margin:4px 0}
-.meta{color:#505050}
-.caution{border-left:5px solid #b0302e;background:#f7efe9;padding:6px 10px;margin:8px 0}
-table{border-collapse:collapse;margin:4px 0 8px;font-size:11px}
-th,td{padding:2px 7px;border-bottom:1px solid #d6d6d6;vertical-align:top}
-th{text-align:left;border-bottom:1.5px solid #1c1c1c;background:#f1f1ee}
-td.n{text-align:right;font-variant-numeric:tabular-nums;white-space:nowrap}
-tr.mark td{background:#fff3c4}
-dl{display:grid;grid-template-columns:max-content auto;gap:2px 12px;margin:4px 0}
-dt{font-weight:bold}dd{margin:0}
-figure{margin:8px 0 14px}
-figure svg{max-width:100%;height:auto;border:1px solid #e0e0e0}
-figcaption{font-size:11px;color:#505050}
-.file{font-family:'DejaVu Sans Mono',monospace;font-size:10.5px}
-pre{background:#f4f4f1;border:1px solid #ddd;padding:6px 8px;font-size:10.5px;white-space:pre-wrap}
-code{font-family:'DejaVu Sans Mono',monospace}
-@media print{body{max-width:none;padding:0}h2{break-after:avoid}figure,table{break-inside:avoid}}
-";
+/// The report's stylesheet, its colours from the house palette (`crate::plot`), so the report
+/// and its plots share one look.
+fn style() -> String {
+    use crate::plot::{hex, BAND, CAUTION, CAUTION_WASH, EMPIRICAL, GRID, MUTED, RULE, TINT};
+    let (ink, band, grid, muted, rule, tint) = (
+        hex(EMPIRICAL),
+        hex(BAND),
+        hex(GRID),
+        hex(MUTED),
+        hex(RULE),
+        hex(TINT),
+    );
+    let (caution, wash) = (hex(CAUTION), hex(CAUTION_WASH));
+    format!(
+        "
+body{{font-family:'DejaVu Sans',Verdana,sans-serif;font-size:12px;line-height:1.35;color:{ink};background:#fff;max-width:1000px;margin:0 auto;padding:14px 18px}}
+h1{{font-size:19px;margin:0 0 2px}}
+h2{{font-size:14px;margin:22px 0 6px;padding-top:5px;border-top:2px solid {ink};text-transform:uppercase;letter-spacing:.04em}}
+h3{{font-size:12.5px;margin:12px 0 4px}}
+p{{margin:4px 0}}
+.meta{{color:{muted}}}
+.caution,.warning{{border-left:5px solid {caution};background:{wash};padding:6px 10px;margin:8px 0}}
+.guide{{border-left:3px solid {band};padding:1px 8px;margin:2px 0 6px;color:{muted}}}
+nav#contents{{border:1px solid {rule};padding:4px 10px;margin:8px 0;font-size:11.5px}}
+nav#contents ol{{columns:3;margin:2px 0;padding-left:22px}}
+a{{color:{ink}}}
+table{{border-collapse:collapse;margin:4px 0 8px;font-size:11px}}
+th,td{{padding:2px 7px;border-bottom:1px solid {rule};vertical-align:top}}
+th{{text-align:left;border-bottom:1.5px solid {ink};background:{tint}}}
+td.n{{text-align:right;font-variant-numeric:tabular-nums;white-space:nowrap}}
+dl{{display:grid;grid-template-columns:max-content auto;gap:2px 12px;margin:4px 0}}
+dt{{font-weight:bold}}dd{{margin:0}}
+figure{{margin:8px 0 14px}}
+figure svg{{max-width:100%;height:auto;border:1px solid {grid}}}
+figcaption{{font-size:11px;color:{muted}}}
+.file{{font-family:'DejaVu Sans Mono',monospace;font-size:10.5px}}
+pre{{background:{tint};border:1px solid {rule};padding:6px 8px;font-size:10.5px;white-space:pre-wrap}}
+code{{font-family:'DejaVu Sans Mono',monospace}}
+@media print{{body{{max-width:none;padding:0}}h2{{break-after:avoid}}figure,table{{break-inside:avoid}}}}
+"
+    )
+}
 
 /// Renders the report; `created` (seconds since 1970, from `SOURCE_DATE_EPOCH`) is the only
 /// date it shows, so that without it a rerun writes the same bytes.
@@ -172,7 +222,7 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     let mut h = String::new();
     h.push_str("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\"/>\n");
     h.push_str(&format!("<title>{}</title>\n", escape(&title)));
-    h.push_str(&format!("<style>{STYLE}</style>\n</head>\n<body>\n"));
+    h.push_str(&format!("<style>{}</style>\n</head>\n<body>\n", style()));
     h.push_str(&format!("<h1>{}</h1>\n", escape(&title)));
     h.push_str(&format!(
         "<p class=\"meta\">tunnelcast {} · analysis file <code>{}</code> · data <code>{}</code>{}</p>\n",
@@ -187,9 +237,11 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
         "<p class=\"caution\">{}</p>\n",
         escape(crate::CAUTION)
     ));
+    let contents_at = h.len();
 
     // Data summary.
     h.push_str("<section id=\"data\">\n<h2>Data</h2>\n");
+    h.push_str(&guide("One row per arm; a median shown as “not reached” means survival stayed above one half to the end of follow-up."));
     h.push_str(&format!(
         "<p>{} subjects, {} events{}; time unit: {unit}. Kaplan–Meier median with a 95% interval from the log-log band.</p>\n",
         fits.data.n,
@@ -243,6 +295,7 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
 
     // Fit comparison.
     h.push_str("<section id=\"fits\">\n<h2>Fit comparison</h2>\n");
+    h.push_str(&guide("Within each arm, a lower AIC means a closer fit to the observed follow-up; differences of a few points do not separate families, and no column here says how well a family extrapolates."));
     h.push_str("<p>Maximum likelihood per arm; full log-likelihood; AIC = 2k − 2·loglik, BIC = k·ln(n) − 2·loglik; sorted by AIC. Parameters for time in the data's unit with 95% intervals (Wald, on the estimation scale): scales in that unit, rates and the Gompertz shape per that unit, mu in ln(that unit); other shapes, sigma, q, cure fractions and spline coefficients are unitless (the chosen curve's table below gives each unit).</p>\n");
     for arm in &fits.data.arms {
         let label = arm.arm.as_deref();
@@ -314,7 +367,8 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     h.push_str("</section>\n");
 
     // Plots.
-    h.push_str("<section id=\"plots\">\n<h2>Plots</h2>\n");
+    h.push_str("<section id=\"plots\">\n<h2>Fitted curves against the data</h2>\n");
+    h.push_str(&guide("Left of the end-of-follow-up line, compare each fitted curve with the Kaplan–Meier estimate; right of it the curves differ by assumption alone. In the straight-line diagnostics, points on a straight line favour the family that is straight on that scale."));
     for arm in &fits.data.arms {
         let label = arm.arm.as_deref();
         let suffix = crate::plot::file_stem(label);
@@ -330,7 +384,9 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     // Chosen curve.
     let c = &result.chosen;
     let family = result.curve.family;
-    h.push_str("<section id=\"chosen\">\n<h2>Chosen curve</h2>\n<dl>\n");
+    h.push_str("<section id=\"chosen\">\n<h2>Chosen curve</h2>\n");
+    h.push_str(&guide("The curve every later table is built from, as fitted (adjustments come on top of it); its covariance is what the uncertainty draws sample from."));
+    h.push_str("<dl>\n");
     let mut facts = vec![("family", family.name().to_string())];
     if let Some(arm) = &c.arm {
         facts.push(("arm", arm.clone()));
@@ -396,6 +452,7 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     let t = &result.tunnels;
     let doc = result.tunnel_document();
     h.push_str("<section id=\"tunnels\">\n<h2>Tunnel table</h2>\n");
+    h.push_str(&guide("One row per tunnel state, for the chosen curve with its adjustments: people in tunnel k leave the chain with p_exit and move to tunnel k + 1 with p_next; the last row's state keeps its own probabilities."));
     h.push_str(&format!(
         "<p>{} of {} {} ({}). Tunnel k covers [(k−1)·cycle, k·cycle) since entry; p_exit = 1 − S(t_end)/S(t_start), with no half-cycle shift; the last tunnel repeats its own probability. Times in {}.</p>\n",
         crate::format::counted(t.rows.len(), "tunnel state"),
@@ -422,6 +479,7 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     let doc = result.truncation_document();
     let n = result.horizon_cycles;
     h.push_str("<section id=\"truncation\">\n<h2>Truncation: how many tunnels are enough</h2>\n");
+    h.push_str(&guide("Go down the count column to the first row whose errors are all at or below the tolerance: that is the suggested count; a chain cut earlier misstates the results by more than the tolerance."));
     let window = crate::format::counted(result.stable_window, "tunnel");
     let stable = match result.stable_count {
         Some(k) => format!(
@@ -461,6 +519,7 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     // Within-cycle.
     let doc = result.within_cycle_document();
     h.push_str("<section id=\"within-cycle\">\n<h2>Within-cycle accuracy</h2>\n");
+    h.push_str(&guide("Each row counts life-years from survival at cycle boundaries by one method; its error is what that method costs, at this cycle length, against the exact integral of the curve."));
     h.push_str(&format!(
         "<p>Life-years, in years, to the horizon from survival at cycle boundaries (cycles of {} {}), by method, beside the exact integral of the curve; discounted at {} a year as (1 + r)^(−t) at each boundary. life_years, exact, error and their discounted columns are in years; rel_error columns are ratios.</p>\n",
         crate::format::readable(t.cycle),
@@ -472,6 +531,7 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
 
     // Adjustments and draws.
     h.push_str("<section id=\"adjustments\">\n<h2>Adjustments</h2>\n");
+    h.push_str(&guide("Every setting listed here changes the fitted curve before it is cut into cycles; the same list is in each output file's provenance."));
     match &result.adjusted {
         None => h.push_str("<p>None: the chosen curve is used as fitted (no hazard ratio, acceleration factor or background mortality was requested).</p>\n"),
         Some(adjusted) => {
@@ -489,6 +549,7 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     }
     h.push_str("</section>\n");
     h.push_str("<section id=\"draws\">\n<h2>Uncertainty draws</h2>\n");
+    h.push_str(&guide("The spread between the 2.5% and 97.5% columns is parameter uncertainty only: it does not cover the choice of family or of the extrapolation."));
     match (a.draws, result.draws_document()) {
         (Some(d), Some(doc)) => {
             h.push_str(&format!(
@@ -509,12 +570,15 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
 
     // Caution.
     h.push_str(&format!(
-        "<section id=\"caution\">\n<h2>Caution</h2>\n<p class=\"caution\">{}</p>\n<p>The fitted curves agree with the data only over the observed follow-up; beyond it, the families above differ by assumption alone. A reviewer should see the extrapolated part judged against clinical opinion and external data (registries, longer trials, general-population mortality).</p>\n</section>\n",
+        "<section id=\"caution\">\n<h2>Caution</h2>\n{}<p class=\"caution\">{}</p>\n<p>The fitted curves agree with the data only over the observed follow-up; beyond it, the families above differ by assumption alone. A reviewer should see the extrapolated part judged against clinical opinion and external data (registries, longer trials, general-population mortality).</p>\n</section>\n",
+        guide("Read this before using any number in this report."),
         escape(crate::CAUTION)
     ));
 
     // Reproducibility.
-    h.push_str("<section id=\"reproducibility\">\n<h2>Reproducibility</h2>\n<dl>\n");
+    h.push_str("<section id=\"reproducibility\">\n<h2>Reproducibility</h2>\n");
+    h.push_str(&guide("The same command on files with these SHA-256 values, with the same tool version and SOURCE_DATE_EPOCH, writes the same files byte for byte."));
+    h.push_str("<dl>\n");
     let analysis_sha = crate::input::sha256_hex(a.text.as_bytes());
     let mut rebuilt_from = Vec::new();
     if let (Some(outcome), Some(source)) = (&result.rebuild, &a.rebuild) {
@@ -557,6 +621,8 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
         escape(&a.text)
     ));
     h.push_str("</section>\n</body>\n</html>\n");
+    let listed = contents(&h[contents_at..]);
+    h.insert_str(contents_at, &listed);
     Ok(h)
 }
 
@@ -565,6 +631,7 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
 fn rebuild_section(result: &RunResult, figures: &[Figure]) -> Option<String> {
     let (outcome, source) = (result.rebuild.as_ref()?, result.analysis.rebuild.as_ref()?);
     let mut h = String::from("<section id=\"rebuild\">\n<h2>Rebuilt data</h2>\n");
+    h.push_str(&guide("The records fitted in this report are reconstructed, not observed; the smaller the differences below, the closer the rebuilt curve follows the published figure."));
     h.push_str(&format!(
         "<p class=\"caution\">{}</p>\n",
         escape(crate::cmd::run::REBUILD_CAUTION)
@@ -646,6 +713,40 @@ mod tests {
         assert_eq!(format_utc(0), "1970-01-01 00:00 UTC");
         assert_eq!(format_utc(951_782_400), "2000-02-29 00:00 UTC");
         assert_eq!(format_utc(1_700_000_000), "2023-11-14 22:13 UTC");
+    }
+
+    #[test]
+    fn the_stylesheet_takes_every_colour_from_the_house_palette() {
+        use crate::plot::{hex, BAND, CAUTION, CAUTION_WASH, EMPIRICAL, GRID, MUTED, RULE, TINT};
+        let palette: Vec<String> = [
+            BAND,
+            CAUTION,
+            CAUTION_WASH,
+            EMPIRICAL,
+            GRID,
+            MUTED,
+            RULE,
+            TINT,
+        ]
+        .into_iter()
+        .map(hex)
+        .collect();
+        let css = style();
+        let mut found = 0;
+        for (i, _) in css.match_indices('#') {
+            let digits = css[i + 1..]
+                .chars()
+                .take_while(char::is_ascii_hexdigit)
+                .count();
+            if !matches!(digits, 3 | 6) || css[i..].starts_with("#fff;") {
+                continue; // a selector (`nav#contents`), or the page's white, as the plots'
+            }
+            let colour: String = css[i..].chars().take(7).collect();
+            assert!(palette.contains(&colour), "{colour} is not in the palette");
+            found += 1;
+        }
+        assert!(found >= 8, "{found} palette colours in the stylesheet");
+        assert!(css.contains(".warning"), "warnings have a style");
     }
 
     #[test]

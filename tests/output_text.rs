@@ -196,6 +196,12 @@ fn one_is_singular_in_every_printed_line_and_file() {
     }
     let svg = std::fs::read_to_string(d.join("demo/tunnels.svg")).unwrap();
     assert!(svg.contains("cycle of 1 month since entry"), "tunnels.svg");
+    // The demo's curve is adjusted (hazard ratio, background): the title must not pass it off
+    // as the fitted Weibull alone.
+    assert!(
+        svg.contains("weibull with adjustments"),
+        "tunnels.svg title"
+    );
     for (name, text) in &texts {
         assert_eq!(plural_after_one(text), None, "{name}");
         if !name.ends_with(".svg") {

@@ -137,11 +137,51 @@ fn run_writes_every_output_and_the_report_matches_the_json() {
             "section {id} missing"
         );
     }
-    // Self-contained: no scripts, no external references.
-    assert!(!doc.descendants().any(|n| n.has_tag_name("script")));
-    assert!(!doc
+    // Each of these sections opens with its one-line reading guide.
+    for id in [
+        "data",
+        "fits",
+        "plots",
+        "chosen",
+        "tunnels",
+        "truncation",
+        "within-cycle",
+        "adjustments",
+        "draws",
+        "caution",
+        "reproducibility",
+    ] {
+        let section = doc
+            .descendants()
+            .find(|n| n.has_tag_name("section") && n.attribute("id") == Some(id))
+            .unwrap();
+        let first_paragraph = section.children().find(|n| n.has_tag_name("p"));
+        assert_eq!(
+            first_paragraph.and_then(|p| p.attribute("class")),
+            Some("guide"),
+            "section {id} has no reading guide first"
+        );
+    }
+    // The contents list every section, in order, by in-page links.
+    let sections: Vec<&str> = doc
         .descendants()
-        .any(|n| n.attribute("src").is_some() || n.attribute("href").is_some()));
+        .filter(|n| n.has_tag_name("section"))
+        .filter_map(|n| n.attribute("id"))
+        .collect();
+    let contents = doc
+        .descendants()
+        .find(|n| n.attribute("id") == Some("contents"))
+        .expect("contents");
+    let links: Vec<&str> = contents
+        .descendants()
+        .filter_map(|n| n.attribute("href"))
+        .collect();
+    let targets: Vec<String> = sections.iter().map(|id| format!("#{id}")).collect();
+    assert_eq!(links, targets);
+    // Self-contained: no scripts, no external references (links stay inside the page).
+    assert!(!doc.descendants().any(|n| n.has_tag_name("script")));
+    assert!(!doc.descendants().any(|n| n.attribute("src").is_some()
+        || n.attribute("href").is_some_and(|h| !h.starts_with('#'))));
     // Every plot of the run is inline.
     let svgs = doc.descendants().filter(|n| n.has_tag_name("svg")).count();
     assert_eq!(svgs, 3 * 2 + 2);

@@ -815,7 +815,15 @@ pub fn render_files(result: &RunResult, created: Option<u64>) -> Result<Vec<(Str
     let horizon = (result.horizon_cycles as f64 * result.analysis.cycle.in_unit(unit)).max(longest);
     let mut figures = plot::fit_figures(&result.data, &result.fits, horizon)?;
     let tunnel_plot = TunnelPlot {
-        title: format!("Tunnel table: {}", result.curve.family.name()),
+        title: format!(
+            "Tunnel table: {}{}",
+            result.curve.family.name(),
+            if result.adjusted.is_some() {
+                " with adjustments"
+            } else {
+                ""
+            }
+        ),
         table: &result.tunnels,
         colour: plot::family_colour(result.curve.family.name()),
         markers: std::iter::once(TunnelMarker {

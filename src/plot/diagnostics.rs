@@ -133,7 +133,7 @@ impl Plot for DiagnosticPlot<'_> {
             chart
                 .configure_mesh()
                 .light_line_style(WHITE)
-                .bold_line_style(RGBColor(0xe4, 0xe4, 0xe4))
+                .bold_line_style(super::GRID)
                 .x_desc(format!("ln t (t in {unit})"))
                 .y_desc(transform.label())
                 .x_labels(6)
@@ -161,7 +161,7 @@ impl Plot for DiagnosticPlot<'_> {
         for (label, _) in &self.curves {
             entries.push((label.clone(), Mark::Line(family_colour(label), 2)));
         }
-        draw_legend(&legend, "Legend", &entries)
+        draw_legend(&legend, "Estimate and fits", &entries)
     }
 }
 

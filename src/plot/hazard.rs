@@ -176,7 +176,7 @@ impl Plot for HazardPlot<'_> {
         for (label, _) in &self.curves {
             entries.push((label.clone(), Mark::Line(family_colour(label), 2)));
         }
-        draw_legend(&legend, "Legend", &entries)
+        draw_legend(&legend, "Estimate and fits", &entries)
     }
 }
 

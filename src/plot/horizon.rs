@@ -1,8 +1,8 @@
 //! Plot (e): truncation errors against the number of tunnel states, on a log scale, with the
 //! tolerance as a horizontal line: where both errors fall below it the chain may be cut.
 
-use super::REFERENCE;
-use super::{draw_legend, err, family_colour, text_style, tick_label, Mark, Plot};
+use super::{draw_legend, err, series_colour, text_style, tick_label, Mark, Plot};
+use super::{GRID, REFERENCE};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
@@ -31,8 +31,8 @@ impl Plot for HorizonPlot {
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), String> {
         root.fill(&WHITE).map_err(err)?;
         let (left, legend) = root.split_horizontally(740);
-        let gap_colour = family_colour("exponential");
-        let ly_colour = family_colour("weibull");
+        let gap_colour = series_colour(0);
+        let ly_colour = series_colour(1);
         let max_count = self.counts.iter().copied().max().unwrap_or(1).max(2) as f64;
         let min_count = self.counts.iter().copied().min().unwrap_or(1) as f64;
         let values = self
@@ -52,7 +52,7 @@ impl Plot for HorizonPlot {
         chart
             .configure_mesh()
             .light_line_style(WHITE)
-            .bold_line_style(RGBColor(0xe4, 0xe4, 0xe4))
+            .bold_line_style(GRID)
             .x_desc("Number of tunnel states")
             .y_desc("Error (log scale)")
             .x_label_formatter(&|x| tick_label(*x))
@@ -89,6 +89,6 @@ impl Plot for HorizonPlot {
                 Mark::Line(REFERENCE, 1),
             ),
         ];
-        draw_legend(&legend, "Legend", &entries)
+        draw_legend(&legend, "Errors and tolerance", &entries)
     }
 }

@@ -33,14 +33,60 @@ use plotters::coord::types::RangedCoordf64;
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
-/// Colour of the Kaplan–Meier estimate and other empirical quantities (near black).
+// The house palette, in one place: every plot and the report's stylesheet
+// (`report::style`) take their colours from here, each colour with one role.
+
+/// Colour of the Kaplan–Meier estimate and other empirical quantities (near black); also the
+/// text colour of plots and of the report.
 pub const EMPIRICAL: RGBColor = RGBColor(0x1c, 0x1c, 0x1c);
 
-/// Colour of the Kaplan–Meier confidence band (filled lightly).
+/// Colour of the Kaplan–Meier confidence band (filled lightly) and of the report's reading
+/// guides.
 pub const BAND: RGBColor = RGBColor(0x9e, 0xa9, 0xb8);
 
 /// Colour of reference lines (end of follow-up, tolerance, markers).
 pub const REFERENCE: RGBColor = RGBColor(0x70, 0x70, 0x70);
+
+/// Colour of grid lines.
+pub const GRID: RGBColor = RGBColor(0xe4, 0xe4, 0xe4);
+
+/// Secondary text: figure captions and the report's meta line.
+pub const MUTED: RGBColor = RGBColor(0x50, 0x50, 0x50);
+
+/// Rules between table rows in the report.
+pub const RULE: RGBColor = RGBColor(0xd6, 0xd6, 0xd6);
+
+/// Light tint behind table headings and verbatim text in the report.
+pub const TINT: RGBColor = RGBColor(0xf1, 0xf1, 0xee);
+
+/// The caution's accent (and of warnings), and the wash behind it.
+pub const CAUTION: RGBColor = RGBColor(0xb0, 0x30, 0x2e);
+
+/// Wash behind a caution or warning.
+pub const CAUTION_WASH: RGBColor = RGBColor(0xf7, 0xef, 0xe9);
+
+/// Lines of marked tunnel numbers (suggested count, stable from), in order; their lightness
+/// differs from the curve colours', and none is the caution's red (a marker is not a warning).
+pub const MARKER_COLOURS: [RGBColor; 3] = [
+    REFERENCE,
+    RGBColor(0x2f, 0x6b, 0x3a),
+    RGBColor(0x4d, 0x3a, 0x7a),
+];
+
+/// Lines that are not families (the arms of a rebuild, the measures of the truncation plot),
+/// in order: kept apart from the family colours so that blue never means "exponential" in
+/// one plot and an arm in the next.
+pub const SERIES_COLOURS: [RGBColor; 4] = [
+    RGBColor(0x2e, 0x5a, 0x6b),
+    RGBColor(0xb8, 0x61, 0x2a),
+    RGBColor(0x6a, 0x4c, 0x93),
+    RGBColor(0x4f, 0x7a, 0x28),
+];
+
+/// Colour of series `index` (see [`SERIES_COLOURS`]).
+pub fn series_colour(index: usize) -> RGBColor {
+    SERIES_COLOURS[index % SERIES_COLOURS.len()]
+}
 
 /// Fixed colours of the families tunnelcast knows, so a family looks the same in every plot.
 const FAMILY_COLOURS: [(&str, RGBColor); 6] = [
@@ -338,7 +384,8 @@ fn text_style(size: u32) -> TextStyle<'static> {
     (FONT, size).into_font().color(&EMPIRICAL)
 }
 
-/// Draws a legend as a list down the panel `area` (beside the plot, never over it).
+/// Draws a legend as a list down the panel `area` (beside the plot, never over it), under a
+/// `heading` that says what the entries are ("Estimate and fits", "By arm"), not "Legend".
 fn draw_legend<DB: DrawingBackend>(
     area: &DrawingArea<DB, Shift>,
     heading: &str,
@@ -406,9 +453,6 @@ fn draw_x_ticks<DB: DrawingBackend>(
     }
     Ok(())
 }
-
-/// Colour of grid lines.
-const GRID: RGBColor = RGBColor(0xe4, 0xe4, 0xe4);
 
 /// Round tick positions covering [0, max]: steps of 1, 2 or 5 times a power of ten,
 /// at most `most` intervals.
@@ -510,6 +554,16 @@ mod tests {
         };
         assert_eq!(curves(family_colour("weibull")), 1);
         assert_eq!(curves(family_colour("loglogistic")), 1);
+        // The legend panel says what it lists.
+        let doc = roxmltree::Document::parse(&svg).unwrap();
+        let texts: Vec<&str> = doc
+            .descendants()
+            .filter(|n| n.has_tag_name("text"))
+            .filter_map(|n| n.text())
+            .map(str::trim)
+            .collect();
+        assert!(texts.contains(&"Estimate and fits"), "{texts:?}");
+        assert!(!texts.contains(&"Legend"));
         let steps: Vec<&Vec<(f64, f64)>> = lines
             .iter()
             .filter(|(c, p)| *c == hex(EMPIRICAL) && p.len() > 50)
@@ -571,5 +625,48 @@ mod tests {
             }
             assert_ne!(a, &hex(EMPIRICAL));
         }
+    }
+
+    #[test]
+    fn each_palette_colour_has_one_role() {
+        // Series (arms, measures), markers, the caution and the families never share a colour,
+        // so a colour means the same thing in every plot and in the report.
+        let mut roles: Vec<(String, RGBColor)> = vec![
+            ("empirical".into(), EMPIRICAL),
+            ("band".into(), BAND),
+            ("reference".into(), REFERENCE),
+            ("grid".into(), GRID),
+            ("muted".into(), MUTED),
+            ("rule".into(), RULE),
+            ("tint".into(), TINT),
+            ("caution".into(), CAUTION),
+            ("caution wash".into(), CAUTION_WASH),
+        ];
+        roles.extend(
+            MARKER_COLOURS
+                .iter()
+                .skip(1) // the first marker is the reference grey itself
+                .enumerate()
+                .map(|(i, c)| (format!("marker {i}"), *c)),
+        );
+        roles.extend(
+            SERIES_COLOURS
+                .iter()
+                .enumerate()
+                .map(|(i, c)| (format!("series {i}"), *c)),
+        );
+        roles.extend(FAMILY_COLOURS.iter().map(|(n, c)| (n.to_string(), *c)));
+        roles.extend(
+            SPARE_COLOURS
+                .iter()
+                .enumerate()
+                .map(|(i, c)| (format!("spare {i}"), *c)),
+        );
+        for (i, (a, ca)) in roles.iter().enumerate() {
+            for (b, cb) in &roles[i + 1..] {
+                assert_ne!(hex(*ca), hex(*cb), "{a} and {b} share a colour");
+            }
+        }
+        assert_eq!(MARKER_COLOURS[0], REFERENCE);
     }
 }

@@ -2,7 +2,7 @@
 //! the Kaplan–Meier curve of the rebuilt records as a step line, and, under the plot, the
 //! published numbers at risk beside the rebuilt ones at each risk-table time.
 
-use super::{draw_legend, draw_x_ticks, err, nice_ticks, text_style, Mark, Plot, FAMILY_COLOURS};
+use super::{draw_legend, draw_x_ticks, err, nice_ticks, series_colour, text_style, Mark, Plot};
 use crate::km::KaplanMeier;
 use crate::rebuild::AtRiskCheck;
 use crate::units::TimeUnit;
@@ -39,9 +39,10 @@ const ROW: u32 = 18;
 const CHART_HEIGHT: u32 = 535;
 
 impl RebuildPlot {
-    /// Colour of arm `index`: the palette's colours in order, so arms stay apart.
+    /// Colour of arm `index`: the series colours in order (not family colours: an arm is not
+    /// a family), so arms stay apart.
     pub fn arm_colour(index: usize) -> RGBColor {
-        FAMILY_COLOURS[index % FAMILY_COLOURS.len()].1
+        series_colour(index)
     }
 
     /// Rows of numbers at risk: two (published, rebuilt) per arm with a risk table.
@@ -193,7 +194,7 @@ impl Plot for RebuildPlot {
             entries.push((format!("{name}rebuilt Kaplan–Meier"), Mark::Line(colour, 2)));
             entries.push((format!("{name}digitised points"), Mark::Point(colour)));
         }
-        draw_legend(&legend, "Legend", &entries)
+        draw_legend(&legend, "By arm", &entries)
     }
 }
 

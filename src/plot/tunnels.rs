@@ -2,7 +2,7 @@
 //! truncation point and any other criterion marked by labelled vertical lines.
 
 use super::{draw_legend, draw_x_ticks, err, nice_ticks, text_style, tick_label, Mark, Plot};
-use super::{EMPIRICAL, REFERENCE};
+use super::{EMPIRICAL, MARKER_COLOURS};
 use crate::discretise::TunnelTable;
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -28,13 +28,6 @@ pub struct TunnelPlot<'a> {
     /// Marked tunnel numbers.
     pub markers: Vec<TunnelMarker>,
 }
-
-/// Line colours of markers, in order (distinct from the curve colours' lightness).
-const MARKER_COLOURS: [RGBColor; 3] = [
-    REFERENCE,
-    RGBColor(0xb0, 0x3a, 0x2e),
-    RGBColor(0x2f, 0x6b, 0x3a),
-];
 
 impl Plot for TunnelPlot<'_> {
     fn size(&self) -> (u32, u32) {
@@ -107,6 +100,6 @@ impl Plot for TunnelPlot<'_> {
                 )
                 .map_err(err)?;
         }
-        draw_legend(&legend, "Legend", &entries)
+        draw_legend(&legend, "Table and markers", &entries)
     }
 }
