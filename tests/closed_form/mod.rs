@@ -302,8 +302,8 @@ pub fn boundary_sum(method: &str, f: &[f64], h: f64) -> f64 {
         "simpson" => {
             let third = if n % 2 == 0 { n } else { n - 3 };
             let mut weights = vec![0.0; n + 1];
-            for j in 0..=third {
-                weights[j] = if j == 0 || j == third {
+            for (j, w) in weights.iter_mut().enumerate().take(third + 1) {
+                *w = if j == 0 || j == third {
                     h / 3.0
                 } else if j % 2 == 1 {
                     4.0 * h / 3.0
@@ -383,7 +383,7 @@ pub fn restricted_mean(w: Weibull, adjust: Adjust, end: f64, discount: f64) -> f
         points.push(b);
         total += points
             .windows(2)
-            .map(|p| integrate_panels(&f, p[0], p[1], 2))
+            .map(|p| integrate_panels(f, p[0], p[1], 2))
             .sum::<f64>();
         a = b;
     }
