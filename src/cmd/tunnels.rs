@@ -2,6 +2,9 @@
 //! as an aligned table or written as CSV/JSON in the long or matrix layout.
 
 use crate::cmd::curve_args::{parse_unit, CurveArgs};
+use crate::cmd::payoff_args::{
+    companion_path, describe_payoff, parse_discount, payoff_metadata, payoff_table,
+};
 use crate::curve::Curve;
 use crate::discretise::{count_until, tunnel_table, TunnelTable, MAX_COUNT};
 use crate::error::{Error, Result};
@@ -11,6 +14,7 @@ use crate::export::tunnel::{
 use crate::export::{number_text, Cell, Table, Target};
 use crate::format::{counted, readable, sig};
 use crate::output;
+use crate::payoff::tunnel_payoffs;
 use crate::units::{Duration, TimeUnit};
 use clap::Args;
 use std::path::PathBuf;
@@ -58,6 +62,19 @@ pub struct TunnelsArgs {
     /// Replace an existing output file.
     #[arg(long)]
     pub force: bool,
+    /// Payoff schedule CSV (payoff,kind,from,amount,per): adds a payoff_NAME column per payoff,
+    /// the exact expected amount accrued during each tunnel's cycle by a person at its start.
+    #[arg(long, value_name = "FILE", help_heading = "Payoffs")]
+    pub payoffs: Option<PathBuf>,
+    /// Annual discount rate applied to the payoff columns within each cycle, from its start.
+    #[arg(
+        long,
+        value_name = "RATE",
+        default_value = "0",
+        requires = "payoffs",
+        help_heading = "Payoffs"
+    )]
+    pub discount: String,
 }
 
 /// Parses a duration option with a one-line error naming the option.
@@ -201,6 +218,26 @@ pub fn render_text(table: &TunnelTable, layout: Layout) -> String {
     out
 }
 
+/// A table of cells as aligned text (numbers to 6 significant digits).
+fn render_cells(table: &Table) -> String {
+    let rows: Vec<Vec<String>> = table
+        .rows
+        .iter()
+        .map(|row| {
+            row.iter()
+                .map(|c| match c {
+                    Cell::Int(i) => i.to_string(),
+                    Cell::Number(x) => sig(*x, 6),
+                    Cell::Text(t) => t.clone(),
+                    Cell::Missing => String::new(),
+                })
+                .collect()
+        })
+        .collect();
+    let header: Vec<&str> = table.columns.iter().map(String::as_str).collect();
+    crate::format::table_aligned(&header, &rows, 0)
+}
+
 /// The extra tables of a several-table format (XLSX): the other layout, the parameters and
 /// settings, and the comparison of the fits of the same arm when the curve came from a fit file.
 fn workbook_tables(
@@ -336,6 +373,21 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
         Some(path) => Some(Target::new(path, args.format.as_deref(), args.force)?),
         None => None,
     };
+    let discount = parse_discount("--discount", &args.discount)?;
+    let payoff_file = match &args.payoffs {
+        Some(path) => Some(crate::payoff::schedule::load(path)?),
+        None => None,
+    };
+    let companion = match (&target, &payoff_file) {
+        (Some(t), Some(_)) if args.layout != Layout::Long && t.exporter.extension() == "csv" => {
+            Some(Target::new(
+                &companion_path(&t.path),
+                args.format.as_deref(),
+                args.force,
+            )?)
+        }
+        _ => None,
+    };
     let built = args.curve.build()?;
     for w in &built.warnings {
         eprintln!("warning: {w}");
@@ -346,7 +398,18 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
     };
     let cycle_in_curve = cycle.in_unit(built.curve.time_unit());
     built.check_horizon(count as f64 * cycle_in_curve)?;
-    let table = tunnel_table(&built.curve, cycle_in_table, count);
+    let mut table = tunnel_table(&built.curve, cycle_in_table, count);
+    let payoffs = payoff_file
+        .as_ref()
+        .map(|f| tunnel_payoffs(&built.curve, &f.schedule, cycle, count, discount));
+    if let Some(p) = &payoffs {
+        for w in &p.warnings {
+            eprintln!("warning: {w}");
+        }
+        // The long layout carries the payoff columns (the matrices ignore them and get a
+        // payoff table beside them).
+        p.append_to(&mut table);
+    }
     if args.layout == Layout::MatrixByCause && crate::discretise::exit_causes(&table).is_empty() {
         return Err(Error::Usage(
             "--layout matrix-by-cause needs a curve whose exit is split by cause: add background mortality with --background LIFETABLE.csv --background-mode add".into(),
@@ -355,21 +418,47 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
     let mut metadata = built.metadata.clone();
     let floor = built.floor_report(cycle_in_curve, count);
     metadata.extend(floor.iter().cloned());
+    if let (Some(file), Some(p)) = (&payoff_file, &payoffs) {
+        metadata.extend(payoff_metadata(file, p.discount, p.exactness));
+        metadata.extend(
+            p.warnings
+                .iter()
+                .map(|w| ("warning".to_string(), w.clone())),
+        );
+    }
+    let payoff_side = match (&payoffs, args.layout) {
+        (Some(p), Layout::Matrix | Layout::MatrixByCause) => Some(payoff_table(&table, p)),
+        _ => None,
+    };
     match target {
         Some(target) => {
             let exporter = &target.exporter;
-            let mut document =
-                tunnel_document(&table, args.layout, header(&table, &metadata, args.layout));
+            let head = header(&table, &metadata, args.layout);
+            let mut document = tunnel_document(&table, args.layout, head.clone());
+            if let (Some(side), None) = (&payoff_side, &companion) {
+                // JSON and XLSX hold the payoff table beside the matrix.
+                document.tables.push(side.clone());
+            }
             if exporter.holds_several_tables() {
                 document
                     .tables
                     .extend(workbook_tables(&table, args.layout, &built, &args.curve)?);
             }
-            target.write(&document)?;
-            let described = match exporter.descriptor_path(&target.path) {
+            let mut described = match exporter.descriptor_path(&target.path) {
                 Some(d) => format!("; described in {}", d.display()),
                 None => String::new(),
             };
+            match (&companion, &payoff_side) {
+                (Some(other), Some(side)) => {
+                    let side_document = crate::export::Document {
+                        metadata: head,
+                        tables: vec![side.clone()],
+                    };
+                    Target::write_together(&[(&target, &document), (other, &side_document)])?;
+                    described.push_str(&format!("; payoff table in {}", other.path.display()));
+                }
+                _ => target.write(&document)?,
+            }
             output::print(&format!(
                 "wrote {} ({} of {} {}, {} layout, {}{described})\n",
                 target.path.display(),
@@ -382,6 +471,24 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
         }
         None => {
             let mut text = render_text(&table, args.layout);
+            if let Some(side) = &payoff_side {
+                text.push_str("\npayoffs per tunnel state:\n");
+                text.push_str(&render_cells(side));
+            }
+            if let (Some(file), Some(p)) = (&payoff_file, &payoffs) {
+                for payoff in &file.schedule.payoffs {
+                    text.push_str(&format!(
+                        "{}: {}\n",
+                        payoff.column(),
+                        describe_payoff(payoff)
+                    ));
+                }
+                text.push_str(&format!(
+                    "payoffs discounted at {} a year within each cycle; {}\n",
+                    p.discount.rate(),
+                    p.exactness.describe()
+                ));
+            }
             for (key, value) in &floor {
                 text.push_str(&format!("{}: {value}\n", key.replace('_', " ")));
             }

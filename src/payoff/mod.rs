@@ -19,5 +19,5 @@ pub use horizon::{
     suggested_count_with_payoffs, HorizonPayoffs, PayoffMethod, PayoffMethodRow, PAYOFF_METHODS,
 };
 pub use integral::Exactness;
-pub use schedule::{Payoff, PayoffColumns, PayoffRow, RatePiece, Schedule};
+pub use schedule::{Payoff, PayoffColumns, PayoffFile, PayoffRow, RatePiece, Schedule};
 pub use tunnel::{single_tunnel_entry_warning, tunnel_payoffs, TunnelPayoffs};
