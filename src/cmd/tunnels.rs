@@ -62,6 +62,10 @@ pub struct TunnelsArgs {
     /// Replace an existing output file.
     #[arg(long)]
     pub force: bool,
+    /// Write the long table for entry at the start of each of the first N model cycles (ages at
+    /// entry rising by one cycle each; needs --background); leading columns entry_cycle, entry_age.
+    #[arg(long, value_name = "N", help_heading = "Background mortality")]
+    pub entry_cycles: Option<String>,
     /// Payoff schedule CSV (payoff,kind,from,amount,per): adds a payoff_NAME column per payoff,
     /// the exact expected amount accrued during each tunnel's cycle by a person at its start.
     #[arg(long, value_name = "FILE", help_heading = "Payoffs")]
@@ -354,6 +358,153 @@ fn workbook_tables(
     Ok(tables)
 }
 
+/// Most entry cycles `--entry-cycles` accepts.
+pub const MAX_ENTRY_CYCLES: usize = 10_000;
+
+/// Parses `--entry-cycles`: a whole number from 1 to [`MAX_ENTRY_CYCLES`].
+pub fn parse_entry_cycles(text: &str) -> Result<usize> {
+    match text.trim().parse::<usize>() {
+        Ok(n) if (1..=MAX_ENTRY_CYCLES).contains(&n) => Ok(n),
+        _ => Err(Error::Usage(format!(
+            "--entry-cycles {}: must be a whole number of model cycles from 1 to {MAX_ENTRY_CYCLES}",
+            text.trim()
+        ))),
+    }
+}
+
+/// The age at entry (years) for entry at the start of model cycle `e` (0-based).
+pub fn entry_age(start_age: f64, cycle: Duration, e: usize) -> f64 {
+    start_age + e as f64 * cycle.in_unit(TimeUnit::Years)
+}
+
+/// `tunnels --entry-cycles N`: the long table for entry at each of the first N model cycles,
+/// each from the same curve and adjustments with the start age moved on by whole cycles.
+#[allow(clippy::too_many_arguments)]
+fn run_entry_cycles(
+    built: &crate::cmd::curve_args::BuiltCurve,
+    cycle: Duration,
+    cycle_in_table: Duration,
+    count: usize,
+    n: usize,
+    target: Option<Target>,
+    payoff_file: Option<&crate::payoff::PayoffFile>,
+    discount: crate::payoff::Discount,
+) -> Result<()> {
+    let start_age = built
+        .adjuster
+        .settings()
+        .background
+        .as_ref()
+        .map(|b| b.start_age)
+        .ok_or_else(|| Error::Usage("--entry-cycles needs --background".into()))?;
+    let cycle_in_curve = cycle.in_unit(built.curve.time_unit());
+    let mut tables = Vec::with_capacity(n);
+    let mut exactness = None;
+    for e in 0..n {
+        let age = entry_age(start_age, cycle, e);
+        let adjuster = built
+            .adjuster
+            .with_start_age(age)
+            .map_err(|err| match err {
+                Error::Usage(m) => Error::Usage(format!(
+                    "--entry-cycles {n}: entry at cycle {e} (age {}): {m}",
+                    readable(age)
+                )),
+                other => other,
+            })?;
+        let curve = adjuster.adjust(built.base.clone())?;
+        curve
+            .check_horizon(count as f64 * cycle_in_curve)
+            .map_err(|err| match err {
+                Error::Usage(m) => Error::Usage(format!(
+                    "--entry-cycles {n}: entry at cycle {e} (age {}): {m}",
+                    readable(age)
+                )),
+                other => other,
+            })?;
+        let mut table = tunnel_table(&curve, cycle_in_table, count);
+        if let Some(file) = payoff_file {
+            let p = tunnel_payoffs(&curve, &file.schedule, cycle, count, discount);
+            if e == 0 {
+                for w in &p.warnings {
+                    eprintln!("warning: {w}");
+                }
+            }
+            exactness = Some(p.exactness);
+            p.append_to(&mut table);
+        }
+        tables.push((e, age, table));
+    }
+    let first = &tables[0].2;
+    let mut metadata = built.metadata.clone();
+    if let (Some(file), Some(x)) = (payoff_file, exactness) {
+        metadata.extend(payoff_metadata(file, discount, x));
+    }
+    metadata.push(("entry_cycles".into(), n.to_string()));
+    metadata.push((
+        "entry".into(),
+        "entry_cycle e (0-based): entry at the start of model cycle e; entry_age = start age + e * cycle, in years; the background hazard follows the age at entry, the curve and its other adjustments follow time since entry".into(),
+    ));
+    let head = header(first, &metadata, Layout::Long);
+    let mut long = long_table(first);
+    let mut columns = vec!["entry_cycle".to_string(), "entry_age".to_string()];
+    columns.append(&mut long.columns);
+    let mut rows = Vec::with_capacity(n * count);
+    for (e, age, table) in &tables {
+        for row in long_table(table).rows {
+            let mut cells = vec![Cell::Int(*e as i64), Cell::Number(*age)];
+            cells.extend(row);
+            rows.push(cells);
+        }
+    }
+    let combined = Table {
+        name: "tunnels".into(),
+        columns,
+        rows,
+    };
+    match target {
+        Some(target) => {
+            let document = crate::export::Document {
+                metadata: head,
+                tables: vec![combined],
+            };
+            target.write(&document)?;
+            let described = match target.exporter.descriptor_path(&target.path) {
+                Some(d) => format!("; described in {}", d.display()),
+                None => String::new(),
+            };
+            output::print(&format!(
+                "wrote {} ({} × {} of {} {}, entry at cycles 0 to {}, ages {} to {}, long layout, {}{described})\n",
+                target.path.display(),
+                counted(n, "entry cycle"),
+                counted(count, "tunnel state"),
+                readable(first.cycle),
+                first.time_unit.name_for(first.cycle),
+                n - 1,
+                readable(tables[0].1),
+                readable(tables[n - 1].1),
+                target.exporter.extension()
+            ));
+        }
+        None => {
+            let mut text = format!(
+                "curve: {}\ncycle: {} {}; {} for each of {} (entry ages {} to {} years); times in {}\n",
+                first.curve,
+                readable(first.cycle),
+                first.time_unit.name_for(first.cycle),
+                counted(count, "tunnel state"),
+                counted(n, "entry cycle"),
+                readable(tables[0].1),
+                readable(tables[n - 1].1),
+                first.time_unit
+            );
+            text.push_str(&render_cells(&combined));
+            output::print(&text);
+        }
+    }
+    Ok(())
+}
+
 /// Runs `tunnels`.
 pub fn run(args: TunnelsArgs) -> Result<()> {
     let cycle = parse_duration("--cycle", &args.cycle)?;
@@ -373,6 +524,23 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
         Some(path) => Some(Target::new(path, args.format.as_deref(), args.force)?),
         None => None,
     };
+    let entry_cycles = match &args.entry_cycles {
+        None => None,
+        Some(text) => Some(parse_entry_cycles(text)?),
+    };
+    if entry_cycles.is_some() {
+        if args.curve.background.is_none() {
+            return Err(Error::Usage(
+                "--entry-cycles needs background mortality (--background LIFETABLE.csv --start-age A): without it the tunnel probabilities do not depend on the time of entry".into(),
+            ));
+        }
+        if args.layout != Layout::Long {
+            return Err(Error::Usage(format!(
+                "--entry-cycles writes the long layout only; --layout {} is refused with it",
+                args.layout.name()
+            )));
+        }
+    }
     let discount = parse_discount("--discount", &args.discount)?;
     let payoff_file = match &args.payoffs {
         Some(path) => Some(crate::payoff::schedule::load(path)?),
@@ -398,6 +566,18 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
     };
     let cycle_in_curve = cycle.in_unit(built.curve.time_unit());
     built.check_horizon(count as f64 * cycle_in_curve)?;
+    if let Some(n) = entry_cycles {
+        return run_entry_cycles(
+            &built,
+            cycle,
+            cycle_in_table,
+            count,
+            n,
+            target,
+            payoff_file.as_ref(),
+            discount,
+        );
+    }
     let mut table = tunnel_table(&built.curve, cycle_in_table, count);
     let payoffs = payoff_file
         .as_ref()

@@ -429,6 +429,16 @@ fn known(table: &str, column: &str) -> Option<Known> {
             "uncertainty draw, from 1 (the rows of one draw share one parameter set)",
             Plain,
         ),
+        "entry_cycle" => k(
+            INT,
+            "model cycle at whose start the cohort enters tunnel 1 (0-based)",
+            Plain,
+        ),
+        "entry_age" => k(
+            NUM,
+            "age at entry in years: the start age plus entry_cycle cycles",
+            Plain,
+        ),
         "tunnel" => k(
             INT,
             "tunnel state: cycles since entry, from 1 (the cycle of entry)",
@@ -663,6 +673,8 @@ mod tests {
                     "p_exit_disease",
                     "floor_share",
                     "payoff_cost",
+                    "entry_cycle",
+                    "entry_age",
                 ][..],
             ),
             ("payoffs", &["tunnel", "payoff_cost"][..]),
