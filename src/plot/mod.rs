@@ -13,6 +13,7 @@
 mod diagnostics;
 mod hazard;
 mod horizon;
+mod payoffs;
 mod rebuild;
 mod survival;
 mod tunnels;
@@ -20,6 +21,7 @@ mod tunnels;
 pub use diagnostics::{diagnostic_points, DiagnosticPlot, Transform};
 pub use hazard::{smoothed_hazard, HazardPlot, SmoothedHazard};
 pub use horizon::HorizonPlot;
+pub use payoffs::{PayoffPanel, PayoffPlot};
 pub use rebuild::{RebuildPlot, RebuildPlotArm};
 pub use survival::SurvivalPlot;
 pub use tunnels::{TunnelMarker, TunnelPlot};
