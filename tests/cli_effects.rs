@@ -61,6 +61,15 @@ fn fit_effects_writes_the_cox_model_and_its_test() {
         assert!(t["lower"].as_f64().unwrap() < hr && hr < t["upper"].as_f64().unwrap());
     }
     assert_eq!(cox["ph_test"]["df"], 5);
+    // The plot of the arms and the residuals, one panel per term.
+    tunnelcast(dir.path())
+        .args(["fit", &va_lung(), "--time-unit", "days", "--arm-col", "arm"])
+        .args(["--families", "weibull", "--effects", "--plots", "plots"])
+        .assert()
+        .success();
+    let svg = std::fs::read_to_string(dir.path().join("plots/effects.svg")).unwrap();
+    assert!(svg.contains("arm_test") && svg.contains("running mean"));
+    assert!(dir.path().join("plots/effects.png").exists());
     // The file still reads back as a fit file for the curve options.
     tunnelcast(dir.path())
         .args([

@@ -317,6 +317,11 @@ pub fn run(args: FitArgs) -> Result<()> {
         for (name, bytes) in crate::plot::fit_figures(&data, &file, 3.0 * longest)? {
             staged.write(&name, &bytes)?;
         }
+        if let Some(effects) = &effects {
+            for (name, bytes) in super::fit_effects::figures(effects, &data, time_unit)? {
+                staged.write(&name, &bytes)?;
+            }
+        }
         staged.finish()?;
         text.push_str(&format!("wrote plots to {}\n", dir.display()));
     }

@@ -30,6 +30,8 @@ pub struct EffectsResult {
     pub design: Design,
     /// The Cox model and its test.
     pub cox: CoxSummary,
+    /// Per term: (time, scaled Schoenfeld residual) of each event, for the plot.
+    pub scaled: Vec<Vec<(f64, f64)>>,
 }
 
 /// Checks the options, reads the design and fits the models; `None` without `--effects`.
@@ -70,11 +72,57 @@ pub fn prepare(
     };
     let bytes = read_file(data)?;
     let design = design::parse(&data.display().to_string(), &bytes, &options)?;
-    let (_, _, cox) = report::analyse(&design);
-    Ok(Some(EffectsResult { design, cox }))
+    let (_, test, cox) = report::analyse(&design);
+    let scaled = (0..design.p())
+        .map(|j| test.scaled.iter().map(|(t, _, s)| (*t, s[j])).collect())
+        .collect();
+    Ok(Some(EffectsResult {
+        design,
+        cox,
+        scaled,
+    }))
 }
 
 /// The printed section of the models across arms.
 pub fn render(result: &EffectsResult) -> String {
     report::render(&result.cox)
+}
+
+/// The figure `effects.svg`/`effects.png`: ln(−ln S) per arm against ln t, and the scaled
+/// Schoenfeld residuals of each term over time.
+pub fn figures(
+    result: &EffectsResult,
+    data: &crate::input::Dataset,
+    unit: crate::units::TimeUnit,
+) -> Result<Vec<crate::plot::Figure>> {
+    let kms: Vec<(String, crate::km::KaplanMeier)> = data
+        .arms
+        .iter()
+        .map(|a| {
+            (
+                a.arm.clone().unwrap_or_default(),
+                crate::km::KaplanMeier::from_records(&a.records),
+            )
+        })
+        .collect();
+    let plot = crate::plot::EffectsPlot {
+        title: format!(
+            "Proportional hazards: arms and Schoenfeld residuals (reference arm {})",
+            result.cox.reference
+        ),
+        unit,
+        arms: kms.iter().map(|(n, k)| (n.clone(), k)).collect(),
+        terms: result
+            .cox
+            .terms
+            .iter()
+            .zip(&result.scaled)
+            .map(|(t, points)| crate::plot::ResidualPanel {
+                name: t.name.clone(),
+                coef: t.coef,
+                points: points.clone(),
+            })
+            .collect(),
+    };
+    crate::plot::both("effects", &plot)
 }
