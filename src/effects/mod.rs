@@ -4,5 +4,6 @@
 
 pub mod cox;
 pub mod design;
+pub mod joint;
 pub mod ph_test;
 pub mod report;
