@@ -930,6 +930,9 @@ pub struct FitFile {
     pub data: DataInfo,
     /// Fits, sorted by AIC within each arm.
     pub fits: Vec<FamilyFit>,
+    /// The Cox model across arms and its test of proportional hazards (`fit --effects`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cox: Option<crate::effects::report::CoxSummary>,
 }
 
 /// Resolves `--families` (empty = the default families: the standard five plus `generalized-gamma`).
@@ -1006,6 +1009,7 @@ pub fn fit_dataset(
             arms,
         },
         fits,
+        cox: None,
     }
 }
 

@@ -61,6 +61,9 @@ pub struct FitArgs {
     /// Replace an existing output file.
     #[arg(long)]
     pub force: bool,
+    /// Models across arms (`--effects`, `--reference`, `--covariates`).
+    #[command(flatten)]
+    pub effects: super::fit_effects::EffectsArgs,
 }
 
 fn interval_text(median: &MedianEstimate) -> String {
@@ -278,8 +281,23 @@ pub fn run(args: FitArgs) -> Result<()> {
         zero_time: args.zero_time,
     };
     let data = input::load(&args.data, &options)?;
-    let file = fit_dataset(&data, &families, time_unit, args.zero_time);
+    let effects = super::fit_effects::prepare(
+        &args.effects,
+        &args.data,
+        (
+            &options.time_col,
+            &options.event_col,
+            options.arm_col.as_deref(),
+        ),
+        delimiter,
+        args.zero_time,
+    )?;
+    let mut file = fit_dataset(&data, &families, time_unit, args.zero_time);
+    file.cox = effects.as_ref().map(|e| e.cox.clone());
     let mut text = render_comparison(&file);
+    if let Some(effects) = &effects {
+        text.push_str(&super::fit_effects::render(effects));
+    }
     if data.zero_times_replaced > 0 {
         text.push_str(&format!(
             "note: {} zero time(s) replaced by {} {}\n",
@@ -298,6 +316,11 @@ pub fn run(args: FitArgs) -> Result<()> {
         let staged = output::StagedFolder::new(dir)?;
         for (name, bytes) in crate::plot::fit_figures(&data, &file, 3.0 * longest)? {
             staged.write(&name, &bytes)?;
+        }
+        if let Some(effects) = &effects {
+            for (name, bytes) in super::fit_effects::figures(effects, &data, time_unit)? {
+                staged.write(&name, &bytes)?;
+            }
         }
         staged.finish()?;
         text.push_str(&format!("wrote plots to {}\n", dir.display()));

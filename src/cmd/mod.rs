@@ -4,6 +4,7 @@ pub mod curve_args;
 pub mod demo;
 pub mod draws;
 pub mod fit;
+pub mod fit_effects;
 pub mod horizon;
 pub mod payoff_args;
 pub mod rebuild;

@@ -11,6 +11,7 @@
 //! generic `sans-serif` family and is drawn by the viewer's own fonts.
 
 mod diagnostics;
+mod effects;
 mod hazard;
 mod horizon;
 mod payoffs;
@@ -19,6 +20,7 @@ mod survival;
 mod tunnels;
 
 pub use diagnostics::{diagnostic_points, DiagnosticPlot, Transform};
+pub use effects::{EffectsPlot, ResidualPanel};
 pub use hazard::{smoothed_hazard, HazardPlot, SmoothedHazard};
 pub use horizon::HorizonPlot;
 pub use payoffs::{PayoffPanel, PayoffPlot};
