@@ -933,6 +933,9 @@ pub struct FitFile {
     /// The Cox model across arms and its test of proportional hazards (`fit --effects`).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub cox: Option<crate::effects::report::CoxSummary>,
+    /// Joint models across arms (`fit --effects`).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub effects: Vec<crate::effects::report::JointSummary>,
 }
 
 /// Resolves `--families` (empty = the default families: the standard five plus `generalized-gamma`).
@@ -1010,6 +1013,7 @@ pub fn fit_dataset(
         },
         fits,
         cox: None,
+        effects: Vec::new(),
     }
 }
 

@@ -61,12 +61,46 @@ fn fit_effects_writes_the_cox_model_and_its_test() {
         assert!(t["lower"].as_f64().unwrap() < hr && hr < t["upper"].as_f64().unwrap());
     }
     assert_eq!(cox["ph_test"]["df"], 5);
+    // Joint Weibull models: PH and AFT, the same fit (AF = HR^(-1/shape)); no LR test with
+    // covariates (the separate fits have none).
+    let effects = json["effects"].as_array().unwrap();
+    assert_eq!(effects.len(), 2);
+    let (ph, aft) = (&effects[0], &effects[1]);
+    assert_eq!(
+        (ph["model"].as_str(), aft["model"].as_str()),
+        (Some("ph"), Some("aft"))
+    );
+    let shape = ph["params"]["shape"].as_f64().unwrap();
+    let hr = ph["params"]["log_hr_test"].as_f64().unwrap().exp();
+    let af = aft["params"]["log_af_test"].as_f64().unwrap().exp();
+    assert!((af - hr.powf(-1.0 / shape)).abs() < 1e-5 * af);
+    assert!(ph["lr_test"].is_null());
+    assert_eq!(ph["covariance"]["names"][2], "log_hr_test");
     // The plot of the arms and the residuals, one panel per term.
     tunnelcast(dir.path())
         .args(["fit", &va_lung(), "--time-unit", "days", "--arm-col", "arm"])
         .args(["--families", "weibull", "--effects", "--plots", "plots"])
         .assert()
         .success();
+    // Without covariates: the likelihood-ratio test against the separate Weibull fits.
+    tunnelcast(dir.path())
+        .args(["fit", &va_lung(), "--time-unit", "days", "--arm-col", "arm"])
+        .args(["--families", "weibull", "--effects", "--json", "plain.json"])
+        .assert()
+        .success();
+    let plain: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(dir.path().join("plain.json")).unwrap()).unwrap();
+    let lr = &plain["effects"][0]["lr_test"];
+    assert_eq!(lr["df"], 1);
+    let separate: f64 = plain["fits"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|f| f["loglik"].as_f64().unwrap())
+        .sum();
+    assert!((lr["separate_loglik"].as_f64().unwrap() - separate).abs() < 1e-9);
+    let statistic = 2.0 * (separate - plain["effects"][0]["loglik"].as_f64().unwrap());
+    assert!((lr["statistic"].as_f64().unwrap() - statistic).abs() < 1e-9);
     let svg = std::fs::read_to_string(dir.path().join("plots/effects.svg")).unwrap();
     assert!(svg.contains("arm_test") && svg.contains("running mean"));
     assert!(dir.path().join("plots/effects.png").exists());

@@ -294,9 +294,12 @@ pub fn run(args: FitArgs) -> Result<()> {
     )?;
     let mut file = fit_dataset(&data, &families, time_unit, args.zero_time);
     file.cox = effects.as_ref().map(|e| e.cox.clone());
+    if let Some(effects) = &effects {
+        file.effects = super::fit_effects::joint(effects, &file);
+    }
     let mut text = render_comparison(&file);
     if let Some(effects) = &effects {
-        text.push_str(&super::fit_effects::render(effects));
+        text.push_str(&super::fit_effects::render(effects, &file.effects));
     }
     if data.zero_times_replaced > 0 {
         text.push_str(&format!(

@@ -84,8 +84,28 @@ pub fn prepare(
 }
 
 /// The printed section of the models across arms.
-pub fn render(result: &EffectsResult) -> String {
-    report::render(&result.cox)
+pub fn render(result: &EffectsResult, joint: &[report::JointSummary]) -> String {
+    let mut text = report::render_joint(joint);
+    text.push_str(&report::render(&result.cox));
+    text
+}
+
+/// The joint models, with the likelihood-ratio test against the separate Weibull fits of
+/// `file` when every arm has a converged one.
+pub fn joint(result: &EffectsResult, file: &crate::fit::FitFile) -> Vec<report::JointSummary> {
+    let mut separate = 0.0;
+    for arm in &result.design.arms {
+        match file
+            .fits
+            .iter()
+            .find(|f| f.family == "weibull" && f.arm.as_deref() == Some(arm) && f.converged)
+            .and_then(|f| f.loglik)
+        {
+            Some(ll) => separate += ll,
+            None => return report::joint(&result.design, None),
+        }
+    }
+    report::joint(&result.design, Some(separate))
 }
 
 /// The figure `effects.svg`/`effects.png`: ln(−ln S) per arm against ln t, and the scaled

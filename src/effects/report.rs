@@ -193,3 +193,160 @@ pub fn render(summary: &CoxSummary) -> String {
     );
     out
 }
+
+/// The likelihood-ratio test of a joint model against the separate fits of the same family.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct LrTest {
+    /// Sum of the separate fits' log-likelihoods.
+    pub separate_loglik: f64,
+    /// 2·(separate − joint).
+    pub statistic: f64,
+    /// Parameters of the separate fits minus those of the joint model.
+    pub df: usize,
+    /// Upper-tail chi-square p-value.
+    pub p_value: f64,
+}
+
+/// One joint model of the fit JSON's `effects` list.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct JointSummary {
+    /// Family of the reference curve.
+    pub family: String,
+    /// `ph` or `aft`.
+    pub model: String,
+    /// Reference arm.
+    pub reference: String,
+    /// The reference curve's parameters, then the coefficients (`log_hr_LEVEL` or
+    /// `log_af_LEVEL`, `b_NAME`, `b_NAME_LEVEL`).
+    pub params: std::collections::BTreeMap<String, f64>,
+    /// Log-likelihood.
+    pub loglik: f64,
+    /// Akaike information criterion.
+    pub aic: f64,
+    /// Bayesian information criterion (n = patients).
+    pub bic: f64,
+    /// Whether the optimiser converged.
+    pub converged: bool,
+    /// Covariance on the estimation scale.
+    pub covariance: crate::fit::Covariance,
+    /// Test against the separate fits (null with covariates or without the separate fits).
+    pub lr_test: Option<LrTest>,
+}
+
+/// Fits the joint Weibull models and summarises them; `separate` is the sum of the separate
+/// Weibull fits' log-likelihoods over the arms, when every arm has one.
+pub fn joint(design: &Design, separate: Option<f64>) -> Vec<JointSummary> {
+    use super::design::TermKind;
+    use super::joint::{fit, Model};
+    let n = design.subjects.len() as f64;
+    [Model::Ph, Model::Aft]
+        .into_iter()
+        .map(|model| {
+            let result = fit(design, model);
+            let prefix = match model {
+                Model::Ph => "log_hr",
+                Model::Aft => "log_af",
+            };
+            let mut names = vec!["ln_shape".to_string(), "ln_scale".to_string()];
+            for term in &design.terms {
+                names.push(match &term.kind {
+                    TermKind::Arm(level) => format!("{prefix}_{level}"),
+                    _ => term.name.clone(),
+                });
+            }
+            let mut params = std::collections::BTreeMap::new();
+            params.insert("shape".to_string(), result.theta[0].exp());
+            params.insert("scale".to_string(), result.theta[1].exp());
+            for (name, v) in names.iter().zip(&result.theta).skip(2) {
+                params.insert(name.clone(), *v);
+            }
+            let k = result.theta.len() as f64;
+            let lr_test = match separate {
+                Some(sep) if !design.has_covariates() => {
+                    let statistic = (2.0 * (sep - result.loglik)).max(0.0);
+                    let df = design.arms.len() - 1;
+                    let p_value = statrs::distribution::ChiSquared::new(df as f64)
+                        .map(|d| statrs::distribution::ContinuousCDF::sf(&d, statistic))
+                        .unwrap_or(f64::NAN);
+                    Some(LrTest {
+                        separate_loglik: sep,
+                        statistic,
+                        df,
+                        p_value,
+                    })
+                }
+                _ => None,
+            };
+            JointSummary {
+                family: "weibull".into(),
+                model: match model {
+                    Model::Ph => "ph".into(),
+                    Model::Aft => "aft".into(),
+                },
+                reference: design.arms[design.reference].clone(),
+                params,
+                loglik: result.loglik,
+                aic: 2.0 * k - 2.0 * result.loglik,
+                bic: k * n.ln() - 2.0 * result.loglik,
+                converged: result.converged,
+                covariance: crate::fit::Covariance {
+                    scale: "estimation".into(),
+                    names,
+                    matrix: result.covariance,
+                },
+                lr_test,
+            }
+        })
+        .collect()
+}
+
+/// The printed section of the joint models: per model, the effect of each non-reference arm
+/// (HR or AF) with its 95% interval, the log-likelihood, AIC and the test against the
+/// separate fits.
+pub fn render_joint(models: &[JointSummary]) -> String {
+    let z = normal_quantile(0.975);
+    let mut out =
+        String::from("\nJoint models across arms (one reference curve, one effect per arm)\n");
+    for m in models {
+        let what = if m.model == "ph" { "HR" } else { "AF" };
+        let mut line = format!(
+            "  {} {:<3}  shape {}  scale {}",
+            m.family,
+            m.model,
+            sig(m.params["shape"], 4),
+            sig(m.params["scale"], 4)
+        );
+        for (j, name) in m.covariance.names.iter().enumerate().skip(2) {
+            let v = m.params[name];
+            let se = m.covariance.matrix[j][j].sqrt();
+            let label = name
+                .strip_prefix("log_hr_")
+                .or_else(|| name.strip_prefix("log_af_"))
+                .map(|arm| format!("{what} {arm}"))
+                .unwrap_or_else(|| format!("{what} per {name}"));
+            line.push_str(&format!(
+                "; {label} {} ({} to {})",
+                sig(v.exp(), 4),
+                sig((v - z * se).exp(), 3),
+                sig((v + z * se).exp(), 3)
+            ));
+        }
+        line.push_str(&format!("; loglik {:.2}; AIC {:.2}", m.loglik, m.aic));
+        if let Some(lr) = &m.lr_test {
+            line.push_str(&format!(
+                "; vs separate fits: chi-square {} on {} df, p {}",
+                sig(lr.statistic, 4),
+                lr.df,
+                p_text(lr.p_value)
+            ));
+        }
+        if !m.converged {
+            line.push_str("; DID NOT CONVERGE");
+        }
+        out.push_str(&line);
+        out.push('\n');
+    }
+    out
+}
