@@ -5,6 +5,7 @@ pub mod demo;
 pub mod draws;
 pub mod fit;
 pub mod horizon;
+pub mod plausibility_args;
 pub mod rebuild;
 pub mod run;
 pub mod tunnels;
