@@ -11,8 +11,15 @@ to 0.01 month. True survival:
   - standard care: Weibull, shape 1.25, scale 16 months;
   - veltranib:     log-logistic, shape 1.7, scale 26 months.
 
-Standard library only; the seed fixes the file byte for byte.
-    python3 scripts/make_demo.py            # writes data/demo_trial.csv
+Also writes data/demo_payoffs.csv, an invented payoff schedule for the demo's modelled arm
+(payoffs by time since entry, all amounts in an invented currency): a front-loaded treatment
+cost (induction months, then maintenance, then follow-up care), a one-off work-up cost on entry,
+an end-of-life cost on exit, and a utility that improves after the first months. The amounts
+are drawn around invented centres from a second seeded stream and rounded, so they look like
+figures a modeller would type in; they describe no real drug, price or population.
+
+Standard library only; the seeds fix both files byte for byte.
+    python3 scripts/make_demo.py            # writes data/demo_trial.csv, data/demo_payoffs.csv
 """
 
 import math
@@ -61,5 +68,41 @@ def main():
     print(f"wrote {out} ({len(rows)} patients, {events} events)")
 
 
+PAYOFF_SEED = SEED + 1
+
+
+def make_payoffs():
+    """The invented payoff schedule (see the module docstring), from its own seeded stream."""
+    rng = random.Random(PAYOFF_SEED)
+
+    def around(centre, spread, step):
+        return round(centre * (1.0 + spread * (2.0 * rng.random() - 1.0)) / step) * step
+
+    induction = around(4200, 0.1, 50)      # a month, first 4 months
+    maintenance = around(900, 0.1, 10)     # a month, to 2 years
+    follow_up = around(140, 0.1, 5)        # a month, after 2 years
+    work_up = around(2600, 0.1, 50)        # once, on entry
+    end_of_life = around(7500, 0.1, 100)   # once, on exit
+    early_utility = round(0.58 + 0.04 * (2.0 * rng.random() - 1.0), 2)   # a year, 3 months
+    later_utility = round(0.78 + 0.04 * (2.0 * rng.random() - 1.0), 2)   # a year, after
+    rows = [
+        ("treatment_cost", "rate", "0", induction, "1 month"),
+        ("treatment_cost", "rate", "4 months", maintenance, "1 month"),
+        ("treatment_cost", "rate", "2 years", follow_up, "1 month"),
+        ("treatment_cost", "at_entry", "", work_up, ""),
+        ("treatment_cost", "at_exit", "", end_of_life, ""),
+        ("utility", "rate", "0", early_utility, "1 year"),
+        ("utility", "rate", "3 months", later_utility, "1 year"),
+    ]
+    lines = ["payoff,kind,from,amount,per"]
+    for name, kind, start, amount, per in rows:
+        text = f"{amount:g}" if isinstance(amount, float) else str(amount)
+        lines.append(f"{name},{kind},{start},{text},{per}")
+    out = pathlib.Path(__file__).resolve().parent.parent / "data" / "demo_payoffs.csv"
+    out.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    print(f"wrote {out} ({len(rows)} pieces)")
+
+
 if __name__ == "__main__":
     main()
+    make_payoffs()

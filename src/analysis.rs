@@ -82,6 +82,14 @@ struct RawDraws {
     seed: Option<u64>,
 }
 
+/// `[payoffs]`: a payoff schedule (costs, utilities by time since entry) and its discount rate.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawPayoffs {
+    file: Spanned<String>,
+    discount: Option<Spanned<f64>>,
+}
+
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
 struct RawAnalysis {
@@ -92,6 +100,18 @@ struct RawAnalysis {
     output: Option<RawOutput>,
     adjust: Option<Spanned<RawAdjust>>,
     draws: Option<Spanned<RawDraws>>,
+    payoffs: Option<RawPayoffs>,
+}
+
+/// `[payoffs]` settings: the payoff file and the annual discount rate of its figures.
+#[derive(Debug, Clone)]
+pub struct PayoffSettings {
+    /// The payoff file as the analysis file names it, its resolved path and where it is named.
+    pub file: NamedFile,
+    /// Annual discount rate (default: `[tunnels] discount`).
+    pub discount: f64,
+    /// The file's bytes when they are compiled in (the demo); read from `file.path` otherwise.
+    pub bytes: Option<&'static [u8]>,
 }
 
 /// `[draws]` settings: how many parameter draws and the seed of the random stream.
@@ -269,6 +289,8 @@ pub struct Analysis {
     pub background_name: Option<String>,
     /// Uncertainty draws from `[draws]`, if any.
     pub draws: Option<DrawSettings>,
+    /// `[payoffs]` settings, when given.
+    pub payoffs: Option<PayoffSettings>,
 }
 
 impl std::fmt::Debug for Analysis {
@@ -686,6 +708,37 @@ impl Analysis {
             }
         };
 
+        let payoffs = match &raw.payoffs {
+            None => None,
+            Some(p) => {
+                if p.file.get_ref().trim().is_empty() {
+                    return Err(bad(p.file.span(), "[payoffs] file is empty".into()));
+                }
+                let rate = match &p.discount {
+                    None => discount,
+                    Some(x) if (0.0..1.0).contains(x.get_ref()) => *x.get_ref(),
+                    Some(x) => {
+                        return Err(bad(
+                            x.span(),
+                            format!(
+                                "[payoffs] discount: {} is not an annual rate from 0 to below 1 (e.g. 0.035)",
+                                x.get_ref()
+                            ),
+                        ))
+                    }
+                };
+                Some(PayoffSettings {
+                    file: NamedFile {
+                        name: p.file.get_ref().clone(),
+                        path: base.join(p.file.get_ref()),
+                        place: at(p.file.span()),
+                    },
+                    discount: rate,
+                    bytes: None,
+                })
+            }
+        };
+
         Ok(Analysis {
             file: file.to_string(),
             text: text.to_string(),
@@ -717,6 +770,7 @@ impl Analysis {
                 .as_ref()
                 .and_then(|a| a.get_ref().background.clone()),
             draws,
+            payoffs,
         })
     }
 

@@ -958,6 +958,9 @@ pub struct FitFile {
     /// Settings of the plausibility checks (landmarks, mean horizon, targets, population).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub plausibility: Option<crate::plausibility::Record>,
+    /// The Cox model across arms and its test of proportional hazards (`fit --effects`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cox: Option<crate::effects::report::CoxSummary>,
 }
 
 /// Resolves `--families` (empty = the default families: the standard five plus `generalized-gamma`).
@@ -1035,6 +1038,7 @@ pub fn fit_dataset(
         },
         fits,
         plausibility: None,
+        cox: None,
     }
 }
 

@@ -16,6 +16,7 @@ pub mod csv_read;
 pub mod curve;
 pub mod discretise;
 pub mod draws;
+pub mod effects;
 pub mod error;
 pub mod export;
 pub mod families;

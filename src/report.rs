@@ -529,6 +529,10 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     h.push_str(&html_table("table-within-cycle", &doc.tables[0], |_| true));
     h.push_str("</section>\n");
 
+    if let Some(section) = payoff_section(result, figures) {
+        h.push_str(&section);
+    }
+
     // Adjustments and draws.
     h.push_str("<section id=\"adjustments\">\n<h2>Adjustments</h2>\n");
     h.push_str(&guide("Every setting listed here changes the fitted curve before it is cut into cycles; the same list is in each output file's provenance."));
@@ -624,6 +628,90 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     let listed = contents(&h[contents_at..]);
     h.insert_str(contents_at, &listed);
     Ok(h)
+}
+
+/// The payoff section (`[payoffs]`): the schedule, the per-tunnel payoff columns, the method
+/// table with its errors and the accrual plot. `None` without payoffs.
+fn payoff_section(result: &RunResult, figures: &[Figure]) -> Option<String> {
+    let p = result.payoffs.as_ref()?;
+    let t = &result.tunnels;
+    let mut h = String::from("<section id=\"payoffs\">\n<h2>Payoffs by time since entry</h2>\n");
+    h.push_str(&guide("The payoff_NAME columns are what one person at the start of a tunnel accrues during its cycle, integrated exactly: a cohort engine multiplies them by the membership at the start of the cycle with no within-cycle correction. The method table shows what the usual boundary corrections would count instead."));
+    h.push_str(&format!(
+        "<p>Schedule from <span class=\"file\">{}</span> (SHA-256 <code>{}</code>), discounted at {} a year as (1 + r)^(−t); {}.</p>\n<dl>\n",
+        escape(&p.file.file),
+        escape(&p.file.sha256),
+        p.discount.rate(),
+        escape(p.tunnels.exactness.describe())
+    ));
+    for payoff in &p.file.schedule.payoffs {
+        h.push_str(&format!(
+            "<dt>{}</dt><dd><code>{}</code></dd>\n",
+            escape(&payoff.column()),
+            escape(&crate::cmd::payoff_args::describe_payoff(payoff))
+        ));
+    }
+    h.push_str("</dl>\n");
+    for w in &p.tunnels.warnings {
+        h.push_str(&format!(
+            "<p class=\"warning\">Warning: {}</p>\n",
+            escape(w)
+        ));
+    }
+    // The per-tunnel columns: tunnel, its cycle and the payoff columns of the tunnel table.
+    let mut columns = vec![
+        "tunnel".to_string(),
+        format!("t_start ({})", t.time_unit),
+        format!("t_end ({})", t.time_unit),
+    ];
+    columns.extend(p.tunnels.columns.iter().cloned());
+    let rows: Vec<Vec<String>> = t
+        .rows
+        .iter()
+        .enumerate()
+        .take(MAX_TUNNEL_ROWS)
+        .map(|(i, r)| {
+            let mut row = vec![
+                r.tunnel.to_string(),
+                crate::format::sig(r.t_start, 6),
+                crate::format::sig(r.t_end, 6),
+            ];
+            row.extend(p.tunnels.values.iter().map(|v| crate::format::sig(v[i], 6)));
+            row
+        })
+        .collect();
+    let header: Vec<&str> = columns.iter().map(String::as_str).collect();
+    let numeric = vec![true; header.len()];
+    h.push_str(&format!(
+        "<p>Per tunnel state ({}; the same columns are in <span class=\"file\">tunnels.*</span>):</p>\n",
+        crate::format::counted(t.rows.len(), "tunnel state")
+    ));
+    h.push_str(&text_table(
+        "table-payoff-tunnels",
+        &header,
+        &rows,
+        &numeric,
+    ));
+    let n = result.horizon_cycles;
+    h.push_str(&format!(
+        "<p>Totals to the horizon ({} = {} {}) for one person entering at time 0, by within-cycle method, beside the exact total (the rate integrated against the curve, plus the one-offs); <code>cycle-integrated</code> uses the payoff columns above and equals the exact total. Also in <span class=\"file\">payoff_methods.*</span>. The truncation table above includes payoff_rel_error_NAME for every payoff; the suggested count requires them too (without the payoffs it would be {}).</p>\n",
+        crate::format::counted(n, "cycle"),
+        crate::format::readable(n as f64 * t.cycle),
+        t.time_unit.name_for(n as f64 * t.cycle),
+        p.suggested_without_payoffs
+    ));
+    if let Some(doc) = result.payoff_methods_document() {
+        h.push_str(&html_table("table-payoff-methods", &doc.tables[0], |_| {
+            true
+        }));
+    }
+    h.push_str(&figure(
+        figures,
+        "payoffs.svg",
+        "For each payoff, each method's running total minus the exact accrual, as a percentage of the exact discounted total, over time since entry: above zero the method has counted too much by then, below too little; the line's end is the method's error in the table.",
+    ));
+    h.push_str("</section>\n");
+    Some(h)
 }
 
 /// The section on data rebuilt from a digitised curve: what from what, the cleaning, the

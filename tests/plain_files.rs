@@ -275,7 +275,7 @@ fn holds_a_date(text: &str) -> bool {
 /// Writes the demo analysis, made lighter (fewer draws, a shorter horizon), into `dir`.
 fn setup_analysis(dir: &Path) {
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
-    for name in ["demo_trial.csv", "demo_lifetable.csv"] {
+    for name in ["demo_trial.csv", "demo_lifetable.csv", "demo_payoffs.csv"] {
         std::fs::copy(root.join("data").join(name), dir.join(name)).unwrap();
     }
     let analysis = std::fs::read_to_string(root.join("data/demo_analysis.toml"))

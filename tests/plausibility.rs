@@ -12,6 +12,7 @@ use std::path::Path;
 const DATA: &str = include_str!("../data/demo_trial.csv");
 const ANALYSIS: &str = include_str!("../data/demo_analysis.toml");
 const LIFETABLE: &str = include_str!("../data/demo_lifetable.csv");
+const PAYOFFS: &str = include_str!("../data/demo_payoffs.csv");
 
 /// A published Weibull curve in months (invented parameters).
 const CURVE: [&str; 10] = [
@@ -154,6 +155,7 @@ fn a_hazard_ratio_of_75_in_an_analysis_file_is_warned_about_in_its_outputs() {
     let d = dir.path();
     std::fs::write(d.join("demo_trial.csv"), DATA).unwrap();
     std::fs::write(d.join("demo_lifetable.csv"), LIFETABLE).unwrap();
+    std::fs::write(d.join("demo_payoffs.csv"), PAYOFFS).unwrap();
     let analysis = ANALYSIS
         .replace("hazard_ratio = 0.6", "hazard_ratio = 75")
         .replace("[draws]\ncount = 200", "[draws]\ncount = 5");
@@ -247,6 +249,7 @@ fn start_ages_beyond_a_human_life_are_refused_and_above_100_warned_about() {
     let d = dir.path();
     std::fs::write(d.join("demo_trial.csv"), DATA).unwrap();
     std::fs::write(d.join("demo_lifetable.csv"), LIFETABLE).unwrap();
+    std::fs::write(d.join("demo_payoffs.csv"), PAYOFFS).unwrap();
     std::fs::write(
         d.join("analysis.toml"),
         ANALYSIS.replace("start_age = 62", "start_age = 620"),
@@ -319,6 +322,7 @@ fn a_cycle_longer_than_the_horizon_is_refused_on_every_path() {
     let d = dir.path();
     write_fit(d);
     std::fs::write(d.join("demo_lifetable.csv"), LIFETABLE).unwrap();
+    std::fs::write(d.join("demo_payoffs.csv"), PAYOFFS).unwrap();
     let before = listing(d);
     let published = [
         "--family",

@@ -10,11 +10,13 @@ use std::path::Path;
 const DATA: &str = include_str!("../data/demo_trial.csv");
 const ANALYSIS: &str = include_str!("../data/demo_analysis.toml");
 const LIFETABLE: &str = include_str!("../data/demo_lifetable.csv");
+const PAYOFFS: &str = include_str!("../data/demo_payoffs.csv");
 
 /// Writes the demo analysis and its data into `dir` (with `edit` applied to the analysis).
 fn setup(dir: &Path, edit: impl Fn(&str) -> String) {
     std::fs::write(dir.join("demo_trial.csv"), DATA).unwrap();
     std::fs::write(dir.join("demo_lifetable.csv"), LIFETABLE).unwrap();
+    std::fs::write(dir.join("demo_payoffs.csv"), PAYOFFS).unwrap();
     std::fs::write(dir.join("analysis.toml"), edit(ANALYSIS)).unwrap();
 }
 
@@ -104,6 +106,7 @@ fn run_writes_every_output_and_the_report_matches_the_json() {
         vec![
             "analysis.toml",
             "demo_lifetable.csv",
+            "demo_payoffs.csv",
             "demo_trial.csv",
             "out"
         ]
@@ -146,6 +149,7 @@ fn run_writes_every_output_and_the_report_matches_the_json() {
         "tunnels",
         "truncation",
         "within-cycle",
+        "payoffs",
         "adjustments",
         "draws",
         "caution",
@@ -184,7 +188,8 @@ fn run_writes_every_output_and_the_report_matches_the_json() {
         || n.attribute("href").is_some_and(|h| !h.starts_with('#'))));
     // Every plot of the run is inline.
     let svgs = doc.descendants().filter(|n| n.has_tag_name("svg")).count();
-    assert_eq!(svgs, 3 * 2 + 2);
+    // Fits per arm (3 each), tunnels, horizon and the payoff accrual plot.
+    assert_eq!(svgs, 3 * 2 + 3);
 
     // Tunnel table: every shown cell equals tunnels.json.
     let tunnels = read_table(&out.join("tunnels.json"));
@@ -223,6 +228,38 @@ fn run_writes_every_output_and_the_report_matches_the_json() {
             assert!(close(cell, value.as_f64().unwrap()), "{cell} vs {value}");
         }
     }
+    // Payoffs: the method table equals payoff_methods.json; the per-tunnel table equals the
+    // payoff columns of tunnels.json; cycle-integrated equals exact (docs/payoffs.md).
+    let methods = read_table(&out.join("payoff_methods.json"));
+    assert_eq!(methods.tables[0].rows.len(), 2 * 6);
+    for (row, json) in html_rows(&doc, "table-payoff-methods")
+        .iter()
+        .zip(&methods.tables[0].rows)
+    {
+        assert_eq!(row[0], json[0].as_str().unwrap());
+        assert_eq!(row[1], json[1].as_str().unwrap());
+        for (cell, value) in row.iter().zip(json).skip(2) {
+            assert!(close(cell, value.as_f64().unwrap()), "{cell} vs {value}");
+        }
+        if row[1] == "cycle-integrated" {
+            let (total, exact) = (json[6].as_f64().unwrap(), json[7].as_f64().unwrap());
+            assert!((total - exact).abs() <= 1e-9 * exact.abs(), "{row:?}");
+        }
+    }
+    let columns = &tunnels.tables[0].columns;
+    let payoff_columns: Vec<usize> = (0..columns.len())
+        .filter(|&j| columns[j].starts_with("payoff_"))
+        .collect();
+    assert_eq!(payoff_columns.len(), 2, "{columns:?}");
+    for (row, json) in html_rows(&doc, "table-payoff-tunnels")
+        .iter()
+        .zip(&tunnels.tables[0].rows)
+    {
+        for (cell, &j) in row.iter().skip(3).zip(&payoff_columns) {
+            assert!(close(cell, json[j].as_f64().unwrap()), "{cell}");
+        }
+    }
+    assert!(tunnels.metadata["payoffs"].ends_with("demo_payoffs.csv"));
     // Fit comparison and the chosen curve against fit.json (deserialised by the library's type).
     let fits: tunnelcast::fit::FitFile =
         serde_json::from_slice(&std::fs::read(out.join("fit.json")).unwrap()).unwrap();

@@ -441,6 +441,22 @@ impl Adjuster {
         Adjuster::new(settings, table)
     }
 
+    /// The same adjustments for a cohort entering at `start_age` (years) instead: entry at a
+    /// later model cycle (`tunnels --entry-cycles`). An error without background mortality, or
+    /// when the age lies outside the life table.
+    pub fn with_start_age(&self, start_age: f64) -> Result<Adjuster> {
+        let mut settings = self.settings.clone();
+        match settings.background.as_mut() {
+            Some(b) => b.start_age = start_age,
+            None => {
+                return Err(Error::Usage(
+                    "entry at a later age needs background mortality (--background LIFETABLE.csv --start-age A)".into(),
+                ))
+            }
+        }
+        Adjuster::new(settings, self.table.clone())
+    }
+
     /// The settings.
     pub fn settings(&self) -> &Adjustments {
         &self.settings

@@ -29,6 +29,9 @@ pub const DEMO_TRIAL: &str = include_str!("../../data/demo_trial.csv");
 /// The bundled invented life table (background mortality of the demo).
 pub const DEMO_LIFETABLE: &str = include_str!("../../data/demo_lifetable.csv");
 
+/// The bundled invented payoff schedule (`[payoffs]` of the demo, from `scripts/make_demo.py`).
+pub const DEMO_PAYOFFS: &str = include_str!("../../data/demo_payoffs.csv");
+
 /// The bundled analysis file.
 pub const DEMO_ANALYSIS: &str = include_str!("../../data/demo_analysis.toml");
 
@@ -51,7 +54,11 @@ pub fn run(args: DemoArgs) -> Result<()> {
         },
         other => other,
     })?;
-    let analysis = Analysis::parse("data/demo_analysis.toml", DEMO_ANALYSIS, Path::new("data"))?;
+    let mut analysis =
+        Analysis::parse("data/demo_analysis.toml", DEMO_ANALYSIS, Path::new("data"))?;
+    if let Some(payoffs) = analysis.payoffs.as_mut() {
+        payoffs.bytes = Some(DEMO_PAYOFFS.as_bytes());
+    }
     let text = crate::cmd::run::execute(
         analysis,
         DEMO_TRIAL.as_bytes(),

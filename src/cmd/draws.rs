@@ -126,6 +126,48 @@ pub struct DrawsArgs {
     /// Arm column of the data file (needed when the fit is for one arm).
     #[arg(long, value_name = "NAME", help_heading = "Bootstrap")]
     pub arm_col: Option<String>,
+    /// Payoff schedule CSV (payoff,kind,from,amount,per): adds the payoff_NAME columns of each
+    /// draw's table (long layout), computed from that draw's curve.
+    #[arg(long, value_name = "FILE", help_heading = "Payoffs")]
+    pub payoffs: Option<PathBuf>,
+    /// Annual discount rate applied to the payoff columns within each cycle, from its start.
+    #[arg(
+        long,
+        value_name = "RATE",
+        default_value = "0",
+        requires = "payoffs",
+        help_heading = "Payoffs"
+    )]
+    pub discount: String,
+}
+
+/// The payoff columns of each draw's table: the schedule and discount, and the way from a
+/// draw's parameters to its curve.
+struct DrawPayoffs<'a> {
+    schedule: &'a crate::payoff::Schedule,
+    discount: crate::payoff::Discount,
+    cycle: Duration,
+    build: &'a CurveBuilder<'a>,
+    params: &'a [Vec<f64>],
+}
+
+impl DrawPayoffs<'_> {
+    /// Appends the payoff columns to the tables of draws `first`, `first + 1`, … (0-based).
+    fn append(&self, first: usize, tables: &mut [TunnelTable]) -> Result<()> {
+        for (i, table) in tables.iter_mut().enumerate() {
+            let curve = (self.build)(&self.params[first + i])
+                .map_err(|e| Error::Computation(format!("draw {}: {e}", first + i + 1)))?;
+            crate::payoff::tunnel_payoffs(
+                curve.as_ref(),
+                self.schedule,
+                self.cycle,
+                table.rows.len(),
+                self.discount,
+            )
+            .append_to(table);
+        }
+        Ok(())
+    }
 }
 
 /// Parses `--draws`: a whole number, at least 1.
@@ -464,6 +506,11 @@ pub fn run(args: DrawsArgs) -> Result<()> {
             }
         }
     }
+    let discount = crate::cmd::payoff_args::parse_discount("--discount", &args.discount)?;
+    let payoff_file = match &args.payoffs {
+        Some(path) => Some(crate::payoff::schedule::load(path)?),
+        None => None,
+    };
     let built = args.curve.build()?;
     for w in &built.warnings {
         eprintln!("warning: {w}");
@@ -474,7 +521,16 @@ pub fn run(args: DrawsArgs) -> Result<()> {
     };
     let cycle_in_curve = cycle.in_unit(built.curve.time_unit());
     built.check_horizon(count as f64 * cycle_in_curve)?;
-    let point = tunnel_table(&built.curve, cycle_in_table, count);
+    let mut point = tunnel_table(&built.curve, cycle_in_table, count);
+    let point_payoffs = payoff_file
+        .as_ref()
+        .map(|f| crate::payoff::tunnel_payoffs(&built.curve, &f.schedule, cycle, count, discount));
+    if let Some(p) = &point_payoffs {
+        for w in &p.warnings {
+            eprintln!("warning: {w}");
+        }
+        p.append_to(&mut point);
+    }
     // What the floor does to the point estimate's table, as `tunnels` records it for the same
     // curve and count.
     let floor = built.floor_report(cycle_in_curve, count);
@@ -492,8 +548,22 @@ pub fn run(args: DrawsArgs) -> Result<()> {
     let (params, method) = draw_parameters(&args, &built, n, &run)?;
     drop(run);
 
+    let draw_payoffs = payoff_file.as_ref().map(|f| DrawPayoffs {
+        schedule: &f.schedule,
+        discount,
+        cycle,
+        build: &build,
+        params: &params,
+    });
     let mut curve_metadata = built.metadata.clone();
     curve_metadata.extend(floor.iter().cloned());
+    if let (Some(f), Some(p)) = (&payoff_file, &point_payoffs) {
+        curve_metadata.extend(crate::cmd::payoff_args::payoff_metadata(
+            f,
+            p.discount,
+            p.exactness,
+        ));
+    }
     let mut metadata = header(&point, &curve_metadata, Layout::Long);
     for (key, value) in metadata.iter_mut() {
         if key == "layout" {
@@ -530,6 +600,7 @@ pub fn run(args: DrawsArgs) -> Result<()> {
             cycle_in_table,
             summary,
             &run,
+            draw_payoffs.as_ref(),
         )?,
         None => {
             let mut long = Vec::new();
@@ -540,7 +611,10 @@ pub fn run(args: DrawsArgs) -> Result<()> {
                 cycle_in_table,
                 count,
                 &run.control(),
-                |first, tables| {
+                |first, mut tables| {
+                    if let Some(p) = &draw_payoffs {
+                        p.append(first, &mut tables)?;
+                    }
                     same_columns(&point, first, &tables)?;
                     for (i, table) in tables.iter().enumerate() {
                         summary.add(table);
@@ -640,6 +714,7 @@ fn write_streaming(
     cycle: Duration,
     mut summary: SummaryBuilder,
     run: &LongRun,
+    payoffs: Option<&DrawPayoffs<'_>>,
 ) -> Result<Vec<SummaryRow>> {
     let head_document = Document {
         metadata: metadata.to_vec(),
@@ -664,7 +739,10 @@ fn write_streaming(
             build,
             (cycle, count),
             &run.control(),
-            |first, tables| {
+            |first, mut tables| {
+                if let Some(p) = payoffs {
+                    p.append(first, &mut tables)?;
+                }
                 same_columns(point, first, &tables)?;
                 let reused = spare.lock().ok().and_then(|mut s| s.pop());
                 let mut bytes = reused.unwrap_or_default();

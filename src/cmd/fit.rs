@@ -66,6 +66,9 @@ pub struct FitArgs {
     /// data span more than two years, else the data's unit).
     #[arg(long, value_name = "UNIT")]
     pub display_unit: Option<TimeUnit>,
+    /// Models across arms (`--effects`, `--reference`, `--covariates`).
+    #[command(flatten)]
+    pub effects: super::fit_effects::EffectsArgs,
 }
 
 /// Renders the comparison of one fit file, arm by arm (see
@@ -184,12 +187,27 @@ pub fn run(args: FitArgs) -> Result<()> {
         &arms,
         plausibility.targets_file.as_deref().unwrap_or("targets"),
     )?;
+    let effects = super::fit_effects::prepare(
+        &args.effects,
+        &args.data,
+        (
+            &options.time_col,
+            &options.event_col,
+            options.arm_col.as_deref(),
+        ),
+        delimiter,
+        args.zero_time,
+    )?;
     let mut file = fit_dataset(&data, &families, time_unit, args.zero_time);
+    file.cox = effects.as_ref().map(|e| e.cox.clone());
     crate::plausibility::annotate(&mut file, &plausibility);
     let display = args
         .display_unit
         .unwrap_or_else(|| crate::plausibility::comparison::default_display_unit(&file));
     let mut text = crate::plausibility::comparison::render(&file, display);
+    if let Some(effects) = &effects {
+        text.push_str(&super::fit_effects::render(effects));
+    }
     if data.zero_times_replaced > 0 {
         text.push_str(&format!(
             "note: {} zero time(s) replaced by {} {}\n",
@@ -208,6 +226,11 @@ pub fn run(args: FitArgs) -> Result<()> {
         let staged = output::StagedFolder::new(dir)?;
         for (name, bytes) in crate::plot::fit_figures(&data, &file, 3.0 * longest)? {
             staged.write(&name, &bytes)?;
+        }
+        if let Some(effects) = &effects {
+            for (name, bytes) in super::fit_effects::figures(effects, &data, time_unit)? {
+                staged.write(&name, &bytes)?;
+            }
         }
         staged.finish()?;
         text.push_str(&format!("wrote plots to {}\n", dir.display()));

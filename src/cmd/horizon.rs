@@ -3,6 +3,7 @@
 //! written as JSON.
 
 use crate::cmd::curve_args::CurveArgs;
+use crate::cmd::payoff_args::{describe_payoff, payoff_metadata};
 use crate::cmd::tunnels::parse_duration;
 use crate::curve::Curve;
 use crate::discretise::count_until;
@@ -15,6 +16,7 @@ use crate::horizon::{
     DEFAULT_HORIZON_YEARS, MAX_HORIZON_CYCLES, STABLE_WINDOW_YEARS,
 };
 use crate::output;
+use crate::payoff::{horizon_payoffs, suggested_count_with_payoffs, Discount, PayoffMethodRow};
 use clap::Args;
 use serde::Serialize;
 use std::path::PathBuf;
@@ -48,6 +50,87 @@ pub struct HorizonArgs {
     /// Replace an existing output file.
     #[arg(long)]
     pub force: bool,
+    /// Payoff schedule CSV (payoff,kind,from,amount,per): adds the payoff table by method beside
+    /// the exact total, and payoff_rel_error_NAME to the truncation table.
+    #[arg(long, value_name = "FILE", help_heading = "Payoffs")]
+    pub payoffs: Option<PathBuf>,
+}
+
+/// A truncation row with the payoff columns after the contract's four.
+pub struct TruncationOut<'a> {
+    /// The row.
+    pub row: &'a TruncationRow,
+    /// (`payoff_rel_error_NAME`, value at this count).
+    pub payoffs: Vec<(&'a str, f64)>,
+}
+
+impl Serialize for TruncationOut<'_> {
+    fn serialize<S: serde::Serializer>(
+        &self,
+        serializer: S,
+    ) -> std::result::Result<S::Ok, S::Error> {
+        use serde::ser::SerializeMap;
+        let mut map = serializer.serialize_map(Some(4 + self.payoffs.len()))?;
+        map.serialize_entry("count", &self.row.count)?;
+        map.serialize_entry("max_surv_gap", &self.row.max_surv_gap)?;
+        map.serialize_entry("ly_rel_error", &self.row.ly_rel_error)?;
+        map.serialize_entry("p_exit_last", &self.row.p_exit_last)?;
+        for (name, value) in &self.payoffs {
+            map.serialize_entry(name, value)?;
+        }
+        map.end()
+    }
+}
+
+/// Truncation rows joined with the payoff columns (`columns[i].1[K - 1]`).
+pub fn truncation_out<'a>(
+    rows: &'a [TruncationRow],
+    columns: &'a [(String, Vec<f64>)],
+) -> Vec<TruncationOut<'a>> {
+    rows.iter()
+        .enumerate()
+        .map(|(i, row)| TruncationOut {
+            row,
+            payoffs: columns.iter().map(|(n, v)| (n.as_str(), v[i])).collect(),
+        })
+        .collect()
+}
+
+/// The payoff table by method as aligned text, like the within-cycle table.
+pub fn payoff_method_text(rows: &[PayoffMethodRow]) -> String {
+    let missing = |x: Option<f64>| x.map_or_else(|| "-".to_string(), |v| sig(v, 3));
+    let cells: Vec<Vec<String>> = rows
+        .iter()
+        .map(|r| {
+            vec![
+                r.payoff.clone(),
+                r.method.name().to_string(),
+                sig(r.total, 6),
+                sig(r.exact, 6),
+                sig(r.error, 3),
+                missing(r.rel_error),
+                sig(r.disc_total, 6),
+                sig(r.disc_exact, 6),
+                sig(r.disc_error, 3),
+                missing(r.disc_rel_error),
+            ]
+        })
+        .collect();
+    crate::format::table(
+        &[
+            "payoff",
+            "method",
+            "total",
+            "exact",
+            "error",
+            "rel_error",
+            "disc_total",
+            "disc_exact",
+            "disc_error",
+            "disc_rel_error",
+        ],
+        &cells,
+    )
 }
 
 /// The JSON written by `horizon --json`.
@@ -76,10 +159,18 @@ pub struct HorizonReport<'a> {
     pub stable_count: Option<usize>,
     /// Fewest tunnels the stable stretch must span (two years of cycles, at least 2).
     pub stable_window: usize,
-    /// One row per candidate count 1..horizon_cycles.
-    pub truncation: &'a [TruncationRow],
+    /// One row per candidate count 1..horizon_cycles (with `payoff_rel_error_NAME` per payoff
+    /// when `--payoffs` is given).
+    pub truncation: Vec<TruncationOut<'a>>,
     /// One row per within-cycle method.
     pub within_cycle: &'a [WithinCycleRow],
+    /// With `--payoffs`: one row per payoff and method, undiscounted and discounted at `discount`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub payoffs: Option<&'a [PayoffMethodRow]>,
+    /// With `--payoffs`: the smallest count with both life-year criteria within the tolerance,
+    /// ignoring the payoffs (`suggested_count` also requires every payoff's).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub suggested_count_without_payoffs: Option<usize>,
 }
 
 fn parse_number(option: &str, text: &str, check: impl Fn(f64) -> bool, what: &str) -> Result<f64> {
@@ -140,6 +231,10 @@ pub fn run(args: HorizonArgs) -> Result<()> {
     if let Some(path) = &args.json {
         output::check_writable(path, args.force)?;
     }
+    let payoff_file = match &args.payoffs {
+        Some(path) => Some(crate::payoff::schedule::load(path)?),
+        None => None,
+    };
     let built = args.curve.build()?;
     for w in &built.warnings {
         eprintln!("warning: {w}");
@@ -173,7 +268,17 @@ pub fn run(args: HorizonArgs) -> Result<()> {
     let floor = built.floor_report(cycle_in_curve, n);
     let log_s = boundary_log_survival(curve, cycle, n);
     let truncation = truncation_table(&log_s, cycle.value);
-    let suggested = suggested_count(&truncation, tolerance);
+    let payoffs = match &payoff_file {
+        Some(file) => {
+            let rate = Discount::annual(discount).map_err(Error::Usage)?;
+            Some(horizon_payoffs(curve, &file.schedule, cycle, n, rate))
+        }
+        None => None,
+    };
+    let no_columns = Vec::new();
+    let payoff_columns = payoffs.as_ref().map_or(&no_columns, |p| &p.truncation);
+    let life_years_only = suggested_count(&truncation, tolerance);
+    let suggested = suggested_count_with_payoffs(&truncation, payoff_columns, tolerance);
     let p_exit: Vec<f64> = truncation.iter().map(|r| r.p_exit_last).collect();
     let window = stable_window(cycle);
     let stable = stable_count(&p_exit, tolerance, window);
@@ -202,23 +307,38 @@ pub fn run(args: HorizonArgs) -> Result<()> {
                 (false, true) => "stable",
                 _ => "",
             };
-            vec![
+            let mut cells = vec![
                 r.count.to_string(),
                 sig(r.max_surv_gap, 3),
                 sig(r.ly_rel_error, 3),
                 sig(r.p_exit_last, 4),
-                mark.to_string(),
-            ]
+            ];
+            cells.extend(payoff_columns.iter().map(|(_, v)| sig(v[k - 1], 3)));
+            cells.push(mark.to_string());
+            cells
         })
         .collect();
-    text.push_str(&crate::format::table_aligned(
-        &["count", "max_surv_gap", "ly_rel_error", "p_exit_last", ""],
-        &rows,
-        0,
-    ));
+    let mut header = vec!["count", "max_surv_gap", "ly_rel_error", "p_exit_last"];
+    header.extend(payoff_columns.iter().map(|(name, _)| name.as_str()));
+    header.push("");
+    text.push_str(&crate::format::table_aligned(&header, &rows, 0));
+    let criteria = if payoff_columns.is_empty() {
+        "max_surv_gap and ly_rel_error both".to_string()
+    } else {
+        format!(
+            "max_surv_gap, ly_rel_error and every payoff_rel_error_NAME (discounted at {discount} a year) all"
+        )
+    };
     text.push_str(&format!(
-        "suggested_count: {suggested} (smallest K with max_surv_gap and ly_rel_error both ≤ {tolerance})\n\
-         stable_count: {}\n\n",
+        "suggested_count: {suggested} (smallest K with {criteria} ≤ {tolerance})\n"
+    ));
+    if !payoff_columns.is_empty() && life_years_only != suggested {
+        text.push_str(&format!(
+            "  (without the payoffs it would be {life_years_only})\n"
+        ));
+    }
+    text.push_str(&format!(
+        "stable_count: {}\n\n",
         stable_text(stable, tolerance, window)
     ));
     text.push_str(&format!(
@@ -258,6 +378,23 @@ pub fn run(args: HorizonArgs) -> Result<()> {
         &rows,
     ));
 
+    if let (Some(file), Some(p)) = (&payoff_file, &payoffs) {
+        text.push_str(&format!(
+            "\nPayoffs to {} {} for one person entering at time 0, by method, beside the exact total; discounted at {} a year as (1 + r)^(-t) (cycle-integrated: the per-tunnel payoffs, {}):\n",
+            readable(horizon),
+            unit.name_for(horizon),
+            discount,
+            p.exactness.describe()
+        ));
+        text.push_str(&payoff_method_text(&p.rows));
+        for payoff in &file.schedule.payoffs {
+            text.push_str(&format!(
+                "{}: {}\n",
+                payoff.column(),
+                describe_payoff(payoff)
+            ));
+        }
+    }
     for (key, value) in &floor {
         text.push_str(&format!("{}: {value}\n", key.replace('_', " ")));
     }
@@ -270,6 +407,10 @@ pub fn run(args: HorizonArgs) -> Result<()> {
             "cycle".into(),
             format!("{} {}", readable(cycle.value), unit.name_for(cycle.value)),
         ));
+        if let (Some(file), Some(p)) = (&payoff_file, &payoffs) {
+            let rate = Discount::annual(discount).map_err(Error::Usage)?;
+            metadata.extend(payoff_metadata(file, rate, p.exactness));
+        }
         metadata.push(("caution".into(), crate::CAUTION.into()));
         let report = HorizonReport {
             metadata: MetadataMap(&metadata),
@@ -283,8 +424,10 @@ pub fn run(args: HorizonArgs) -> Result<()> {
             suggested_count: suggested,
             stable_count: stable,
             stable_window: window,
-            truncation: &truncation,
+            truncation: truncation_out(&truncation, payoff_columns),
             within_cycle: &within,
+            payoffs: payoffs.as_ref().map(|p| p.rows.as_slice()),
+            suggested_count_without_payoffs: payoffs.as_ref().map(|_| life_years_only),
         };
         let bytes = crate::export::json::to_json_bytes(&report)?;
         output::write_atomic(path, &bytes)?;

@@ -87,6 +87,33 @@ pub struct RunResult {
     pub within_cycle: Vec<WithinCycleRow>,
     /// The rebuild, when the data were rebuilt from a digitised curve (`[data] curve`).
     pub rebuild: Option<RebuildOutcome>,
+    /// The payoffs of `[payoffs]`, when given.
+    pub payoffs: Option<RunPayoffs>,
+}
+
+/// What `[payoffs]` adds to a run: the schedule, the per-tunnel columns (also appended to the
+/// tunnel table), the method table and truncation columns to the horizon.
+pub struct RunPayoffs {
+    /// The payoff file read and checked.
+    pub file: crate::payoff::PayoffFile,
+    /// The annual discount rate of every payoff figure.
+    pub discount: crate::payoff::Discount,
+    /// Per-tunnel payoffs of the table's tunnels, discounted within each cycle.
+    pub tunnels: crate::payoff::TunnelPayoffs,
+    /// The method table and `payoff_rel_error_NAME` over the horizon's cycles.
+    pub horizon: crate::payoff::HorizonPayoffs,
+    /// Per payoff, the running totals of every method to each boundary of the horizon
+    /// (discounted), for the accrual plot.
+    pub running: Vec<Vec<(crate::payoff::PayoffMethod, Vec<Option<f64>>)>>,
+    /// The suggested count from the life-year criteria alone.
+    pub suggested_without_payoffs: usize,
+}
+
+impl RunPayoffs {
+    /// Metadata lines of every file that carries payoff figures.
+    pub fn metadata(&self) -> Vec<(String, String)> {
+        crate::cmd::payoff_args::payoff_metadata(&self.file, self.discount, self.tunnels.exactness)
+    }
 }
 
 impl RunResult {
@@ -143,6 +170,12 @@ impl RunResult {
                 ("seed".into(), d.seed.to_string()),
                 ("generator".into(), crate::draws::GENERATOR.to_string()),
             ]);
+        }
+        if let Some(p) = &self.payoffs {
+            m.extend(p.metadata());
+            for w in &p.tunnels.warnings {
+                m.push(("warning".into(), w.clone()));
+            }
         }
         m.push(("caution".into(), crate::CAUTION.into()));
         m
@@ -228,25 +261,41 @@ impl RunResult {
                 ),
             ),
         ]);
+        let no_columns = Vec::new();
+        let payoff_columns = self
+            .payoffs
+            .as_ref()
+            .map_or(&no_columns, |p| &p.horizon.truncation);
+        if let Some(p) = &self.payoffs {
+            metadata.push((
+                "suggested_count_without_payoffs".into(),
+                p.suggested_without_payoffs.to_string(),
+            ));
+        }
         let rows = self
             .truncation
             .iter()
-            .map(|r| {
-                vec![
+            .enumerate()
+            .map(|(i, r)| {
+                let mut row = vec![
                     Cell::Int(r.count as i64),
                     Cell::Number(r.max_surv_gap),
                     Cell::Number(r.ly_rel_error),
                     Cell::Number(r.p_exit_last),
-                ]
+                ];
+                row.extend(payoff_columns.iter().map(|(_, v)| Cell::Number(v[i])));
+                row
             })
             .collect();
+        let mut columns: Vec<String> = ["count", "max_surv_gap", "ly_rel_error", "p_exit_last"]
+            .map(String::from)
+            .to_vec();
+        columns.extend(payoff_columns.iter().map(|(n, _)| n.clone()));
         Document {
             metadata,
             tables: vec![Table {
                 name: "truncation".into(),
-                columns: ["count", "max_surv_gap", "ly_rel_error", "p_exit_last"]
-                    .map(String::from)
-                    .to_vec(),
+                columns,
                 rows,
             }],
         }
@@ -468,6 +517,111 @@ impl RunResult {
 }
 
 impl RunResult {
+    /// The payoff table by method (`payoff_methods.*`), when `[payoffs]` was given.
+    pub fn payoff_methods_document(&self) -> Option<Document> {
+        let p = self.payoffs.as_ref()?;
+        let mut metadata = self.metadata_with_floor(self.horizon_cycles);
+        metadata.push(("horizon_cycles".into(), self.horizon_cycles.to_string()));
+        let missing = |x: Option<f64>| x.map_or(Cell::Missing, Cell::Number);
+        let rows = p
+            .horizon
+            .rows
+            .iter()
+            .map(|r| {
+                vec![
+                    Cell::Text(r.payoff.clone()),
+                    Cell::Text(r.method.name().into()),
+                    Cell::Number(r.total),
+                    Cell::Number(r.exact),
+                    Cell::Number(r.error),
+                    missing(r.rel_error),
+                    Cell::Number(r.disc_total),
+                    Cell::Number(r.disc_exact),
+                    Cell::Number(r.disc_error),
+                    missing(r.disc_rel_error),
+                ]
+            })
+            .collect();
+        Some(Document {
+            metadata,
+            tables: vec![Table {
+                name: "payoff_methods".into(),
+                columns: [
+                    "payoff",
+                    "method",
+                    "total",
+                    "exact",
+                    "error",
+                    "rel_error",
+                    "disc_total",
+                    "disc_exact",
+                    "disc_error",
+                    "disc_rel_error",
+                ]
+                .map(String::from)
+                .to_vec(),
+                rows,
+            }],
+        })
+    }
+
+    /// The payoff accrual plot: per payoff, each method's running total minus the exact
+    /// accrual, in percent of the exact discounted total, over time since entry.
+    pub fn payoff_plot(&self) -> Option<plot::PayoffPlot> {
+        let p = self.payoffs.as_ref()?;
+        let h = self.analysis.cycle;
+        let times: Vec<f64> = (0..=self.horizon_cycles)
+            .map(|j| j as f64 * h.value)
+            .collect();
+        let panels = p
+            .file
+            .schedule
+            .payoffs
+            .iter()
+            .zip(&p.running)
+            .map(|(payoff, running)| {
+                let exact_path = running
+                    .iter()
+                    .find(|(m, _)| *m == crate::payoff::PayoffMethod::CycleIntegrated)
+                    .map(|(_, v)| v.clone())
+                    .unwrap_or_default();
+                let total = p
+                    .horizon
+                    .rows
+                    .iter()
+                    .find(|r| r.payoff == payoff.name)
+                    .map_or(0.0, |r| r.disc_exact.abs());
+                let series = running
+                    .iter()
+                    .map(|(method, values)| {
+                        let relative = values
+                            .iter()
+                            .zip(&exact_path)
+                            .map(|(v, e)| match (v, e) {
+                                (Some(v), Some(e)) if total > 0.0 => Some(100.0 * (v - e) / total),
+                                _ => None,
+                            })
+                            .collect();
+                        (*method, relative)
+                    })
+                    .collect();
+                plot::PayoffPanel {
+                    name: payoff.name.clone(),
+                    times: times.clone(),
+                    series,
+                }
+            })
+            .collect();
+        Some(plot::PayoffPlot {
+            title: format!(
+                "Where each method gains or loses against the exact accrual (discounted at {} a year)",
+                p.discount.rate()
+            ),
+            time_unit: h.unit.name().to_string(),
+            panels,
+        })
+    }
+
     /// The Data Package of the folder's CSV files: their descriptors, the metadata they share
     /// and, only when `SOURCE_DATE_EPOCH` gives one, the time it was made.
     pub fn package(&self, resources: Vec<descriptor::Resource>, created: Option<u64>) -> Package {
@@ -703,9 +857,47 @@ pub fn compute(
             (n, why)
         }
     };
+    let payoff_input = match &analysis.payoffs {
+        None => None,
+        Some(p) => {
+            let read;
+            let bytes = match p.bytes {
+                Some(bytes) => bytes,
+                None => {
+                    read = std::fs::read(&p.file.path).map_err(|e| {
+                        analysis.error_at(
+                            p.file.place,
+                            format!("[payoffs] file {}: cannot read: {e}", p.file.path.display()),
+                        )
+                    })?;
+                    &read
+                }
+            };
+            let file = crate::payoff::schedule::parse(&p.file.name, bytes)?;
+            let discount = crate::payoff::Discount::annual(p.discount).map_err(Error::Usage)?;
+            Some((file, discount))
+        }
+    };
     let log_s = boundary_log_survival(table_curve.as_ref(), cycle, horizon_cycles);
     let truncation = truncation_table(&log_s, cycle.value);
-    let suggested = suggested_count(&truncation, analysis.tolerance);
+    let life_years_suggested = suggested_count(&truncation, analysis.tolerance);
+    let payoff_horizon = payoff_input.as_ref().map(|(file, discount)| {
+        crate::payoff::horizon_payoffs(
+            table_curve.as_ref(),
+            &file.schedule,
+            cycle,
+            horizon_cycles,
+            *discount,
+        )
+    });
+    let suggested = match &payoff_horizon {
+        Some(h) => crate::payoff::suggested_count_with_payoffs(
+            &truncation,
+            &h.truncation,
+            analysis.tolerance,
+        ),
+        None => life_years_suggested,
+    };
     let p_exit: Vec<f64> = truncation.iter().map(|r| r.p_exit_last).collect();
     let window = stable_window(cycle);
     let stable = stable_count(&p_exit, analysis.tolerance, window);
@@ -751,6 +943,45 @@ pub fn compute(
             Some(summary.finish())
         }
     };
+    let mut tunnels = tunnels;
+    let payoffs = match (payoff_input, payoff_horizon) {
+        (Some((file, discount)), Some(horizon)) => {
+            let per_tunnel = crate::payoff::tunnel_payoffs(
+                table_curve.as_ref(),
+                &file.schedule,
+                cycle,
+                count,
+                discount,
+            );
+            per_tunnel.append_to(&mut tunnels);
+            // The running totals use the per-tunnel payoffs over the horizon's cycles.
+            let over_horizon = crate::payoff::tunnel_payoffs(
+                table_curve.as_ref(),
+                &file.schedule,
+                cycle,
+                horizon_cycles,
+                discount,
+            );
+            let running = file
+                .schedule
+                .payoffs
+                .iter()
+                .zip(&over_horizon.values)
+                .map(|(payoff, values)| {
+                    crate::payoff::running_totals(payoff, &log_s, cycle, discount, values)
+                })
+                .collect();
+            Some(RunPayoffs {
+                file,
+                discount,
+                tunnels: per_tunnel,
+                horizon,
+                running,
+                suggested_without_payoffs: life_years_suggested,
+            })
+        }
+        _ => None,
+    };
     Ok(RunResult {
         analysis,
         data,
@@ -770,6 +1001,7 @@ pub fn compute(
         stable_window: window,
         within_cycle,
         rebuild: None,
+        payoffs,
     })
 }
 
@@ -786,6 +1018,9 @@ pub fn render_files(result: &RunResult, created: Option<u64>) -> Result<Vec<(Str
         ("truncation", result.truncation_document()),
         ("within_cycle", result.within_cycle_document()),
     ];
+    if let Some(d) = result.payoff_methods_document() {
+        documents.push(("payoff_methods", d));
+    }
     if let Some(d) = result.draws_document() {
         documents.push(("draws_summary", d));
     }
@@ -845,6 +1080,9 @@ pub fn render_files(result: &RunResult, created: Option<u64>) -> Result<Vec<(Str
         tolerance: result.analysis.tolerance,
     };
     figures.extend(plot::both("horizon", &horizon_plot)?);
+    if let Some(payoff_plot) = result.payoff_plot() {
+        figures.extend(plot::both("payoffs", &payoff_plot)?);
+    }
     if let (Some(outcome), Some(metadata)) = (&result.rebuild, result.rebuild_metadata()) {
         let arm_column = result.analysis.arm_column.as_deref();
         let document = crate::cmd::rebuild::rebuilt_document(arm_column, metadata);
@@ -913,6 +1151,29 @@ pub fn summary(result: &RunResult, folder: &Path) -> String {
         result.suggested_count,
         result.analysis.tolerance
     ));
+    if let Some(p) = &result.payoffs {
+        let columns: Vec<String> = p.tunnels.columns.clone();
+        text.push_str(&format!(
+            "payoffs: {} per tunnel (discounted at {} a year within each cycle); totals by within-cycle method in payoff_methods.*\n",
+            columns.join(", "),
+            p.discount.rate()
+        ));
+        for row in p
+            .horizon
+            .rows
+            .iter()
+            .filter(|r| r.method == crate::payoff::PayoffMethod::HalfCycle)
+        {
+            if let Some(rel) = row.disc_rel_error {
+                text.push_str(&format!(
+                    "  {}: exact discounted total {} to the horizon; half-cycle correction would be off by {:+.2}%\n",
+                    row.payoff,
+                    crate::format::sig(row.disc_exact, 6),
+                    100.0 * rel
+                ));
+            }
+        }
+    }
     if let Some(source) = &result.analysis.rebuild {
         text.push_str(&format!(
             "data rebuilt from the digitised curve {} (reconstructed, not the trial's own; see {REBUILT_FILE} and rebuild.txt)\n",

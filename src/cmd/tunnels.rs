@@ -2,6 +2,9 @@
 //! as an aligned table or written as CSV/JSON in the long or matrix layout.
 
 use crate::cmd::curve_args::{parse_unit, CurveArgs};
+use crate::cmd::payoff_args::{
+    companion_path, describe_payoff, parse_discount, payoff_metadata, payoff_table,
+};
 use crate::curve::Curve;
 use crate::discretise::{count_until, tunnel_table, TunnelTable, MAX_COUNT};
 use crate::error::{Error, Result};
@@ -11,6 +14,7 @@ use crate::export::tunnel::{
 use crate::export::{number_text, Cell, Table, Target};
 use crate::format::{counted, readable, sig};
 use crate::output;
+use crate::payoff::tunnel_payoffs;
 use crate::units::{Duration, TimeUnit};
 use clap::Args;
 use std::path::PathBuf;
@@ -58,6 +62,23 @@ pub struct TunnelsArgs {
     /// Replace an existing output file.
     #[arg(long)]
     pub force: bool,
+    /// Write the long table for entry at the start of each of the first N model cycles (ages at
+    /// entry rising by one cycle each; needs --background); leading columns entry_cycle, entry_age.
+    #[arg(long, value_name = "N", help_heading = "Background mortality")]
+    pub entry_cycles: Option<String>,
+    /// Payoff schedule CSV (payoff,kind,from,amount,per): adds a payoff_NAME column per payoff,
+    /// the exact expected amount accrued during each tunnel's cycle by a person at its start.
+    #[arg(long, value_name = "FILE", help_heading = "Payoffs")]
+    pub payoffs: Option<PathBuf>,
+    /// Annual discount rate applied to the payoff columns within each cycle, from its start.
+    #[arg(
+        long,
+        value_name = "RATE",
+        default_value = "0",
+        requires = "payoffs",
+        help_heading = "Payoffs"
+    )]
+    pub discount: String,
 }
 
 /// Parses a duration option with a one-line error naming the option.
@@ -201,6 +222,26 @@ pub fn render_text(table: &TunnelTable, layout: Layout) -> String {
     out
 }
 
+/// A table of cells as aligned text (numbers to 6 significant digits).
+fn render_cells(table: &Table) -> String {
+    let rows: Vec<Vec<String>> = table
+        .rows
+        .iter()
+        .map(|row| {
+            row.iter()
+                .map(|c| match c {
+                    Cell::Int(i) => i.to_string(),
+                    Cell::Number(x) => sig(*x, 6),
+                    Cell::Text(t) => t.clone(),
+                    Cell::Missing => String::new(),
+                })
+                .collect()
+        })
+        .collect();
+    let header: Vec<&str> = table.columns.iter().map(String::as_str).collect();
+    crate::format::table_aligned(&header, &rows, 0)
+}
+
 /// The extra tables of a several-table format (XLSX): the other layout, the parameters and
 /// settings, and the comparison of the fits of the same arm when the curve came from a fit file.
 fn workbook_tables(
@@ -317,6 +358,153 @@ fn workbook_tables(
     Ok(tables)
 }
 
+/// Most entry cycles `--entry-cycles` accepts.
+pub const MAX_ENTRY_CYCLES: usize = 10_000;
+
+/// Parses `--entry-cycles`: a whole number from 1 to [`MAX_ENTRY_CYCLES`].
+pub fn parse_entry_cycles(text: &str) -> Result<usize> {
+    match text.trim().parse::<usize>() {
+        Ok(n) if (1..=MAX_ENTRY_CYCLES).contains(&n) => Ok(n),
+        _ => Err(Error::Usage(format!(
+            "--entry-cycles {}: must be a whole number of model cycles from 1 to {MAX_ENTRY_CYCLES}",
+            text.trim()
+        ))),
+    }
+}
+
+/// The age at entry (years) for entry at the start of model cycle `e` (0-based).
+pub fn entry_age(start_age: f64, cycle: Duration, e: usize) -> f64 {
+    start_age + e as f64 * cycle.in_unit(TimeUnit::Years)
+}
+
+/// `tunnels --entry-cycles N`: the long table for entry at each of the first N model cycles,
+/// each from the same curve and adjustments with the start age moved on by whole cycles.
+#[allow(clippy::too_many_arguments)]
+fn run_entry_cycles(
+    built: &crate::cmd::curve_args::BuiltCurve,
+    cycle: Duration,
+    cycle_in_table: Duration,
+    count: usize,
+    n: usize,
+    target: Option<Target>,
+    payoff_file: Option<&crate::payoff::PayoffFile>,
+    discount: crate::payoff::Discount,
+) -> Result<()> {
+    let start_age = built
+        .adjuster
+        .settings()
+        .background
+        .as_ref()
+        .map(|b| b.start_age)
+        .ok_or_else(|| Error::Usage("--entry-cycles needs --background".into()))?;
+    let cycle_in_curve = cycle.in_unit(built.curve.time_unit());
+    let mut tables = Vec::with_capacity(n);
+    let mut exactness = None;
+    for e in 0..n {
+        let age = entry_age(start_age, cycle, e);
+        let adjuster = built
+            .adjuster
+            .with_start_age(age)
+            .map_err(|err| match err {
+                Error::Usage(m) => Error::Usage(format!(
+                    "--entry-cycles {n}: entry at cycle {e} (age {}): {m}",
+                    readable(age)
+                )),
+                other => other,
+            })?;
+        let curve = adjuster.adjust(built.base.clone())?;
+        curve
+            .check_horizon(count as f64 * cycle_in_curve)
+            .map_err(|err| match err {
+                Error::Usage(m) => Error::Usage(format!(
+                    "--entry-cycles {n}: entry at cycle {e} (age {}): {m}",
+                    readable(age)
+                )),
+                other => other,
+            })?;
+        let mut table = tunnel_table(&curve, cycle_in_table, count);
+        if let Some(file) = payoff_file {
+            let p = tunnel_payoffs(&curve, &file.schedule, cycle, count, discount);
+            if e == 0 {
+                for w in &p.warnings {
+                    eprintln!("warning: {w}");
+                }
+            }
+            exactness = Some(p.exactness);
+            p.append_to(&mut table);
+        }
+        tables.push((e, age, table));
+    }
+    let first = &tables[0].2;
+    let mut metadata = built.metadata.clone();
+    if let (Some(file), Some(x)) = (payoff_file, exactness) {
+        metadata.extend(payoff_metadata(file, discount, x));
+    }
+    metadata.push(("entry_cycles".into(), n.to_string()));
+    metadata.push((
+        "entry".into(),
+        "entry_cycle e (0-based): entry at the start of model cycle e; entry_age = start age + e * cycle, in years; the background hazard follows the age at entry, the curve and its other adjustments follow time since entry".into(),
+    ));
+    let head = header(first, &metadata, Layout::Long);
+    let mut long = long_table(first);
+    let mut columns = vec!["entry_cycle".to_string(), "entry_age".to_string()];
+    columns.append(&mut long.columns);
+    let mut rows = Vec::with_capacity(n * count);
+    for (e, age, table) in &tables {
+        for row in long_table(table).rows {
+            let mut cells = vec![Cell::Int(*e as i64), Cell::Number(*age)];
+            cells.extend(row);
+            rows.push(cells);
+        }
+    }
+    let combined = Table {
+        name: "tunnels".into(),
+        columns,
+        rows,
+    };
+    match target {
+        Some(target) => {
+            let document = crate::export::Document {
+                metadata: head,
+                tables: vec![combined],
+            };
+            target.write(&document)?;
+            let described = match target.exporter.descriptor_path(&target.path) {
+                Some(d) => format!("; described in {}", d.display()),
+                None => String::new(),
+            };
+            output::print(&format!(
+                "wrote {} ({} × {} of {} {}, entry at cycles 0 to {}, ages {} to {}, long layout, {}{described})\n",
+                target.path.display(),
+                counted(n, "entry cycle"),
+                counted(count, "tunnel state"),
+                readable(first.cycle),
+                first.time_unit.name_for(first.cycle),
+                n - 1,
+                readable(tables[0].1),
+                readable(tables[n - 1].1),
+                target.exporter.extension()
+            ));
+        }
+        None => {
+            let mut text = format!(
+                "curve: {}\ncycle: {} {}; {} for each of {} (entry ages {} to {} years); times in {}\n",
+                first.curve,
+                readable(first.cycle),
+                first.time_unit.name_for(first.cycle),
+                counted(count, "tunnel state"),
+                counted(n, "entry cycle"),
+                readable(tables[0].1),
+                readable(tables[n - 1].1),
+                first.time_unit
+            );
+            text.push_str(&render_cells(&combined));
+            output::print(&text);
+        }
+    }
+    Ok(())
+}
+
 /// Runs `tunnels`.
 pub fn run(args: TunnelsArgs) -> Result<()> {
     let cycle = parse_duration("--cycle", &args.cycle)?;
@@ -336,6 +524,38 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
         Some(path) => Some(Target::new(path, args.format.as_deref(), args.force)?),
         None => None,
     };
+    let entry_cycles = match &args.entry_cycles {
+        None => None,
+        Some(text) => Some(parse_entry_cycles(text)?),
+    };
+    if entry_cycles.is_some() {
+        if args.curve.background.is_none() {
+            return Err(Error::Usage(
+                "--entry-cycles needs background mortality (--background LIFETABLE.csv --start-age A): without it the tunnel probabilities do not depend on the time of entry".into(),
+            ));
+        }
+        if args.layout != Layout::Long {
+            return Err(Error::Usage(format!(
+                "--entry-cycles writes the long layout only; --layout {} is refused with it",
+                args.layout.name()
+            )));
+        }
+    }
+    let discount = parse_discount("--discount", &args.discount)?;
+    let payoff_file = match &args.payoffs {
+        Some(path) => Some(crate::payoff::schedule::load(path)?),
+        None => None,
+    };
+    let companion = match (&target, &payoff_file) {
+        (Some(t), Some(_)) if args.layout != Layout::Long && t.exporter.extension() == "csv" => {
+            Some(Target::new(
+                &companion_path(&t.path),
+                args.format.as_deref(),
+                args.force,
+            )?)
+        }
+        _ => None,
+    };
     let built = args.curve.build()?;
     for w in &built.warnings {
         eprintln!("warning: {w}");
@@ -346,7 +566,30 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
     };
     let cycle_in_curve = cycle.in_unit(built.curve.time_unit());
     built.check_horizon(count as f64 * cycle_in_curve)?;
-    let table = tunnel_table(&built.curve, cycle_in_table, count);
+    if let Some(n) = entry_cycles {
+        return run_entry_cycles(
+            &built,
+            cycle,
+            cycle_in_table,
+            count,
+            n,
+            target,
+            payoff_file.as_ref(),
+            discount,
+        );
+    }
+    let mut table = tunnel_table(&built.curve, cycle_in_table, count);
+    let payoffs = payoff_file
+        .as_ref()
+        .map(|f| tunnel_payoffs(&built.curve, &f.schedule, cycle, count, discount));
+    if let Some(p) = &payoffs {
+        for w in &p.warnings {
+            eprintln!("warning: {w}");
+        }
+        // The long layout carries the payoff columns (the matrices ignore them and get a
+        // payoff table beside them).
+        p.append_to(&mut table);
+    }
     if args.layout == Layout::MatrixByCause && crate::discretise::exit_causes(&table).is_empty() {
         return Err(Error::Usage(
             "--layout matrix-by-cause needs a curve whose exit is split by cause: add background mortality with --background LIFETABLE.csv --background-mode add".into(),
@@ -355,21 +598,47 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
     let mut metadata = built.metadata.clone();
     let floor = built.floor_report(cycle_in_curve, count);
     metadata.extend(floor.iter().cloned());
+    if let (Some(file), Some(p)) = (&payoff_file, &payoffs) {
+        metadata.extend(payoff_metadata(file, p.discount, p.exactness));
+        metadata.extend(
+            p.warnings
+                .iter()
+                .map(|w| ("warning".to_string(), w.clone())),
+        );
+    }
+    let payoff_side = match (&payoffs, args.layout) {
+        (Some(p), Layout::Matrix | Layout::MatrixByCause) => Some(payoff_table(&table, p)),
+        _ => None,
+    };
     match target {
         Some(target) => {
             let exporter = &target.exporter;
-            let mut document =
-                tunnel_document(&table, args.layout, header(&table, &metadata, args.layout));
+            let head = header(&table, &metadata, args.layout);
+            let mut document = tunnel_document(&table, args.layout, head.clone());
+            if let (Some(side), None) = (&payoff_side, &companion) {
+                // JSON and XLSX hold the payoff table beside the matrix.
+                document.tables.push(side.clone());
+            }
             if exporter.holds_several_tables() {
                 document
                     .tables
                     .extend(workbook_tables(&table, args.layout, &built, &args.curve)?);
             }
-            target.write(&document)?;
-            let described = match exporter.descriptor_path(&target.path) {
+            let mut described = match exporter.descriptor_path(&target.path) {
                 Some(d) => format!("; described in {}", d.display()),
                 None => String::new(),
             };
+            match (&companion, &payoff_side) {
+                (Some(other), Some(side)) => {
+                    let side_document = crate::export::Document {
+                        metadata: head,
+                        tables: vec![side.clone()],
+                    };
+                    Target::write_together(&[(&target, &document), (other, &side_document)])?;
+                    described.push_str(&format!("; payoff table in {}", other.path.display()));
+                }
+                _ => target.write(&document)?,
+            }
             output::print(&format!(
                 "wrote {} ({} of {} {}, {} layout, {}{described})\n",
                 target.path.display(),
@@ -382,6 +651,24 @@ pub fn run(args: TunnelsArgs) -> Result<()> {
         }
         None => {
             let mut text = render_text(&table, args.layout);
+            if let Some(side) = &payoff_side {
+                text.push_str("\npayoffs per tunnel state:\n");
+                text.push_str(&render_cells(side));
+            }
+            if let (Some(file), Some(p)) = (&payoff_file, &payoffs) {
+                for payoff in &file.schedule.payoffs {
+                    text.push_str(&format!(
+                        "{}: {}\n",
+                        payoff.column(),
+                        describe_payoff(payoff)
+                    ));
+                }
+                text.push_str(&format!(
+                    "payoffs discounted at {} a year within each cycle; {}\n",
+                    p.discount.rate(),
+                    p.exactness.describe()
+                ));
+            }
             for (key, value) in &floor {
                 text.push_str(&format!("{}: {value}\n", key.replace('_', " ")));
             }

@@ -337,6 +337,51 @@ fn known(table: &str, column: &str) -> Option<Known> {
             _ => None,
         };
     }
+    if table == "payoff_methods" {
+        return match column {
+            "payoff" => k(TEXT, "payoff name, as in the payoff file", Plain),
+            "method" => k(
+                TEXT,
+                "within-cycle method: start, end, half-cycle, trapezoid, simpson or cycle-integrated",
+                Plain,
+            ),
+            "total" => k(
+                NUM,
+                "undiscounted total to the horizon for one person entering at time 0, by this method",
+                Plain,
+            ),
+            "exact" => k(
+                NUM,
+                "exact undiscounted total: the rate integrated against the curve plus the one-offs",
+                Plain,
+            ),
+            "error" => k(NUM, "total - exact", Plain),
+            "rel_error" => k(NUM, "error / |exact| (empty when exact is 0)", Plain),
+            "disc_total" => k(NUM, "discounted total to the horizon, by this method", Plain),
+            "disc_exact" => k(NUM, "exact discounted total", Plain),
+            "disc_error" => k(NUM, "disc_total - disc_exact", Plain),
+            "disc_rel_error" => k(
+                NUM,
+                "disc_error / |disc_exact| (empty when disc_exact is 0)",
+                Plain,
+            ),
+            _ => None,
+        };
+    }
+    if let Some(name) = column.strip_prefix("payoff_rel_error_") {
+        return k(
+            NUM,
+            &format!("relative error of the discounted cycle-integrated total of payoff {name} to the horizon, K-tunnel chain (the last tunnel repeating its probability and payoff) against the untruncated chain"),
+            Plain,
+        );
+    }
+    if let Some(name) = column.strip_prefix("payoff_") {
+        return k(
+            NUM,
+            &format!("payoff {name}: expected amount accrued during the tunnel's cycle by one person present at its start (discounted within the cycle from its start); multiply by the membership at the start of the cycle, no within-cycle correction"),
+            Plain,
+        );
+    }
     if table == "matrix" || table == "matrix_by_cause" {
         return match column {
             "from" => k(
@@ -382,6 +427,16 @@ fn known(table: &str, column: &str) -> Option<Known> {
         "draw" => k(
             INT,
             "uncertainty draw, from 1 (the rows of one draw share one parameter set)",
+            Plain,
+        ),
+        "entry_cycle" => k(
+            INT,
+            "model cycle at whose start the cohort enters tunnel 1 (0-based)",
+            Plain,
+        ),
+        "entry_age" => k(
+            NUM,
+            "age at entry in years: the start age plus entry_cycle cycles",
             Plain,
         ),
         "tunnel" => k(
@@ -473,6 +528,8 @@ fn table_description(table: &str) -> Option<&'static str> {
         "draws" => "Uncertainty draws of the tunnel table, long layout: one row per draw and tunnel state.",
         "draws_wide" => "Uncertainty draws of the tunnel table, wide layout: one row per tunnel state, p_exit of draw d in column draw_d.",
         "summary" | "draws_summary" => "Summary of the uncertainty draws: per tunnel state, p_exit of the point estimate and its mean and 2.5% and 97.5% percentiles over the draws.",
+        "payoffs" => "Payoffs per tunnel state (beside a matrix layout): one row per tunnel state, one payoff_NAME column per payoff.",
+        "payoff_methods" => "Payoff totals to the horizon by within-cycle method, beside the exact integral, undiscounted and discounted: one row per payoff and method.",
         "truncation" => "Truncation table: for each number K of tunnel states, how far the K-tunnel chain is from the untruncated chain up to the horizon.",
         "within_cycle" => "Within-cycle table: life-years to the horizon from cycle-boundary survival by each method, beside the exact integral of the curve.",
         "rebuild_quality" => "How closely the rebuilt data reproduce the digitised figure, one row per arm.",
@@ -615,6 +672,25 @@ mod tests {
                     "p_next",
                     "p_exit_disease",
                     "floor_share",
+                    "payoff_cost",
+                    "entry_cycle",
+                    "entry_age",
+                ][..],
+            ),
+            ("payoffs", &["tunnel", "payoff_cost"][..]),
+            (
+                "payoff_methods",
+                &[
+                    "payoff",
+                    "method",
+                    "total",
+                    "exact",
+                    "error",
+                    "rel_error",
+                    "disc_total",
+                    "disc_exact",
+                    "disc_error",
+                    "disc_rel_error",
                 ][..],
             ),
             ("draws", &["draw", "tunnel", "p_exit"][..]),
@@ -631,7 +707,13 @@ mod tests {
             ("matrix", &["from", "tunnel_1", "exit"][..]),
             (
                 "truncation",
-                &["count", "max_surv_gap", "ly_rel_error", "p_exit_last"][..],
+                &[
+                    "count",
+                    "max_surv_gap",
+                    "ly_rel_error",
+                    "p_exit_last",
+                    "payoff_rel_error_cost",
+                ][..],
             ),
             (
                 "within_cycle",

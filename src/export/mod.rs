@@ -174,6 +174,15 @@ impl Target {
     /// Stages the descriptor of the staged `data` file and puts both in place, the
     /// descriptor first.
     fn commit(&self, document: &Document, data: output::Pending) -> Result<()> {
+        output::commit(self.staged_with_descriptor(document, data)?)
+    }
+
+    /// The staged `data` file preceded by its staged descriptor (if the format has one).
+    fn staged_with_descriptor(
+        &self,
+        document: &Document,
+        data: output::Pending,
+    ) -> Result<Vec<output::Pending>> {
         let mut files = Vec::new();
         if let Some(path) = self.exporter.descriptor_path(&self.path) {
             let name = file_name(&self.path);
@@ -182,6 +191,19 @@ impl Target {
             }
         }
         files.push(data);
+        Ok(files)
+    }
+
+    /// Renders and stages every (target, document) pair, then puts all the files in place
+    /// together: a table and a companion table (a matrix layout's payoff table in CSV) appear
+    /// both or neither.
+    pub fn write_together(pairs: &[(&Target, &Document)]) -> Result<()> {
+        let mut files = Vec::new();
+        for (target, document) in pairs {
+            let bytes = target.exporter.render(document)?;
+            let data = output::stage(&target.path, &bytes)?;
+            files.extend(target.staged_with_descriptor(document, data)?);
+        }
         output::commit(files)
     }
 }

@@ -413,6 +413,112 @@ pub fn horizon_payoffs(
     }
 }
 
+/// The running totals of one payoff to each cycle boundary t_j (j = 0..=n), by every method:
+/// what the method has counted for one person entering at 0 by time t_j, discounted at
+/// `discount`. `cycle-integrated` is the exact accrual to t_j (the telescoping identity of
+/// `docs/payoffs.md`), so a method's running total minus it is where the method gains or loses
+/// over time since entry. Simpson's rule has running totals only at even j (composite 1/3 rule
+/// to t_j) and at n (the method's total); other entries are `None`. `per_tunnel`: the payoff's
+/// per-tunnel values discounted at `discount` (at least n).
+pub fn running_totals(
+    payoff: &Payoff,
+    log_s: &[f64],
+    cycle: Duration,
+    discount: Discount,
+    per_tunnel: &[f64],
+) -> Vec<(PayoffMethod, Vec<Option<f64>>)> {
+    let n = log_s.len().saturating_sub(1);
+    let d = boundary_discounts(cycle, n, discount);
+    let m: Vec<f64> = log_s.iter().map(|l| l.exp()).collect();
+    let h = cycle.value;
+    let c: Vec<f64> = (0..=n)
+        .map(|j| {
+            if payoff.rate.is_empty() {
+                0.0
+            } else {
+                payoff.rate_at(j as f64 * h, cycle.unit) * h
+            }
+        })
+        .collect();
+    let entry = payoff.at_entry.unwrap_or(0.0);
+    let exit_amount = payoff.at_exit.unwrap_or(0.0);
+    let exit: Vec<f64> = (0..n)
+        .map(|j| m[j] * exit_probability(log_s[j], log_s[j + 1]) * d[j + 1] * exit_amount)
+        .collect();
+    let g: Vec<f64> = (0..=n).map(|j| c[j] * m[j] * d[j]).collect();
+    let running = |step: &dyn Fn(usize) -> f64| -> Vec<Option<f64>> {
+        let mut total = entry;
+        let mut out = vec![Some(total)];
+        for j in 0..n {
+            total += step(j);
+            out.push(Some(total));
+        }
+        out
+    };
+    let start = running(&|j| g[j] + exit[j]);
+    let end = running(&|j| c[j] * m[j + 1] * d[j + 1] + exit[j]);
+    let half = running(&|j| 0.5 * (g[j] + g[j + 1]) + exit[j]);
+    let trapezoid = running(&|j| c[j] * 0.5 * (m[j] * d[j] + m[j + 1] * d[j + 1]) + exit[j]);
+    // Tunnel 1's payoff holds the entry amount, already counted at t_0.
+    let integrated = running(&|j| {
+        let weight = m[j] * d[j];
+        let own = if weight == 0.0 {
+            0.0
+        } else {
+            weight * per_tunnel[j]
+        };
+        if j == 0 {
+            own - entry
+        } else {
+            own
+        }
+    });
+    let mut exit_to = vec![0.0; n + 1];
+    for j in 0..n {
+        exit_to[j + 1] = exit_to[j] + exit[j];
+    }
+    let mut simpson: Vec<Option<f64>> = (0..=n)
+        .map(|j| {
+            if j % 2 != 0 {
+                return None;
+            }
+            if j == 0 {
+                return Some(entry);
+            }
+            let sum: f64 = (0..=j)
+                .map(|i| {
+                    let w = if i == 0 || i == j {
+                        1.0
+                    } else if i % 2 == 1 {
+                        4.0
+                    } else {
+                        2.0
+                    };
+                    w * g[i]
+                })
+                .sum();
+            Some(sum / 3.0 + entry + exit_to[j])
+        })
+        .collect();
+    if n > 0 {
+        simpson[n] = Some(boundary_total(
+            payoff,
+            Method::Simpson,
+            log_s,
+            cycle,
+            discount,
+        ));
+    }
+    vec![
+        (PayoffMethod::Start, start),
+        (PayoffMethod::End, end),
+        (PayoffMethod::HalfCycle, half),
+        (PayoffMethod::Trapezoid, trapezoid),
+        (PayoffMethod::Simpson, simpson),
+        (PayoffMethod::CycleIntegrated, integrated),
+    ]
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -586,5 +692,38 @@ mod tests {
         );
         assert!((simpson - 5.0 * (1.0 + log_s[1].exp())).abs() < 1e-12);
         assert_eq!(simpson, half);
+    }
+
+    #[test]
+    fn running_totals_end_at_the_method_totals() {
+        let curve = ParametricCurve::new(&Weibull, vec![1.3, 15.0], TimeUnit::Months).unwrap();
+        let schedule = schedule(&[
+            ["cost", "rate", "0", "500", "1 month"],
+            ["cost", "rate", "1 year", "50", "1 month"],
+            ["cost", "at_entry", "", "1500", ""],
+            ["cost", "at_exit", "", "3000", ""],
+        ]);
+        let discount = Discount::annual(0.035).unwrap();
+        for n in [36, 37] {
+            let h = horizon_payoffs(&curve, &schedule, month(), n, discount);
+            let log_s = boundary_log_survival(&curve, month(), n);
+            let per = tunnel_payoffs(&curve, &schedule, month(), n, discount);
+            for (method, path) in running_totals(
+                &schedule.payoffs[0],
+                &log_s,
+                month(),
+                discount,
+                &per.values[0],
+            ) {
+                let row = h.rows.iter().find(|r| r.method == method).unwrap();
+                let last = path[n].unwrap();
+                assert!(
+                    (last - row.disc_total).abs() <= 1e-9 * row.disc_total.abs(),
+                    "{n} {method:?}: {last} against {}",
+                    row.disc_total
+                );
+                assert_eq!(path[0], Some(1500.0));
+            }
+        }
     }
 }

@@ -13,7 +13,7 @@
 
 use crate::curve::{Curve, PiecewiseHazard};
 use crate::discretise::exit_probability;
-use crate::numeric::{expm1_over_x, integrate};
+use crate::numeric::{expm1_over_x, integrate_with_floor};
 
 /// Tolerance asked of the quadrature: [`crate::numeric::integrate`] accepts a piece once its
 /// error estimate is within this share of the piece's value, two orders below the 1e-10
@@ -166,14 +166,21 @@ impl<'a> Integrator<'a> {
             None => {
                 let curve = self.curve;
                 let relative = |u: f64| curve.log_survival(u) - log_s0;
+                // ln S(u) - ln S(t0) carries an absolute rounding error of about ε·|ln S(t0)|,
+                // so both integrands (at most 1) are known only to that absolute accuracy: a
+                // piece is accepted once its error estimate is within its share of that floor,
+                // instead of chasing the rounding noise (far tails, where |ln S| is in the
+                // hundreds, otherwise split to the quadrature's limit).
+                let noise = |a: f64, b: f64| 64.0 * f64::EPSILON * (1.0 + log_s0.abs()) * (b - a);
                 let pieces: Vec<(f64, f64, f64)> = nodes
                     .windows(2)
                     .map(|w| {
-                        let stay = integrate(
+                        let stay = integrate_with_floor(
                             |u| (relative(u) - delta * (u - t0)).exp(),
                             w[0],
                             w[1],
                             QUADRATURE_TOLERANCE,
+                            noise(w[0], w[1]),
                         );
                         (w[0], w[1], stay)
                     })
@@ -191,11 +198,12 @@ impl<'a> Integrator<'a> {
                         nodes
                             .windows(2)
                             .map(|w| {
-                                integrate(
+                                integrate_with_floor(
                                     |u| -relative(u).exp_m1() * (-delta * (u - t0)).exp(),
                                     w[0],
                                     w[1],
                                     QUADRATURE_TOLERANCE,
+                                    noise(w[0], w[1]),
                                 )
                             })
                             .sum::<f64>()

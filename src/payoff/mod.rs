@@ -16,8 +16,9 @@ pub mod tunnel;
 pub use discount::Discount;
 pub use horizon::{
     horizon_payoffs, payoff_method_rows, payoff_truncation_columns, payoff_truncation_errors,
-    suggested_count_with_payoffs, HorizonPayoffs, PayoffMethod, PayoffMethodRow, PAYOFF_METHODS,
+    running_totals, suggested_count_with_payoffs, HorizonPayoffs, PayoffMethod, PayoffMethodRow,
+    PAYOFF_METHODS,
 };
 pub use integral::Exactness;
-pub use schedule::{Payoff, PayoffColumns, PayoffRow, RatePiece, Schedule};
+pub use schedule::{Payoff, PayoffColumns, PayoffFile, PayoffRow, RatePiece, Schedule};
 pub use tunnel::{single_tunnel_entry_warning, tunnel_payoffs, TunnelPayoffs};

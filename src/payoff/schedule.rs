@@ -335,6 +335,71 @@ impl Schedule {
     }
 }
 
+/// A payoff file read from disk: its schedule, the file's name as given and its SHA-256 (for
+/// provenance in every output's metadata).
+#[derive(Debug, Clone, PartialEq)]
+pub struct PayoffFile {
+    /// The checked schedule.
+    pub schedule: Schedule,
+    /// The file as given by the user.
+    pub file: String,
+    /// Lower-case hex SHA-256 of its bytes.
+    pub sha256: String,
+}
+
+/// Reads a payoff file through the shared CSV discipline ([`crate::csv_read`]) and checks it.
+pub fn load(path: &std::path::Path) -> Result<PayoffFile> {
+    let bytes = crate::csv_read::read_file(path)?;
+    parse(&path.display().to_string(), &bytes)
+}
+
+/// Checks the bytes of a payoff CSV (header `payoff,kind,from,amount,per`, columns in any
+/// order, other columns ignored); errors are one line naming the file, line and column.
+pub fn parse(file: &str, bytes: &[u8]) -> Result<PayoffFile> {
+    use crate::csv_read::{CsvReader, Settings};
+    let sha256 = crate::input::sha256_hex(bytes);
+    let mut reader = CsvReader::new(file, bytes, Settings::default())?;
+    let index = [
+        reader.column(COLUMNS[0])?,
+        reader.column(COLUMNS[1])?,
+        reader.column(COLUMNS[2])?,
+        reader.column(COLUMNS[3])?,
+        reader.column(COLUMNS[4])?,
+    ];
+    let columns = PayoffColumns {
+        payoff: index[0] + 1,
+        kind: index[1] + 1,
+        from: index[2] + 1,
+        amount: index[3] + 1,
+        per: index[4] + 1,
+    };
+    let mut rows = Vec::new();
+    while let Some(row) = reader.next_row()? {
+        let mut fields = Vec::with_capacity(5);
+        for i in index {
+            fields.push(row.text(i)?.to_string());
+        }
+        let mut fields = fields.into_iter();
+        let mut next = || fields.next().unwrap_or_default();
+        rows.push(PayoffRow {
+            line: row.line(),
+            payoff: next(),
+            kind: next(),
+            from: next(),
+            amount: next(),
+            per: next(),
+        });
+    }
+    if rows.is_empty() {
+        return Err(reader.no_rows());
+    }
+    Ok(PayoffFile {
+        schedule: Schedule::from_rows(file, &columns, &rows)?,
+        file: file.to_string(),
+        sha256,
+    })
+}
+
 /// A payoff being read, with the lines of its last rate piece and of its one-offs (for messages).
 struct Building {
     payoff: Payoff,

@@ -11,15 +11,19 @@
 //! generic `sans-serif` family and is drawn by the viewer's own fonts.
 
 mod diagnostics;
+mod effects;
 mod hazard;
 mod horizon;
+mod payoffs;
 mod rebuild;
 mod survival;
 mod tunnels;
 
 pub use diagnostics::{diagnostic_points, DiagnosticPlot, Transform};
+pub use effects::{EffectsPlot, ResidualPanel};
 pub use hazard::{smoothed_hazard, HazardPlot, SmoothedHazard};
 pub use horizon::HorizonPlot;
+pub use payoffs::{PayoffPanel, PayoffPlot};
 pub use rebuild::{RebuildPlot, RebuildPlotArm};
 pub use survival::SurvivalPlot;
 pub use tunnels::{TunnelMarker, TunnelPlot};

@@ -1,0 +1,128 @@
+//! The `--effects` part of `fit`: options, reading the design and the Cox section. Kept apart
+//! from `fit.rs` so the separate fits and the models across arms evolve independently.
+
+use crate::csv_read::read_file;
+use crate::effects::design::{self, Design, DesignOptions};
+use crate::effects::report::{self, CoxSummary};
+use crate::error::{Error, Result};
+use clap::Args;
+use std::path::Path;
+
+/// Options of `fit` for models across arms.
+#[derive(Debug, Args, Clone, Default)]
+pub struct EffectsArgs {
+    /// Also fit models across arms (needs --arm-col): the Cox model (Efron ties) with its test
+    /// of proportional hazards.
+    #[arg(long)]
+    pub effects: bool,
+    /// Reference arm of --effects (default: the first arm in sorted order).
+    #[arg(long, value_name = "LEVEL")]
+    pub reference: Option<String>,
+    /// Covariate columns of --effects, comma-separated: numeric columns (per unit) and text
+    /// columns (indicators against the first level in sorted order).
+    #[arg(long, value_delimiter = ',', value_name = "NAMES")]
+    pub covariates: Vec<String>,
+}
+
+/// The models across arms of one `fit` run.
+pub struct EffectsResult {
+    /// The design they were fitted to.
+    pub design: Design,
+    /// The Cox model and its test.
+    pub cox: CoxSummary,
+    /// Per term: (time, scaled Schoenfeld residual) of each event, for the plot.
+    pub scaled: Vec<Vec<(f64, f64)>>,
+}
+
+/// Checks the options, reads the design and fits the models; `None` without `--effects`.
+pub fn prepare(
+    args: &EffectsArgs,
+    data: &Path,
+    columns: (&str, &str, Option<&str>),
+    delimiter: Option<u8>,
+    zero_time: Option<f64>,
+) -> Result<Option<EffectsResult>> {
+    if !args.effects {
+        if args.reference.is_some() || !args.covariates.is_empty() {
+            return Err(Error::Usage(
+                "--reference and --covariates belong to --effects; add --effects".into(),
+            ));
+        }
+        return Ok(None);
+    }
+    let (time_col, event_col, arm_col) = columns;
+    let Some(arm_col) = arm_col else {
+        return Err(Error::Usage(
+            "--effects needs --arm-col naming the treatment arm".into(),
+        ));
+    };
+    let options = DesignOptions {
+        time_col: time_col.into(),
+        event_col: event_col.into(),
+        arm_col: arm_col.into(),
+        reference: args.reference.clone(),
+        covariates: args
+            .covariates
+            .iter()
+            .map(|c| c.trim().to_string())
+            .filter(|c| !c.is_empty())
+            .collect(),
+        delimiter,
+        zero_time,
+    };
+    let bytes = read_file(data)?;
+    let design = design::parse(&data.display().to_string(), &bytes, &options)?;
+    let (_, test, cox) = report::analyse(&design);
+    let scaled = (0..design.p())
+        .map(|j| test.scaled.iter().map(|(t, _, s)| (*t, s[j])).collect())
+        .collect();
+    Ok(Some(EffectsResult {
+        design,
+        cox,
+        scaled,
+    }))
+}
+
+/// The printed section of the models across arms.
+pub fn render(result: &EffectsResult) -> String {
+    report::render(&result.cox)
+}
+
+/// The figure `effects.svg`/`effects.png`: ln(−ln S) per arm against ln t, and the scaled
+/// Schoenfeld residuals of each term over time.
+pub fn figures(
+    result: &EffectsResult,
+    data: &crate::input::Dataset,
+    unit: crate::units::TimeUnit,
+) -> Result<Vec<crate::plot::Figure>> {
+    let kms: Vec<(String, crate::km::KaplanMeier)> = data
+        .arms
+        .iter()
+        .map(|a| {
+            (
+                a.arm.clone().unwrap_or_default(),
+                crate::km::KaplanMeier::from_records(&a.records),
+            )
+        })
+        .collect();
+    let plot = crate::plot::EffectsPlot {
+        title: format!(
+            "Proportional hazards: arms and Schoenfeld residuals (reference arm {})",
+            result.cox.reference
+        ),
+        unit,
+        arms: kms.iter().map(|(n, k)| (n.clone(), k)).collect(),
+        terms: result
+            .cox
+            .terms
+            .iter()
+            .zip(&result.scaled)
+            .map(|(t, points)| crate::plot::ResidualPanel {
+                name: t.name.clone(),
+                coef: t.coef,
+                points: points.clone(),
+            })
+            .collect(),
+    };
+    crate::plot::both("effects", &plot)
+}
