@@ -566,6 +566,11 @@ mod tests {
             gradient_max: None,
             message: None,
             settings: None,
+            landmarks: Vec::new(),
+            rmst_followup: None,
+            mean_years: None,
+            targets: Vec::new(),
+            below_population_from_years: None,
         }
     }
 

@@ -271,6 +271,26 @@ pub struct FamilyFit {
     /// Settings of a configured family (cut points, spline scale and knots); absent otherwise.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub settings: Option<families::FamilySettings>,
+    /// Survival at the landmark durations with 95% intervals (years; empty for a failed fit).
+    #[serde(default)]
+    pub landmarks: Vec<crate::plausibility::Landmark>,
+    /// Restricted mean survival to the arm's longest follow-up, years.
+    #[serde(default)]
+    pub rmst_followup: Option<f64>,
+    /// Mean survival restricted to the mean horizon, years.
+    #[serde(default)]
+    pub mean_years: Option<f64>,
+    /// External targets checked against this fit (with `--targets`).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub targets: Vec<crate::plausibility::TargetCheck>,
+    /// First time after follow-up (years since entry) at which the fit's hazard is below the
+    /// general population's: absent without a life table, `null` if never within the horizon.
+    #[serde(
+        default,
+        skip_serializing_if = "Option::is_none",
+        with = "crate::plausibility::present_or_null"
+    )]
+    pub below_population_from_years: Option<Option<f64>>,
 }
 
 impl FamilyFit {
@@ -788,6 +808,11 @@ fn empty_fit(family: &dyn Family, arm: Option<&str>, why: Option<String>) -> Fam
         gradient_max: None,
         message: why,
         settings: family.settings(),
+        landmarks: Vec::new(),
+        rmst_followup: None,
+        mean_years: None,
+        targets: Vec::new(),
+        below_population_from_years: None,
     }
 }
 
@@ -930,6 +955,9 @@ pub struct FitFile {
     pub data: DataInfo,
     /// Fits, sorted by AIC within each arm.
     pub fits: Vec<FamilyFit>,
+    /// Settings of the plausibility checks (landmarks, mean horizon, targets, population).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub plausibility: Option<crate::plausibility::Record>,
     /// The Cox model across arms and its test of proportional hazards (`fit --effects`).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub cox: Option<crate::effects::report::CoxSummary>,
@@ -1012,6 +1040,7 @@ pub fn fit_dataset(
             arms,
         },
         fits,
+        plausibility: None,
         cox: None,
         effects: Vec::new(),
     }

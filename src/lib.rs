@@ -28,6 +28,7 @@ pub mod km;
 pub mod numeric;
 pub mod output;
 pub mod payoff;
+pub mod plausibility;
 pub mod plot;
 pub mod progress;
 pub mod rebuild;

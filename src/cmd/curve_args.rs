@@ -141,7 +141,7 @@ struct Source {
 }
 
 /// One of a fixed set of words, case-insensitive, with a suggestion on a typo.
-fn choose<T: Copy>(option: &str, text: &str, choices: &[(&str, T)]) -> Result<T> {
+pub(crate) fn choose<T: Copy>(option: &str, text: &str, choices: &[(&str, T)]) -> Result<T> {
     let lower = text.trim().to_ascii_lowercase();
     if let Some((_, value)) = choices.iter().find(|(name, _)| *name == lower) {
         return Ok(*value);
@@ -158,7 +158,7 @@ fn choose<T: Copy>(option: &str, text: &str, choices: &[(&str, T)]) -> Result<T>
 }
 
 /// A number given as an option value, with a one-line error naming the option.
-fn option_number(option: &str, text: &str) -> Result<f64> {
+pub(crate) fn option_number(option: &str, text: &str) -> Result<f64> {
     crate::input::parse_number(text).map_err(|e| Error::Usage(format!("{option}: {e}")))
 }
 

@@ -3,9 +3,7 @@
 use crate::error::{Error, Result};
 use crate::families;
 use crate::fit::{fit_dataset, select_families_with, FitFile};
-use crate::format::sig;
 use crate::input::{self, InputOptions};
-use crate::km::MedianEstimate;
 use crate::output;
 use crate::units::TimeUnit;
 use clap::Args;
@@ -61,122 +59,23 @@ pub struct FitArgs {
     /// Replace an existing output file.
     #[arg(long)]
     pub force: bool,
+    /// Plausibility of the extrapolation: landmarks, means, targets, general population.
+    #[command(flatten)]
+    pub plausibility: crate::cmd::plausibility_args::PlausibilityArgs,
+    /// Unit of the times shown in the comparison and on plot axes (default: years when the
+    /// data span more than two years, else the data's unit).
+    #[arg(long, value_name = "UNIT")]
+    pub display_unit: Option<TimeUnit>,
     /// Models across arms (`--effects`, `--reference`, `--covariates`).
     #[command(flatten)]
     pub effects: super::fit_effects::EffectsArgs,
 }
 
-fn interval_text(median: &MedianEstimate) -> String {
-    let show = |x: Option<f64>| x.map(|v| sig(v, 4)).unwrap_or_else(|| "not reached".into());
-    format!(
-        "{} (95% CI {} to {})",
-        show(median.median),
-        show(median.lower),
-        show(median.upper)
-    )
-}
-
-/// Renders the comparison table of one fit file, arm by arm.
+/// Renders the comparison of one fit file, arm by arm (see
+/// [`crate::plausibility::comparison`]), times in years when the data span more than two years.
 pub fn render_comparison(file: &FitFile) -> String {
-    let unit = file.data.time_unit;
-    let mut out = format!(
-        "data: {} (n = {}, events = {}, time unit: {unit})\n",
-        file.data.file, file.data.n, file.data.events
-    );
-    for arm in &file.data.arms {
-        out.push('\n');
-        if let Some(name) = &arm.arm {
-            out.push_str(&format!(
-                "arm {name} (n = {}, events = {})\n",
-                arm.n, arm.events
-            ));
-        }
-        out.push_str(&format!(
-            "Kaplan–Meier median: {} {unit}; longest follow-up {} {}\n",
-            interval_text(&arm.km_median),
-            sig(arm.max_time, 4),
-            unit.name_for(arm.max_time)
-        ));
-        let mut rows = Vec::new();
-        for fit in file.fits.iter().filter(|f| f.arm == arm.arm) {
-            let family = fit.family().ok();
-            let params = family
-                .map(|f| {
-                    f.param_names()
-                        .iter()
-                        .map(|n| {
-                            let v = fit.params.get(*n).copied().unwrap_or(f64::NAN);
-                            match fit.intervals.get(*n) {
-                                Some([lo, hi]) => {
-                                    format!(
-                                        "{n} {} ({} to {})",
-                                        sig(v, 4),
-                                        sig(*lo, 3),
-                                        sig(*hi, 3)
-                                    )
-                                }
-                                None => format!("{n} {}", sig(v, 4)),
-                            }
-                        })
-                        .collect::<Vec<_>>()
-                        .join("; ")
-                })
-                .unwrap_or_default();
-            let opt = |x: Option<f64>, d: usize| {
-                x.map(|v| crate::format::fixed(v, d))
-                    .unwrap_or_else(|| "NA".into())
-            };
-            rows.push(vec![
-                if fit.converged {
-                    fit.family.clone()
-                } else {
-                    format!("{} (not converged)", fit.family)
-                },
-                params,
-                opt(fit.loglik, 2),
-                opt(fit.aic, 2),
-                opt(fit.bic, 2),
-                opt(fit.delta_aic, 2),
-                fit.median
-                    .map(|m| sig(m, 4))
-                    .unwrap_or_else(|| "not reached".into()),
-            ]);
-        }
-        out.push_str(&crate::format::table_aligned(
-            &[
-                "family",
-                "parameters (95% CI)",
-                "loglik",
-                "AIC",
-                "BIC",
-                "ΔAIC",
-                &format!("median ({unit})"),
-            ],
-            &rows,
-            2,
-        ));
-        for fit in file.fits.iter().filter(|f| f.arm == arm.arm) {
-            if let Some(settings) = &fit.settings {
-                out.push_str(&format!(
-                    "{}: {}\n",
-                    fit.family,
-                    settings_text(settings, unit)
-                ));
-            }
-        }
-        for fit in file
-            .fits
-            .iter()
-            .filter(|f| f.arm == arm.arm && !f.converged)
-        {
-            out.push_str(&format!(
-                "note: {} did not converge: {}\n",
-                fit.family,
-                fit.message.as_deref().unwrap_or("no reason recorded")
-            ));
-        }
-    }
-    out
+    let display = crate::plausibility::comparison::default_display_unit(file);
+    crate::plausibility::comparison::render(file, display)
 }
 
 /// One line describing a configured family's settings, times in `unit`, for reading (10
@@ -251,6 +150,7 @@ pub fn run(args: FitArgs) -> Result<()> {
             .transpose()?,
     };
     let families = select_families_with(&args.families, &options)?;
+    let plausibility = args.plausibility.build()?;
     if let Some(path) = &args.json {
         output::check_writable(path, args.force)?;
     }
@@ -281,6 +181,12 @@ pub fn run(args: FitArgs) -> Result<()> {
         zero_time: args.zero_time,
     };
     let data = input::load(&args.data, &options)?;
+    let arms: Vec<Option<String>> = data.arms.iter().map(|a| a.arm.clone()).collect();
+    crate::plausibility::targets::check_arms(
+        &plausibility.targets,
+        &arms,
+        plausibility.targets_file.as_deref().unwrap_or("targets"),
+    )?;
     let effects = super::fit_effects::prepare(
         &args.effects,
         &args.data,
@@ -297,7 +203,11 @@ pub fn run(args: FitArgs) -> Result<()> {
     if let Some(effects) = &effects {
         file.effects = super::fit_effects::joint(effects, &file);
     }
-    let mut text = render_comparison(&file);
+    crate::plausibility::annotate(&mut file, &plausibility);
+    let display = args
+        .display_unit
+        .unwrap_or_else(|| crate::plausibility::comparison::default_display_unit(&file));
+    let mut text = crate::plausibility::comparison::render(&file, display);
     if let Some(effects) = &effects {
         text.push_str(&super::fit_effects::render(effects, &file.effects));
     }

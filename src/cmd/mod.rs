@@ -7,6 +7,7 @@ pub mod fit;
 pub mod fit_effects;
 pub mod horizon;
 pub mod payoff_args;
+pub mod plausibility_args;
 pub mod rebuild;
 pub mod run;
 pub mod tunnels;
