@@ -9,10 +9,13 @@
 //! [`super::incomplete_gamma`] is used. The log density is written so that the large terms
 //! of ln Γ(a) cancel analytically (Stirling remainder), stable for every q.
 
-use super::incomplete_gamma::{expm1_minus_x_over_x2, log_gamma_pq, stirlerr};
+use super::incomplete_gamma::{
+    expm1_minus_x_over_x2, expm1_minus_x_over_x2_derivative, expm1_minus_x_over_x2_with,
+    log_gamma_pq, log_gamma_side_derivative, stirlerr, Shape,
+};
 use super::{check_finite, check_positive, quantile_by_bisection, Family, ParamUnit};
 use crate::fit::{sum_terms, FitData};
-use crate::numeric::{expm1_over_x, inverse_mills, log_normal_sf, normal_quantile, LN_SQRT_2PI};
+use crate::numeric::{inverse_mills, log_normal_sf, normal_quantile, LN_SQRT_2PI};
 
 /// Three-parameter family containing the Weibull (q = 1), log-normal (q = 0) and gamma
 /// (q = sigma); accelerated-failure-time.
@@ -160,31 +163,82 @@ impl Family for GeneralizedGamma {
         let (mu, ln_sigma, q) = (theta[0], theta[1], theta[2]);
         let sigma = ln_sigma.exp();
         let uniform = q.abs() < Q_UNIFORM;
+        // Shared by every record of the pass: the shape a = q⁻², its Stirling remainder and
+        // the derivatives in q (no ln Γ per record).
+        let a = 1.0 / (q * q);
+        let has_shape = q != 0.0 && a.is_finite();
+        let shape = has_shape.then(|| Shape::new(a));
+        let (a_term, da_term_dq) = if has_shape {
+            (stirlerr(a), a_term_derivative(q))
+        } else {
+            (0.0, 0.0)
+        };
+        let da_dq = if has_shape { -2.0 / (q * q * q) } else { 0.0 };
         let (ll, g) = sum_terms::<3>(data, |_t, ln_t, d, n| {
             let w = (ln_t - mu) / sigma;
             let c = n - d;
+            // One exponential per record serves the density, its derivatives and the survival.
+            let y = q * w;
+            let em1 = y.exp_m1();
+            let phi2 = expm1_minus_x_over_x2_with(y, em1);
+            // ln f·σ·t = -ln √(2π) - stirlerr(q⁻²) - w²φ₂(qw), as `log_density_w`.
+            let log_f = -LN_SQRT_2PI - a_term - w * w * phi2;
             let mut ll = 0.0;
             let mut grad = [0.0; 3];
             if d > 0.0 {
-                // ln f = -ln σ - ln t - ln √(2π) - stirlerr(q⁻²) - w²φ₂(qw); d(w²φ₂)/dw = w·(e^(qw) - 1)/(qw).
-                let dg_dw = w * expm1_over_x(q * w);
-                ll += d * (log_density_w(q, w) - ln_sigma - ln_t);
+                // d(w²φ₂)/dw = w·(e^(qw) - 1)/(qw); d(w²φ₂(qw))/dq = w³φ₂'(qw).
+                let dg_dw = w * expm1_over_x_with(y, em1);
+                ll += d * (log_f - ln_sigma - ln_t);
                 grad[0] += d * dg_dw / sigma;
                 grad[1] += d * (w * dg_dw - 1.0);
-                grad[2] += d * d_dq(|qq| log_density_w(qq, w), q);
+                grad[2] +=
+                    d * (-da_term_dq - w * w * w * expm1_minus_x_over_x2_derivative(y, em1, phi2));
             }
             if c > 0.0 {
-                let log_s = log_survival_w(q, w, uniform);
+                let (log_s, dlog_s_dq) = match (&shape, uniform) {
+                    (Some(shape), false) => {
+                        log_gamma_side_derivative(shape, y, em1, phi2, q > 0.0, da_dq, w)
+                    }
+                    _ => (
+                        log_survival_w(q, w, true),
+                        d_dq(|qq| log_survival_w(qq, w, true), q),
+                    ),
+                };
                 // ∂ln S/∂mu = t·h, ∂ln S/∂ln σ = σ·t·h·w, with ln(σ·t·h) = ln f·σ·t - ln S.
-                let sigma_t_h = (log_density_w(q, w) - log_s).exp();
+                let sigma_t_h = (log_f - log_s).exp();
                 ll += c * log_s;
                 grad[0] += c * sigma_t_h / sigma;
                 grad[1] += c * sigma_t_h * w;
-                grad[2] += c * d_dq(|qq| log_survival_w(qq, w, uniform), q);
+                grad[2] += c * dlog_s_dq;
             }
             (ll, grad)
         });
         (ll, g.to_vec())
+    }
+}
+
+/// (e^y - 1)/y given `em1` = e^y - 1, as [`crate::numeric::expm1_over_x`].
+fn expm1_over_x_with(y: f64, em1: f64) -> f64 {
+    if y.abs() < 1e-5 {
+        1.0 + y / 2.0 + y * y / 6.0 + y * y * y / 24.0
+    } else {
+        em1 / y
+    }
+}
+
+/// d/dq of stirlerr(q⁻²): by the series in r = q² where a ≥ 10 (no division by q³ near the
+/// log-normal limit), by the chain rule elsewhere.
+fn a_term_derivative(q: f64) -> f64 {
+    let a = 1.0 / (q * q);
+    if a >= 10.0 {
+        // stirlerr = Σ c_k r^(2k+1) with r = 1/a = q² (Abramowitz and Stegun, 1964, 6.1.40).
+        let r = q * q;
+        let r2 = r * r;
+        let ds_dr = 1.0 / 12.0
+            - r2 * (3.0 / 360.0 - r2 * (5.0 / 1260.0 - r2 * (7.0 / 1680.0 - r2 * (9.0 / 1188.0))));
+        ds_dr * 2.0 * q
+    } else {
+        super::incomplete_gamma::stirlerr_derivative(a) * (-2.0 / (q * q * q))
     }
 }
 
