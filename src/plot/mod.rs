@@ -480,8 +480,13 @@ fn grid(a: f64, b: f64, n: usize) -> impl Iterator<Item = f64> {
     (0..=n).map(move |i| a + (b - a) * i as f64 / n as f64)
 }
 
-/// Short label for a tick value (no trailing zeros).
+/// Short label for a tick value (no trailing zeros). Axis positions built by repeated
+/// addition over a range that crosses zero land a rounding error away from it (−2.8e−17);
+/// such a position is the zero tick and is labelled "0".
 fn tick_label(x: f64) -> String {
+    if x.abs() < 1e-12 {
+        return "0".into();
+    }
     let s = crate::format::sig(x, 4);
     if s.contains('.') && !s.contains('e') {
         s.trim_end_matches('0').trim_end_matches('.').to_string()
@@ -603,6 +608,23 @@ mod tests {
             .filter(|p| p[0] < 100 && p[1] < 100 && p[2] < 100)
             .count();
         assert!(dark > 500, "{dark} dark pixels");
+    }
+
+    #[test]
+    fn a_rounding_error_at_zero_is_labelled_zero() {
+        // −0.3 + 0.1 + 0.1 + 0.1 leaves a rounding error where the axis crosses zero.
+        let mut x: f64 = -0.3;
+        for _ in 0..3 {
+            x += 0.1;
+        }
+        assert!(
+            x != 0.0 && x.abs() < 1e-15,
+            "the example must carry a rounding error: {x}"
+        );
+        assert_eq!(tick_label(x), "0");
+        assert_eq!(tick_label(-0.0), "0");
+        assert_eq!(tick_label(0.25), "0.25");
+        assert_eq!(tick_label(-1.5), "-1.5");
     }
 
     #[test]
