@@ -602,3 +602,90 @@ fn bad_adjustment_input_is_refused_with_one_line_and_nothing_written() {
         assert!(leftovers.is_empty(), "{extra:?}: {leftovers:?}");
     }
 }
+
+#[test]
+fn entry_cycles_report_where_the_floor_binds_for_each_entry_age() {
+    // A disease hazard of 0.002 a month against a life table with qx = 0.001 below age 65 and
+    // 0.05 from 65: the background hazard, -ln(1 - qx)/12 a month (interface), is 8.3e-5 below
+    // 65 and 4.27e-3 from 65, so the floor binds exactly in the yearly tunnels that lie past age
+    // 65. Entry at age 60 + e: tunnel k covers ages [60 + e + k - 1, 60 + e + k), past 65 from
+    // k = 6 - e (hand computation from the interval convention, common practice).
+    let dir = tempfile::tempdir().unwrap();
+    let rows: Vec<(u32, f64)> = (40..100)
+        .map(|a| (a, if a < 65 { 0.001 } else { 0.05 }))
+        .collect();
+    write_table(dir.path(), "step.csv", &rows);
+    let doc = tunnels_json(
+        dir.path(),
+        &[
+            "--family",
+            "exponential",
+            "--param",
+            "rate=0.002",
+            "--time-unit",
+            "months",
+            "--cycle",
+            "1 year",
+            "--count",
+            "10",
+            "--background",
+            "step.csv",
+            "--start-age",
+            "60",
+            "--background-mode",
+            "floor",
+            "--entry-cycles",
+            "3",
+        ],
+    );
+    assert_eq!(doc.metadata["floor_binds_in_tunnels"], "6–10");
+    assert_eq!(
+        doc.metadata["floor_binds_in_tunnels_by_entry"],
+        "entry cycle 0: 6–10; entry cycle 1: 5–10; entry cycle 2: 4–10"
+    );
+    // The table itself agrees: p_exit is the background probability where the floor binds.
+    let table = &doc.tables[0];
+    let (entry, tunnel, p) = (
+        table.column("entry_cycle"),
+        table.column("tunnel"),
+        table.column("p_exit"),
+    );
+    let disease = 1.0 - (-0.002f64 * 12.0).exp();
+    for i in 0..p.len() {
+        let k = tunnel[i] as usize;
+        let e = entry[i] as usize;
+        let expected = if k + e >= 6 { 0.05 } else { disease };
+        assert!(
+            (p[i] - expected).abs() < 1e-12,
+            "entry {e} tunnel {k}: {} vs {expected}",
+            p[i]
+        );
+    }
+    // Without a floor the by-entry key is absent.
+    let plain = tunnels_json(
+        dir.path(),
+        &[
+            "--family",
+            "exponential",
+            "--param",
+            "rate=0.002",
+            "--time-unit",
+            "months",
+            "--cycle",
+            "1 year",
+            "--count",
+            "10",
+            "--background",
+            "step.csv",
+            "--start-age",
+            "60",
+            "--background-mode",
+            "add",
+            "--entry-cycles",
+            "3",
+        ],
+    );
+    assert!(!plain
+        .metadata
+        .contains_key("floor_binds_in_tunnels_by_entry"));
+}

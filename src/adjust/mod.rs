@@ -356,7 +356,7 @@ fn round_age(age: f64) -> f64 {
 }
 
 /// Compact list of 1-based indices, e.g. `3, 5–9`.
-fn ranges(values: &[usize]) -> String {
+pub(crate) fn ranges(values: &[usize]) -> String {
     let mut parts = Vec::new();
     let mut i = 0;
     while i < values.len() {

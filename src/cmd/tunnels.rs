@@ -400,6 +400,7 @@ fn run_entry_cycles(
     let cycle_in_curve = cycle.in_unit(built.curve.time_unit());
     let mut tables = Vec::with_capacity(n);
     let mut exactness = None;
+    let mut floors = Vec::with_capacity(n);
     for e in 0..n {
         let age = entry_age(start_age, cycle, e);
         let adjuster = built
@@ -422,6 +423,7 @@ fn run_entry_cycles(
                 )),
                 other => other,
             })?;
+        floors.push(curve.floor_report(cycle_in_curve, count));
         let mut table = tunnel_table(&curve, cycle_in_table, count);
         if let Some(file) = payoff_file {
             let p = tunnel_payoffs(&curve, &file.schedule, cycle, count, discount);
@@ -439,6 +441,13 @@ fn run_entry_cycles(
     let mut metadata = built.metadata.clone();
     if let (Some(file), Some(x)) = (payoff_file, exactness) {
         metadata.extend(payoff_metadata(file, discount, x));
+    }
+    // The floor report of entry cycle 0 under the usual keys (as without --entry-cycles), and
+    // where the floor binds for every entry cycle, since it moves with the age at entry.
+    metadata.extend(floors[0].iter().cloned());
+    let by_entry = floor_binds_by_entry(&floors);
+    if let Some(text) = &by_entry {
+        metadata.push(("floor_binds_in_tunnels_by_entry".into(), text.clone()));
     }
     metadata.push(("entry_cycles".into(), n.to_string()));
     metadata.push((
@@ -499,10 +508,55 @@ fn run_entry_cycles(
                 first.time_unit
             );
             text.push_str(&render_cells(&combined));
+            for (key, value) in &floors[0] {
+                text.push_str(&format!(
+                    "{} (entry cycle 0): {value}\n",
+                    key.replace('_', " ")
+                ));
+            }
+            if let Some(by_entry) = &by_entry {
+                text.push_str(&format!(
+                    "floor binds in tunnels by entry cycle: {by_entry}\n"
+                ));
+            }
             output::print(&text);
         }
     }
     Ok(())
+}
+
+/// Where the floor binds for each entry cycle, consecutive entry cycles with the same tunnels
+/// grouped ("entry cycles 0–2: 6–10; entry cycle 3: 5–10"); `None` without a floor.
+fn floor_binds_by_entry(floors: &[Vec<(String, String)>]) -> Option<String> {
+    let binds: Vec<&str> = floors
+        .iter()
+        .map(|f| {
+            f.iter()
+                .find(|(k, _)| k == "floor_binds_in_tunnels")
+                .map(|(_, v)| v.as_str())
+        })
+        .collect::<Option<Vec<_>>>()?;
+    let mut parts = Vec::new();
+    let mut i = 0;
+    while i < binds.len() {
+        let mut j = i;
+        while j + 1 < binds.len() && binds[j + 1] == binds[i] {
+            j += 1;
+        }
+        let entries: Vec<usize> = (i..=j).collect();
+        let label = if i == j {
+            "entry cycle"
+        } else {
+            "entry cycles"
+        };
+        parts.push(format!(
+            "{label} {}: {}",
+            crate::adjust::ranges(&entries),
+            binds[i]
+        ));
+        i = j + 1;
+    }
+    Some(parts.join("; "))
 }
 
 /// Runs `tunnels`.
