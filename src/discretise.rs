@@ -119,8 +119,8 @@ pub fn tunnel_table(curve: &dyn Curve, cycle: Duration, count: usize) -> TunnelT
 /// or a cycle far shorter than intended: a million rows is already beyond any cohort engine).
 pub const MAX_COUNT: usize = 1_000_000;
 
-/// Number of tunnel states that reach `until`: ⌈until / cycle⌉, where a ratio within 1e-9 of a
-/// whole number counts as that number (so "1 year" of "1 month" cycles is 12, not 13).
+/// Number of tunnel states that reach `until`: ⌈until / cycle⌉, where a ratio within 1e-9
+/// (relative) of a whole number counts as that number (so "1 year" of "1 month" cycles is 12, not 13).
 /// `Err` when `until` is shorter than one cycle or the count exceeds [`MAX_COUNT`].
 pub fn count_until(cycle: Duration, until: Duration) -> Result<usize, String> {
     let ratio = until.in_unit(cycle.unit) / cycle.value;
@@ -505,5 +505,78 @@ mod tests {
                 );
             }
         }
+    }
+
+    #[test]
+    fn count_until_accepts_exactly_one_cycle_and_exactly_the_maximum() {
+        // ⌈until / cycle⌉ at its edges (the definition in the doc comment, by hand): one cycle
+        // of one day reaches one day; 1,000,000 daily cycles are allowed (the cap is "at
+        // most"), 1,000,001 are not; a ratio within 1e-9 relative of a whole number counts as
+        // that number (100,000.00001 days: off by 1e-5 ≤ 1e-9 × 100,000 = 1e-4), a ratio off
+        // by more is rounded up (100,000.001 days: off by 1e-3 > 1e-4, so 100,001 cycles).
+        let days = |value: f64| Duration {
+            value,
+            unit: TimeUnit::Days,
+        };
+        assert_eq!(count_until(days(1.0), days(1.0)), Ok(1));
+        assert_eq!(count_until(days(7.0), days(7.0)), Ok(1));
+        assert!(count_until(days(7.0), days(6.9)).is_err());
+        assert_eq!(count_until(days(1.0), days(1_000_000.0)), Ok(MAX_COUNT));
+        assert!(count_until(days(1.0), days(1_000_001.0)).is_err());
+        assert_eq!(count_until(days(1.0), days(100_000.000_01)), Ok(100_000));
+        assert_eq!(count_until(days(1.0), days(100_000.001)), Ok(100_001));
+    }
+
+    #[test]
+    fn cause_columns_follow_a_cycle_in_another_unit_than_the_curve() {
+        // Two constant competing hazards (disease 0.015 a month, background -ln(1 - 0.04) a
+        // year, i.e. per month /12): P(cause j within Δ) = h_j/(h_1 + h_2)·(1 - e^-(h_1+h_2)Δ)
+        // (standard competing-risks result, from memory). The curve is in months and the cycle
+        // is one year, so each cycle spans Δ = 12 months of the curve; the causes must be
+        // evaluated over the cycle converted to the curve's unit, as p_exit is.
+        use crate::adjust::add::AddedCurve;
+        use crate::adjust::background::{BackgroundHazard, BeyondTable};
+        let table = crate::adjust::lifetable::parse(
+            "life.csv",
+            b"age,qx\n50,0.04\n51,0.04\n52,0.04\n53,0.04\n54,0.04\n",
+            None,
+        )
+        .unwrap();
+        let h_d = 0.015;
+        let h_b = -(-0.04f64).ln_1p() / 12.0;
+        let curve = AddedCurve {
+            disease: Box::new(
+                ParametricCurve::new(&Exponential, vec![h_d], TimeUnit::Months).unwrap(),
+            ),
+            background: BackgroundHazard::new(table, 50.0, BeyondTable::HoldLast, TimeUnit::Months)
+                .unwrap(),
+        };
+        let year = Duration {
+            value: 1.0,
+            unit: TimeUnit::Years,
+        };
+        let table = tunnel_table(&curve, year, 4);
+        let total = h_d + h_b;
+        let p_total = 1.0 - (-total * 12.0).exp();
+        let causes = exit_causes(&table);
+        assert_eq!(causes.len(), 2);
+        assert_eq!((causes[0].0, causes[1].0), ("disease", "background"));
+        for (i, row) in table.rows.iter().enumerate() {
+            assert!((row.p_exit - p_total).abs() < 1e-12, "tunnel {}", i + 1);
+            assert!((causes[0].1[i] - h_d / total * p_total).abs() < 1e-12);
+            assert!((causes[1].1[i] - h_b / total * p_total).abs() < 1e-12);
+        }
+        // The by-cause matrix: tunnel k → k+1 with p_next (the last repeats itself), one
+        // absorbing state per cause receiving that cause's probability; rows sum to 1.
+        let m = transition_matrix_by_cause(&table);
+        assert_eq!(m.len(), 6);
+        for k in 0..4 {
+            let next = if k < 3 { k + 1 } else { 3 };
+            assert!((m[k][next] - (1.0 - p_total)).abs() < 1e-12);
+            assert!((m[k][4] - h_d / total * p_total).abs() < 1e-12);
+            assert!((m[k][5] - h_b / total * p_total).abs() < 1e-12);
+            assert!((m[k].iter().sum::<f64>() - 1.0).abs() < 1e-12);
+        }
+        assert_eq!((m[4][4], m[5][5], m[4][5], m[5][4]), (1.0, 1.0, 0.0, 0.0));
     }
 }
