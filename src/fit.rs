@@ -459,8 +459,10 @@ const NEWTON_GRADIENT_TOLERANCE: f64 = 1e-3 * GRADIENT_TOLERANCE;
 
 /// Newton iterations with step halving from a point near the optimum. The curvature is the
 /// differenced observed information at each iterate, or, when `fixed_covariance` is given,
-/// that inverse information throughout (one evaluation over the data per iteration, as used
-/// on large data with a subsample's curvature). Stops when the gradient is well inside the
+/// that inverse information refined after each accepted step by the BFGS secant update (one
+/// evaluation over the data per iteration, as used on large data with a subsample's
+/// curvature: the update corrects the subsample's curvature along the steps taken, so the
+/// steps approach full-data Newton steps). Stops when the gradient is well inside the
 /// convergence tolerance or a step no longer gains: with a Newton decrement (expected gain in
 /// log-likelihood, doubled) below rounding of the log-likelihood, a full step that does not
 /// gain in log-likelihood nor shrink the gradient ends the search without halving.
@@ -470,6 +472,7 @@ fn newton(
     mut point: Point,
     fixed_covariance: Option<&[Vec<f64>]>,
 ) -> Point {
+    let mut secant: Option<Vec<Vec<f64>>> = fixed_covariance.map(<[Vec<f64>]>::to_vec);
     for _ in 0..MAX_NEWTON {
         if !point.loglik.is_finite() || point.grad.iter().any(|g| !g.is_finite()) {
             break;
@@ -477,8 +480,8 @@ fn newton(
         if max_abs(&point.grad) / data.n_subjects < NEWTON_GRADIENT_TOLERANCE {
             break;
         }
-        let covariance = match fixed_covariance {
-            Some(c) => c.to_vec(),
+        let covariance = match &secant {
+            Some(c) => c.clone(),
             None => match invert_positive_definite(&information(family, &point.theta, data)) {
                 Some(c) => c,
                 None => break,
@@ -528,11 +531,55 @@ fn newton(
             scale *= 0.5;
         }
         match accepted {
-            Some(trial) => point = trial,
+            Some(trial) => {
+                // The gradient keeps its digits below the rounding floor of the log-likelihood;
+                // a change in it near its own rounding (relative 1e-16 of n terms) is skipped.
+                let change = point
+                    .grad
+                    .iter()
+                    .zip(&trial.grad)
+                    .fold(0.0f64, |m, (a, b)| m.max((a - b).abs()));
+                if let Some(c) = secant.as_mut() {
+                    if change / data.n_subjects > SECANT_MIN_CHANGE {
+                        secant_update(c, &point, &trial);
+                    }
+                }
+                point = trial;
+            }
             None => break,
         }
     }
     point
+}
+
+/// Smallest change in the gradient per subject that the secant update uses: well above the
+/// rounding of a gradient summed over the data (about 1e-16 per subject).
+const SECANT_MIN_CHANGE: f64 = 1e-13;
+
+/// BFGS update of `c`, an inverse Hessian of the negative log-likelihood, from the step
+/// between two evaluated points (Nocedal and Wright, 2006, eq. 6.17); skipped unless the
+/// curvature along the step is positive, so `c` stays positive definite.
+fn secant_update(c: &mut [Vec<f64>], from: &Point, to: &Point) {
+    let k = c.len();
+    let s: Vec<f64> = (0..k).map(|i| to.theta[i] - from.theta[i]).collect();
+    // Change in the gradient of the negative log-likelihood.
+    let y: Vec<f64> = (0..k).map(|i| from.grad[i] - to.grad[i]).collect();
+    let sy: f64 = s.iter().zip(&y).map(|(a, b)| a * b).sum();
+    if !(sy > 0.0 && sy.is_finite()) {
+        return;
+    }
+    let rho = 1.0 / sy;
+    let cy: Vec<f64> = c
+        .iter()
+        .map(|row| row.iter().zip(&y).map(|(a, b)| a * b).sum())
+        .collect();
+    let ycy: f64 = y.iter().zip(&cy).map(|(a, b)| a * b).sum();
+    let ss = rho * rho * ycy + rho;
+    for i in 0..k {
+        for j in 0..k {
+            c[i][j] += ss * s[i] * s[j] - rho * (s[i] * cy[j] + cy[i] * s[j]);
+        }
+    }
 }
 
 /// Distinct times above which a family is fitted first to a subsample (see [`FitData::subsample`]).
