@@ -351,6 +351,8 @@ fn adjustments(file: &str, place: Place, raw: &RawAdjust, base: &Path) -> Result
         time_unit: None,
         cuts: None,
         knots: None,
+        model: None,
+        at: None,
         allow_unconverged: false,
         hazard_ratio: raw.hazard_ratio.map(|x| x.to_string()),
         acceleration_factor: raw.acceleration_factor.map(|x| x.to_string()),

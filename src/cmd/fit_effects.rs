@@ -28,6 +28,8 @@ pub struct EffectsArgs {
 pub struct EffectsResult {
     /// The design they were fitted to.
     pub design: Design,
+    /// Its covariates (with the levels of text ones).
+    pub covariates: Vec<design::Covariate>,
     /// The Cox model and its test.
     pub cox: CoxSummary,
     /// Per term: (time, scaled Schoenfeld residual) of each event, for the plot.
@@ -71,13 +73,15 @@ pub fn prepare(
         zero_time,
     };
     let bytes = read_file(data)?;
-    let design = design::parse(&data.display().to_string(), &bytes, &options)?;
+    let (design, covariates) =
+        design::parse_with_covariates(&data.display().to_string(), &bytes, &options)?;
     let (_, test, cox) = report::analyse(&design);
     let scaled = (0..design.p())
         .map(|j| test.scaled.iter().map(|(t, _, s)| (*t, s[j])).collect())
         .collect();
     Ok(Some(EffectsResult {
         design,
+        covariates,
         cox,
         scaled,
     }))
