@@ -400,3 +400,53 @@ fn draws_with_covariates_standardise_every_draw() {
         .unwrap()
         .contains("--bootstrap"));
 }
+
+#[test]
+fn run_effects_table_fits_the_joint_models_and_lists_them_in_the_report() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::copy(va_lung(), dir.path().join("va.csv")).unwrap();
+    std::fs::write(
+        dir.path().join("analysis.toml"),
+        "[data]\nfile = \"va.csv\"\ntime_unit = \"days\"\narm_column = \"arm\"\n\n[fit]\nfamilies = [\"weibull\"]\nchoose = \"weibull\"\narm = \"test\"\n\n[tunnels]\ncycle = \"30 days\"\ncount = 6\nhorizon = \"3 years\"\n\n[effects]\ncovariates = [\"karnofsky\"]\n",
+    )
+    .unwrap();
+    let printed = tunnelcast(dir.path())
+        .args(["run", "analysis.toml", "--out", "out"])
+        .output()
+        .unwrap();
+    assert!(
+        printed.status.success(),
+        "{}",
+        String::from_utf8_lossy(&printed.stderr)
+    );
+    let from_run: Value =
+        serde_json::from_slice(&std::fs::read(dir.path().join("out/fit.json")).unwrap()).unwrap();
+    // The same models as `fit --effects` on the same data (one code path, same numbers).
+    let from_fit = fit(dir.path(), "va.csv", "days", Some("karnofsky"));
+    for key in ["effects", "cox", "effects_design"] {
+        assert!(!from_run[key].is_null(), "{key}");
+        assert_eq!(from_run[key], from_fit[key], "{key}");
+    }
+    let html = std::fs::read_to_string(dir.path().join("out/report.html")).unwrap();
+    assert!(
+        html.contains("<section id=\"effects\">"),
+        "no effects section"
+    );
+    assert!(html.contains("Joint models across arms"));
+    assert!(html.contains("Test of proportional hazards"));
+    // Without an arm column, [effects] is a one-line error.
+    std::fs::write(
+        dir.path().join("bad.toml"),
+        "[data]\nfile = \"va.csv\"\ntime_unit = \"days\"\n\n[tunnels]\ncycle = \"30 days\"\ncount = 6\n\n[effects]\n",
+    )
+    .unwrap();
+    let out = tunnelcast(dir.path())
+        .args(["run", "bad.toml", "--out", "bad"])
+        .assert()
+        .code(2)
+        .get_output()
+        .clone();
+    let err = String::from_utf8(out.stderr).unwrap();
+    assert!(err.contains("[effects] needs [data] arm_column"), "{err}");
+    assert!(!dir.path().join("bad").exists());
+}
