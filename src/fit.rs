@@ -1140,6 +1140,45 @@ mod tests {
     }
 
     #[test]
+    fn secant_update_meets_the_secant_equation() {
+        // BFGS (Nocedal and Wright, 2006, eq. 6.17): the updated inverse Hessian maps the
+        // change in the gradient of -loglik onto the step, C·y = s, and stays symmetric.
+        let mut c = vec![
+            vec![2.0, 0.3, 0.1],
+            vec![0.3, 1.0, -0.2],
+            vec![0.1, -0.2, 0.5],
+        ];
+        let from = Point {
+            theta: vec![1.0, 2.0, 3.0],
+            loglik: -10.0,
+            grad: vec![0.5, -0.4, 0.9],
+        };
+        let to = Point {
+            theta: vec![1.2, 1.9, 3.05],
+            loglik: -9.0,
+            grad: vec![0.1, -0.3, 0.6],
+        };
+        secant_update(&mut c, &from, &to);
+        let s = [0.2, -0.1, 0.05];
+        let y = [0.4, -0.1, 0.3];
+        for i in 0..3 {
+            let cy: f64 = (0..3).map(|j| c[i][j] * y[j]).sum();
+            assert!((cy - s[i]).abs() < 1e-12, "row {i}: {cy} vs {}", s[i]);
+            for j in 0..3 {
+                assert!((c[i][j] - c[j][i]).abs() < 1e-15);
+            }
+        }
+        // Negative curvature along the step: no update.
+        let before = c.clone();
+        let away = Point {
+            grad: vec![0.9, -0.5, 1.2],
+            ..to.clone()
+        };
+        secant_update(&mut c, &from, &away);
+        assert_eq!(c, before);
+    }
+
+    #[test]
     fn collapses_identical_records() {
         let data = FitData::from_records(&records(&[
             (1.0, true),
