@@ -381,6 +381,8 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     }
     h.push_str("</section>\n");
 
+    h.push_str(&plausibility_section(result, figures));
+
     // Chosen curve.
     let c = &result.chosen;
     let family = result.curve.family;
@@ -391,8 +393,11 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     if let Some(arm) = &c.arm {
         facts.push(("arm", arm.clone()));
     }
+    facts.push(("chosen by", result.chosen_by.clone()));
+    if let Some(reason) = &result.reason {
+        facts.push(("why", reason.clone()));
+    }
     facts.extend([
-        ("chosen by", result.chosen_by.clone()),
         ("parameter time unit", unit.name().to_string()),
         (
             "log-likelihood",
@@ -628,6 +633,143 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     let listed = contents(&h[contents_at..]);
     h.insert_str(contents_at, &listed);
     Ok(h)
+}
+
+/// The plausibility section: the printed comparison (ranks, ΔAIC, AIC weights, landmarks,
+/// means, targets, population) as `run` prints it, the landmark intervals per fit, the targets
+/// and each arm's plot against the general population.
+fn plausibility_section(result: &RunResult, figures: &[Figure]) -> String {
+    use crate::plausibility::comparison::{
+        population_text, survival_text, target_flag, years_label,
+    };
+    let fits = &result.fits;
+    let mut h =
+        String::from("<section id=\"plausibility\">\n<h2>Plausibility of the extrapolation</h2>\n");
+    h.push_str(&guide("Read across each family's row: survival at the landmarks and the mean are what the extrapolation implies for patients; a fit outside an external target, or one whose hazard falls below the general population's, needs a reason before it is used."));
+    let display = crate::plausibility::comparison::default_display_unit(fits);
+    h.push_str(&format!(
+        "<p>The comparison as <code>tunnelcast run</code> prints it (times in {display}):</p>\n<pre id=\"comparison\">{}</pre>\n",
+        escape(&crate::plausibility::comparison::render(fits, display))
+    ));
+    let Some(record) = &fits.plausibility else {
+        h.push_str("</section>\n");
+        return h;
+    };
+    let how = if record.interval == "draws" {
+        "2.5–97.5 percentiles of parameter draws"
+    } else {
+        "delta method on ln(−ln S), from each fit's covariance"
+    };
+    h.push_str(&format!(
+        "<p>Survival at each landmark (years since entry) with its 95% interval ({how}); RMST: mean restricted to the arm's longest follow-up; mean: restricted to {} years; both in years. Also in <span class=\"file\">fit.json</span> (<code>landmarks</code>, <code>rmst_followup</code>, <code>mean_years</code>).</p>\n",
+        crate::format::readable(record.mean_horizon_years)
+    ));
+    let has_targets = fits.fits.iter().any(|f| !f.targets.is_empty());
+    let has_population = fits
+        .fits
+        .iter()
+        .any(|f| f.below_population_from_years.is_some());
+    for arm in &fits.data.arms {
+        let label = arm.arm.as_deref();
+        if let Some(name) = label {
+            h.push_str(&format!("<h3>Arm {}</h3>\n", escape(name)));
+        }
+        let mut header: Vec<String> = vec!["family".into()];
+        header.extend(
+            record
+                .landmarks_years
+                .iter()
+                .map(|y| format!("S({}) (95% CI)", years_label(*y))),
+        );
+        header.extend(["RMST (y)".to_string(), "mean (y)".to_string()]);
+        if has_targets {
+            header.push("targets".into());
+        }
+        if has_population {
+            header.push("below population from (y)".into());
+        }
+        let rows: Vec<Vec<String>> = fits
+            .fits
+            .iter()
+            .filter(|f| f.arm.as_deref() == label && f.converged)
+            .map(|f| {
+                let mut row = vec![f.family.clone()];
+                for (i, _) in record.landmarks_years.iter().enumerate() {
+                    row.push(match f.landmarks.get(i) {
+                        Some(l) => match (l.lower, l.upper) {
+                            (Some(lo), Some(hi)) => format!(
+                                "{} ({} to {})",
+                                survival_text(l.survival),
+                                survival_text(lo),
+                                survival_text(hi)
+                            ),
+                            _ => survival_text(l.survival),
+                        },
+                        None => "NA".into(),
+                    });
+                }
+                let opt = |x: Option<f64>| {
+                    x.map(|v| crate::format::fixed(v, 2))
+                        .unwrap_or_else(|| "NA".into())
+                };
+                row.push(opt(f.rmst_followup));
+                row.push(opt(f.mean_years));
+                if has_targets {
+                    row.push(target_flag(f));
+                }
+                if has_population {
+                    row.push(population_text(f, record.mean_horizon_years));
+                }
+                row
+            })
+            .collect();
+        let header_refs: Vec<&str> = header.iter().map(String::as_str).collect();
+        let numeric: Vec<bool> = (0..header.len()).map(|i| i > 0).collect();
+        h.push_str(&text_table(
+            &format!("table-landmarks{}", crate::plot::file_stem(label)),
+            &header_refs,
+            &rows,
+            &numeric,
+        ));
+        h.push_str(&figure(
+            figures,
+            &format!("population{}.svg", crate::plot::file_stem(label)),
+            "Each fit's survival (and, in the arm carried forward, the chosen curve with its adjustments, in black) beside general-population survival from the same age at entry (thick grey line). A curve above the population's line implies patients outlive people of the same age in general.",
+        ));
+    }
+    if !record.targets.is_empty() {
+        h.push_str("<h3>External targets</h3>\n");
+        let rows: Vec<Vec<String>> = record
+            .targets
+            .iter()
+            .map(|t| {
+                vec![
+                    t.time.clone(),
+                    t.arm.clone().unwrap_or_else(|| "every arm".into()),
+                    crate::format::readable(t.lower),
+                    crate::format::readable(t.upper),
+                    t.source.clone().unwrap_or_default(),
+                ]
+            })
+            .collect();
+        h.push_str(&text_table(
+            "table-targets",
+            &["time", "arm", "lower", "upper", "source"],
+            &rows,
+            &[false, false, true, true, false],
+        ));
+    }
+    if let Some(p) = &record.population {
+        h.push_str(&format!(
+            "<p>General population: life table <span class=\"file\">{}</span> (column {}, SHA-256 <code>{}</code>), age {} at entry. “Below population from” is the first time after the end of follow-up at which a fit's hazard is below the population's hazard at the same age (constant within each year of age at −ln(1 − qx)); past the table's last age its last hazard is held.</p>\n",
+            escape(&p.file),
+            escape(&p.column),
+            escape(&p.sha256),
+            crate::format::readable(p.start_age)
+        ));
+    }
+    h.push_str("</section>\n");
+    h
 }
 
 /// The payoff section (`[payoffs]`): the schedule, the per-tunnel payoff columns, the method

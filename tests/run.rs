@@ -188,8 +188,9 @@ fn run_writes_every_output_and_the_report_matches_the_json() {
         || n.attribute("href").is_some_and(|h| !h.starts_with('#'))));
     // Every plot of the run is inline.
     let svgs = doc.descendants().filter(|n| n.has_tag_name("svg")).count();
-    // Fits per arm (3 each), tunnels, horizon and the payoff accrual plot.
-    assert_eq!(svgs, 3 * 2 + 3);
+    // Fits per arm (3 each, and the population plot: the demo has a life table), tunnels,
+    // horizon and the payoff accrual plot.
+    assert_eq!(svgs, 4 * 2 + 3);
 
     // Tunnel table: every shown cell equals tunnels.json.
     let tunnels = read_table(&out.join("tunnels.json"));

@@ -230,6 +230,12 @@ pub fn run(args: FitArgs) -> Result<()> {
         for (name, bytes) in crate::plot::fit_figures(&data, &file, 3.0 * longest)? {
             staged.write(&name, &bytes)?;
         }
+        // With a life table: every fit against the general population of the same age.
+        for (name, bytes) in
+            crate::plot::population_figures(&file, &plausibility, display, None, &[])?
+        {
+            staged.write(&name, &bytes)?;
+        }
         if let Some(effects) = &effects {
             for (name, bytes) in super::fit_effects::figures(effects, &data, time_unit)? {
                 staged.write(&name, &bytes)?;
