@@ -47,7 +47,8 @@ pub struct FitArgs {
     #[arg(long)]
     pub json: Option<PathBuf>,
     /// Write plots (Kaplan–Meier with fitted curves, hazards, straight-line diagnostics; SVG
-    /// and PNG) into this folder, extrapolated to three times the longest follow-up.
+    /// and PNG) into this folder, extrapolated to three times the longest follow-up; with
+    /// --background also every fit against general-population survival (population*.svg).
     #[arg(long)]
     pub plots: Option<PathBuf>,
     /// Field delimiter (detected from the header when not given).
