@@ -203,7 +203,7 @@ figcaption{{font-size:11px;color:{muted}}}
 .file{{font-family:'DejaVu Sans Mono',monospace;font-size:10.5px}}
 pre{{background:{tint};border:1px solid {rule};padding:6px 8px;font-size:10.5px;white-space:pre-wrap}}
 code{{font-family:'DejaVu Sans Mono',monospace}}
-@media print{{body{{max-width:none;padding:0}}h2{{break-after:avoid}}figure,table{{break-inside:avoid}}}}
+@media print{{body{{max-width:none;padding:0}}section+section{{break-before:page}}h2{{break-after:avoid;border-top:none}}figure,table{{break-inside:avoid}}}}
 "
     )
 }
@@ -238,6 +238,8 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
         escape(crate::CAUTION)
     ));
     let contents_at = h.len();
+
+    h.push_str(&question_section(result));
 
     // Data summary.
     h.push_str("<section id=\"data\">\n<h2>Data</h2>\n");
@@ -292,6 +294,21 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     if let Some(section) = rebuild_section(result, figures) {
         h.push_str(&section);
     }
+
+    // Plots.
+    h.push_str("<section id=\"plots\">\n<h2>Fitted curves against the data</h2>\n");
+    h.push_str(&guide("Left of the end-of-follow-up line, compare each fitted curve with the Kaplan–Meier estimate; right of it the curves differ by assumption alone. In the straight-line diagnostics, points on a straight line favour the family that is straight on that scale."));
+    for arm in &fits.data.arms {
+        let label = arm.arm.as_deref();
+        let suffix = crate::plot::file_stem(label);
+        if let Some(name) = label {
+            h.push_str(&format!("<h3>Arm {}</h3>\n", escape(name)));
+        }
+        h.push_str(&figure(figures, &format!("survival{suffix}.svg"), "Kaplan–Meier estimate with 95% log-log band, censoring ticks and numbers at risk; fitted curves extrapolated to the horizon of the checks."));
+        h.push_str(&figure(figures, &format!("hazard{suffix}.svg"), "Kernel-smoothed Nelson–Aalen hazard (Epanechnikov kernel, Silverman's bandwidth over the event times; shown where the window lies within the event times) beside each fitted hazard."));
+        h.push_str(&figure(figures, &format!("diagnostics{suffix}.svg"), "Straight-line diagnostics: Kaplan–Meier points and each fitted curve on the scale where one family is a straight line in ln t."));
+    }
+    h.push_str("</section>\n");
 
     // Fit comparison.
     h.push_str("<section id=\"fits\">\n<h2>Fit comparison</h2>\n");
@@ -363,21 +380,6 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
             &rows,
             &[false, false, true, true, true, true, true, false],
         ));
-    }
-    h.push_str("</section>\n");
-
-    // Plots.
-    h.push_str("<section id=\"plots\">\n<h2>Fitted curves against the data</h2>\n");
-    h.push_str(&guide("Left of the end-of-follow-up line, compare each fitted curve with the Kaplan–Meier estimate; right of it the curves differ by assumption alone. In the straight-line diagnostics, points on a straight line favour the family that is straight on that scale."));
-    for arm in &fits.data.arms {
-        let label = arm.arm.as_deref();
-        let suffix = crate::plot::file_stem(label);
-        if let Some(name) = label {
-            h.push_str(&format!("<h3>Arm {}</h3>\n", escape(name)));
-        }
-        h.push_str(&figure(figures, &format!("survival{suffix}.svg"), "Kaplan–Meier estimate with 95% log-log band, censoring ticks and numbers at risk; fitted curves extrapolated to the horizon of the checks."));
-        h.push_str(&figure(figures, &format!("hazard{suffix}.svg"), "Kernel-smoothed Nelson–Aalen hazard (Epanechnikov kernel, Silverman's bandwidth over the event times; shown where the window lies within the event times) beside each fitted hazard."));
-        h.push_str(&figure(figures, &format!("diagnostics{suffix}.svg"), "Straight-line diagnostics: Kaplan–Meier points and each fitted curve on the scale where one family is a straight line in ln t."));
     }
     h.push_str("</section>\n");
 
@@ -453,6 +455,32 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     }
     h.push_str("</section>\n");
 
+    // Adjustments: the curve carried forward after the adjustments.
+    h.push_str("<section id=\"adjustments\">\n<h2>Adjustments</h2>\n");
+    h.push_str(&guide("Every setting listed here changes the fitted curve before it is cut into cycles; the same list is in each output file's provenance."));
+    match &result.adjusted {
+        None => h.push_str("<p>None: the chosen curve is used as fitted (no hazard ratio, acceleration factor or background mortality was requested).</p>\n"),
+        Some(adjusted) => {
+            h.push_str("<p>The tunnel table, the truncation and the within-cycle checks use the chosen curve with these adjustments (<code>[adjust]</code> of the analysis file):</p>\n<dl>\n");
+            // The floor lines over the tunnel table's count, as its files record them.
+            let floor = result.floor_report(result.tunnels.rows.len());
+            for (k, v) in adjusted.metadata.iter().chain(&floor) {
+                h.push_str(&format!("<dt>{}</dt><dd><code>{}</code></dd>\n", escape(k), escape(v)));
+            }
+            h.push_str("</dl>\n");
+            for w in &adjusted.warnings {
+                h.push_str(&format!("<p class=\"warning\">Warning: {}</p>\n", escape(w)));
+            }
+            let stem = format!("population{}", crate::plot::file_stem(c.arm.as_deref()));
+            if figures.iter().any(|(n, _)| *n == format!("{stem}.svg")) {
+                h.push_str(&format!(
+                    "<p>The adjusted curve is drawn in black beside the unadjusted fits and general-population survival in <a href=\"#fig-{}\">the population plot</a> of the plausibility section.</p>\n",
+                    escape(&stem)
+                ));
+            }
+        }
+    }
+    h.push_str("</section>\n");
     // Tunnel table.
     let t = &result.tunnels;
     let doc = result.tunnel_document();
@@ -538,25 +566,6 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
         h.push_str(&section);
     }
 
-    // Adjustments and draws.
-    h.push_str("<section id=\"adjustments\">\n<h2>Adjustments</h2>\n");
-    h.push_str(&guide("Every setting listed here changes the fitted curve before it is cut into cycles; the same list is in each output file's provenance."));
-    match &result.adjusted {
-        None => h.push_str("<p>None: the chosen curve is used as fitted (no hazard ratio, acceleration factor or background mortality was requested).</p>\n"),
-        Some(adjusted) => {
-            h.push_str("<p>The tunnel table, the truncation and the within-cycle checks use the chosen curve with these adjustments (<code>[adjust]</code> of the analysis file):</p>\n<dl>\n");
-            // The floor lines over the tunnel table's count, as its files record them.
-            let floor = result.floor_report(result.tunnels.rows.len());
-            for (k, v) in adjusted.metadata.iter().chain(&floor) {
-                h.push_str(&format!("<dt>{}</dt><dd><code>{}</code></dd>\n", escape(k), escape(v)));
-            }
-            h.push_str("</dl>\n");
-            for w in &adjusted.warnings {
-                h.push_str(&format!("<p class=\"warning\">Warning: {}</p>\n", escape(w)));
-            }
-        }
-    }
-    h.push_str("</section>\n");
     h.push_str("<section id=\"draws\">\n<h2>Uncertainty draws</h2>\n");
     h.push_str(&guide("The spread between the 2.5% and 97.5% columns is parameter uncertainty only: it does not cover the choice of family or of the extrapolation."));
     match (a.draws, result.draws_document()) {
@@ -633,6 +642,66 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     let listed = contents(&h[contents_at..]);
     h.insert_str(contents_at, &listed);
     Ok(h)
+}
+
+/// The question the analysis answers: the population (title), the arm the tunnel table is
+/// for, where the data come from, the general population compared with, the curve chosen.
+fn question_section(result: &RunResult) -> String {
+    let a = &result.analysis;
+    let mut h = String::from("<section id=\"question\">\n<h2>The question</h2>\n");
+    h.push_str(&guide("What this analysis is for: whose survival is extrapolated, from which data, and which curve is carried into the tunnel states. Every later section answers part of it."));
+    let mut facts: Vec<(&str, String)> = vec![(
+        "population",
+        a.title
+            .clone()
+            .unwrap_or_else(|| "not stated (give title = \"...\" in the analysis file)".into()),
+    )];
+    facts.push((
+        "arm modelled",
+        result
+            .chosen
+            .arm
+            .clone()
+            .unwrap_or_else(|| "the only arm of the data".into()),
+    ));
+    let source = match &a.rebuild {
+        Some(r) => format!(
+            "{} (rebuilt from the digitised curve {}); {} subjects, {} events; time in {}",
+            a.data_name, r.curve.name, result.fits.data.n, result.fits.data.events, a.time_unit
+        ),
+        None => format!(
+            "{}; {} subjects, {} events; time in {}",
+            a.data_name, result.fits.data.n, result.fits.data.events, a.time_unit
+        ),
+    };
+    facts.push(("data source", source));
+    if let Some(p) = result
+        .fits
+        .plausibility
+        .as_ref()
+        .and_then(|r| r.population.as_ref())
+    {
+        facts.push((
+            "general population",
+            format!(
+                "{} ({}), age {} at entry",
+                p.file,
+                p.column,
+                crate::format::readable(p.start_age)
+            ),
+        ));
+    }
+    let mut chosen = format!("{} ({})", result.curve.family.name(), result.chosen_by);
+    if let Some(reason) = &result.reason {
+        chosen.push_str(&format!(": {reason}"));
+    }
+    facts.push(("curve carried forward", chosen));
+    h.push_str("<dl>\n");
+    for (k, v) in facts {
+        h.push_str(&format!("<dt>{}</dt><dd>{}</dd>\n", escape(k), escape(&v)));
+    }
+    h.push_str("</dl>\n</section>\n");
+    h
 }
 
 /// The plausibility section: the printed comparison (ranks, ΔAIC, AIC weights, landmarks,

@@ -121,36 +121,44 @@ fn run_writes_every_output_and_the_report_matches_the_json() {
         },
     )
     .expect("report.html is well-formed");
-    for id in [
+    // The reviewer's order (issue 18): the question, the data and Kaplan–Meier curve, the
+    // comparison, plausibility, the choice, the adjusted curve, tunnels, horizon checks,
+    // uncertainty, reproducibility.
+    let order = [
+        "question",
         "data",
-        "fits",
         "plots",
+        "fits",
+        "plausibility",
         "chosen",
+        "adjustments",
         "tunnels",
         "truncation",
         "within-cycle",
-        "adjustments",
         "draws",
         "caution",
         "reproducibility",
-    ] {
-        assert!(
-            doc.descendants()
-                .any(|n| n.has_tag_name("section") && n.attribute("id") == Some(id)),
-            "section {id} missing"
-        );
-    }
+    ];
+    let found: Vec<&str> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("section"))
+        .filter_map(|n| n.attribute("id"))
+        .filter(|id| order.contains(id))
+        .collect();
+    assert_eq!(found, order, "sections missing or out of order");
     // Each of these sections opens with its one-line reading guide.
     for id in [
+        "question",
         "data",
-        "fits",
         "plots",
+        "fits",
+        "plausibility",
         "chosen",
+        "adjustments",
         "tunnels",
         "truncation",
         "within-cycle",
         "payoffs",
-        "adjustments",
         "draws",
         "caution",
         "reproducibility",
