@@ -761,6 +761,16 @@ pub fn compute(
         }
     };
     let mut fits = fit_dataset(&data, &analysis.families, analysis.time_unit, None);
+    if let (Some(effects), Some(arm_col)) = (&analysis.effects, &analysis.arm_column) {
+        let columns = (&*analysis.time_column, &*analysis.event_column, &**arm_col);
+        crate::cmd::fit_effects::attach(
+            &mut fits,
+            effects,
+            &analysis.data_name,
+            data_bytes,
+            columns,
+        )?;
+    }
     let plausibility = plausibility_settings(&analysis, &data, lifetable_bytes)?;
     crate::plausibility::annotate(&mut fits, &plausibility);
     let in_arm = |f: &&FamilyFit| f.arm == arm;
