@@ -268,6 +268,10 @@ pub struct FamilyFit {
     pub gradient_max: Option<f64>,
     /// Why the family did not converge, when it did not.
     pub message: Option<String>,
+    /// A remark on a converged fit that changes how to read it (a cure model whose cured
+    /// fraction is at its boundary 0); absent otherwise.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub note: Option<String>,
     /// Settings of a configured family (cut points, spline scale and knots); absent otherwise.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub settings: Option<families::FamilySettings>,
@@ -680,7 +684,14 @@ fn information_forward(
 
 /// Fits one family to collapsed data; never panics, reports failure in the result.
 pub fn fit_family(family: &dyn Family, data: &FitData, arm: Option<&str>) -> FamilyFit {
-    let k = family.param_names().len();
+    family
+        .fit_on_boundary(data, arm)
+        .unwrap_or_else(|| fit_family_searched(family, data, arm))
+}
+
+/// [`fit_family`] by the general search (starts, BFGS, Newton), without the family's own
+/// boundary check.
+pub fn fit_family_searched(family: &dyn Family, data: &FitData, arm: Option<&str>) -> FamilyFit {
     let (best, forward_steps) =
         if data.time.len() > SUBSAMPLE_ABOVE && family.closed_form_mle(data).is_none() {
             match maximise_large(family, data) {
@@ -690,6 +701,35 @@ pub fn fit_family(family: &dyn Family, data: &FitData, arm: Option<&str>) -> Fam
         } else {
             (maximise_from_starts(family, data), None)
         };
+    report_fit(family, data, arm, best, forward_steps)
+}
+
+/// [`fit_family`] by Newton steps on the full data (differenced information at each iterate)
+/// from a start the family knows to be close, e.g. a cure model's start from its base
+/// family's fit; no search over starts.
+pub fn fit_family_from(
+    family: &dyn Family,
+    data: &FitData,
+    arm: Option<&str>,
+    start: Vec<f64>,
+) -> FamilyFit {
+    let start = evaluate(family, data, start);
+    let best = start
+        .loglik
+        .is_finite()
+        .then(|| newton(family, data, start, None));
+    report_fit(family, data, arm, best, None)
+}
+
+/// The fit record at the best point found (intervals, covariance, convergence verdict).
+fn report_fit(
+    family: &dyn Family,
+    data: &FitData,
+    arm: Option<&str>,
+    best: Option<Point>,
+    forward_steps: Option<Vec<f64>>,
+) -> FamilyFit {
+    let k = family.param_names().len();
     let names: Vec<String> = family
         .estimation_names()
         .iter()
@@ -854,6 +894,7 @@ fn empty_fit(family: &dyn Family, arm: Option<&str>, why: Option<String>) -> Fam
         median: None,
         gradient_max: None,
         message: why,
+        note: None,
         settings: family.settings(),
         landmarks: Vec::new(),
         rmst_followup: None,
