@@ -633,4 +633,103 @@ mod tests {
             );
         }
     }
+
+    #[test]
+    fn method_names_follow_the_interface() {
+        // The within-cycle methods as the interface contract names them (/work/shared
+        // interface.md, `horizon`: start, end, half-cycle, trapezoid, simpson), in table order.
+        let names: Vec<&str> = METHODS.iter().map(|m| m.name()).collect();
+        assert_eq!(
+            names,
+            ["start", "end", "half-cycle", "trapezoid", "simpson"]
+        );
+    }
+
+    #[test]
+    fn default_horizon_stops_at_the_first_boundary_below_the_threshold() {
+        // Exponential, 0.05 a month: S(t) < 0.001 once t > ln(1000)/0.05 = 138.155 months
+        // (by hand), so the first monthly boundary below is 139 and the first yearly one is
+        // year 12 (144 months).
+        let curve = ParametricCurve::new(&Exponential, vec![0.05], TimeUnit::Months).unwrap();
+        assert!((1000f64.ln() / 0.05 - 138.155).abs() < 1e-3);
+        assert_eq!(default_horizon(&curve, months(1.0)), (139, true));
+        let year = Duration {
+            value: 1.0,
+            unit: TimeUnit::Years,
+        };
+        assert_eq!(default_horizon(&curve, year), (12, true));
+        // A curve that never falls below: the 100-year cap, in whole cycles (100 yearly, and
+        // 100·365.25/7 = 5217.9 → 5218 weekly cycles, by hand).
+        let slow = ParametricCurve::new(&Exponential, vec![1e-6], TimeUnit::Months).unwrap();
+        assert_eq!(default_horizon(&slow, year), (100, false));
+        let week = Duration {
+            value: 1.0,
+            unit: TimeUnit::Weeks,
+        };
+        assert_eq!(default_horizon(&slow, week), (5218, false));
+    }
+
+    #[test]
+    fn discounted_columns_match_closed_forms() {
+        // Exponential hazard λ a month discounted at r a year is an exponential with rate
+        // μ = λ + ln(1 + r)/12 a month (calculus, by hand): exact ∫₀^T = (1 - e^(-μT))/μ;
+        // the start rule is a geometric sum Σ_{j<n} e^(-μj)·h, the trapezoid rule the mean of
+        // the start and end sums. Checked with monthly cycles and, for the unit conversions,
+        // yearly cycles (μ and time in years, μ_y = 12λ + ln(1 + r)).
+        let (rate, r) = (0.05, 0.035);
+        let curve = ParametricCurve::new(&Exponential, vec![rate], TimeUnit::Months).unwrap();
+        let cases = [
+            (
+                months(1.0),
+                120,
+                rate + (1.0f64 + r).ln() / 12.0,
+                1.0 / 12.0,
+            ),
+            (
+                Duration {
+                    value: 1.0,
+                    unit: TimeUnit::Years,
+                },
+                10,
+                12.0 * rate + (1.0f64 + r).ln(),
+                1.0,
+            ),
+        ];
+        for (cycle, n, mu, years_per_cycle) in cases {
+            // μ per cycle, and the sums in cycles converted to years at the end.
+            let mu_c = mu * cycle.value;
+            let exact = (1.0 - (-mu_c * n as f64).exp()) / mu_c * years_per_cycle;
+            let start: f64 =
+                (0..n).map(|j| (-mu_c * j as f64).exp()).sum::<f64>() * years_per_cycle;
+            let end: f64 = (1..=n).map(|j| (-mu_c * j as f64).exp()).sum::<f64>() * years_per_cycle;
+            let rows = within_cycle_table(&curve, cycle, n, r);
+            for (method, by_hand) in [
+                (Method::Start, start),
+                (Method::End, end),
+                (Method::Trapezoid, 0.5 * (start + end)),
+                (Method::HalfCycle, 0.5 * (start + end)),
+            ] {
+                let row = rows.iter().find(|row| row.method == method).unwrap();
+                assert!(
+                    (row.discounted_exact - exact).abs() < 1e-9 * exact,
+                    "{method:?}: {} vs {exact}",
+                    row.discounted_exact
+                );
+                assert!(
+                    (row.discounted_life_years - by_hand).abs() < 1e-12 * by_hand,
+                    "{method:?}: {} vs {by_hand}",
+                    row.discounted_life_years
+                );
+                assert!((row.discounted_error - (by_hand - exact)).abs() < 1e-9 * exact);
+                let rel = (by_hand - exact) / exact;
+                assert!(
+                    (row.discounted_rel_error - rel).abs() < 1e-9,
+                    "{method:?}: {} vs {rel}",
+                    row.discounted_rel_error
+                );
+                // Discounting lowers the life-years.
+                assert!(row.discounted_life_years < row.life_years);
+            }
+        }
+    }
 }
