@@ -449,3 +449,30 @@ pub fn select(
         warnings,
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn standardised_log_survival_stays_finite_where_every_curve_underflows() {
+        // Weibull PH with shape 1, scale 1, one coefficient 1: ln S(t | x) = −t·e^x. At t = 1000
+        // with x = 0 and x = ln 1.001 the two curves are e^−1000 and e^−1001 (both 0 in f64);
+        // their mean is e^−1000·(1 + e^−1)/2, so ln S̄ = −1000 + ln((1 + e^−1)/2) (by hand).
+        let curve = JointCurve {
+            model: Model::Ph,
+            theta: vec![0.0, 0.0, 1.0],
+            rows: vec![(0.5f64.ln(), vec![0.0]), (0.5f64.ln(), vec![1.001f64.ln()])],
+            unit: TimeUnit::Months,
+            label: "test".into(),
+        };
+        let want = -1000.0 + ((1.0 + (-1.0f64).exp()) / 2.0).ln();
+        let got = curve.log_survival(1000.0);
+        assert!((got - want).abs() < 1e-9, "{got} vs {want}");
+        // Hazard of the mixture: Σ wᵢ Sᵢ hᵢ / Σ wᵢ Sᵢ with hᵢ = e^xᵢ (by hand), at t = 2.
+        let (s1, s2) = ((-2.0f64).exp(), (-2.0 * 1.001f64).exp());
+        let want = (s1 + s2 * 1.001) / (s1 + s2);
+        let got = curve.hazard(2.0);
+        assert!((got - want).abs() < 1e-7 * want, "{got} vs {want}");
+    }
+}
