@@ -90,6 +90,15 @@ struct RawPayoffs {
     discount: Option<Spanned<f64>>,
 }
 
+/// `[effects]`: the models across arms of `fit --effects` (Cox model, test of proportional
+/// hazards, joint models), fitted beside the separate fits and listed in the report.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawEffects {
+    reference: Option<String>,
+    covariates: Option<Vec<String>>,
+}
+
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
 struct RawAnalysis {
@@ -101,6 +110,7 @@ struct RawAnalysis {
     adjust: Option<Spanned<RawAdjust>>,
     draws: Option<Spanned<RawDraws>>,
     payoffs: Option<RawPayoffs>,
+    effects: Option<RawEffects>,
 }
 
 /// `[payoffs]` settings: the payoff file and the annual discount rate of its figures.
@@ -287,6 +297,8 @@ pub struct Analysis {
     /// it): names the table in every output, message and warning, as the other commands name
     /// it as given on the command line (the file is read from `adjustments`' resolved path).
     pub background_name: Option<String>,
+    /// Models across arms from `[effects]`, if any (as `fit --effects` options).
+    pub effects: Option<crate::cmd::fit_effects::EffectsArgs>,
     /// Uncertainty draws from `[draws]`, if any.
     pub draws: Option<DrawSettings>,
     /// `[payoffs]` settings, when given.
@@ -351,6 +363,8 @@ fn adjustments(file: &str, place: Place, raw: &RawAdjust, base: &Path) -> Result
         time_unit: None,
         cuts: None,
         knots: None,
+        model: None,
+        at: None,
         allow_unconverged: false,
         hazard_ratio: raw.hazard_ratio.map(|x| x.to_string()),
         acceleration_factor: raw.acceleration_factor.map(|x| x.to_string()),
@@ -739,7 +753,21 @@ impl Analysis {
             }
         };
 
+        let effects = match raw.effects {
+            None => None,
+            Some(_) if data.arm_column.is_none() => {
+                return Err(Error::Usage(format!(
+                    "{file}: [effects] needs [data] arm_column naming the treatment arm"
+                )))
+            }
+            Some(e) => Some(crate::cmd::fit_effects::EffectsArgs {
+                effects: true,
+                reference: e.reference,
+                covariates: e.covariates.unwrap_or_default(),
+            }),
+        };
         Ok(Analysis {
+            effects,
             file: file.to_string(),
             text: text.to_string(),
             title: raw.title,

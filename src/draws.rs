@@ -126,31 +126,53 @@ impl Sampler {
                 cov.scale
             ));
         }
-        let square = cov.matrix.len() == k && cov.matrix.iter().all(|r| r.len() == k);
-        if !square || fit.estimates.len() != k {
+        if fit.estimates.len() != k {
             return Err(format!(
                 "family {name}: expected {k} estimates and a {k}×{k} covariance"
             ));
         }
-        if fit.estimates.iter().any(|x| !x.is_finite()) {
-            return Err(format!("family {name}: the estimates are not all finite"));
+        Sampler::from_covariance(
+            family,
+            &format!("family {name}"),
+            &fit.estimates,
+            &cov.matrix,
+        )
+    }
+
+    /// The sampler of estimates `mean` with covariance `matrix` (estimation scale), e.g. all
+    /// the parameters of a joint model across arms; `what` names the model in errors.
+    pub fn from_covariance(
+        family: &'static dyn Family,
+        what: &str,
+        mean: &[f64],
+        matrix: &[Vec<f64>],
+    ) -> std::result::Result<Sampler, String> {
+        let k = mean.len();
+        let square = matrix.len() == k && matrix.iter().all(|r| r.len() == k);
+        if !square {
+            return Err(format!(
+                "{what}: expected {k} estimates and a {k}×{k} covariance"
+            ));
+        }
+        if mean.iter().any(|x| !x.is_finite()) {
+            return Err(format!("{what}: the estimates are not all finite"));
         }
         let symmetric = (0..k).all(|i| {
             (0..i).all(|j| {
-                let (a, b) = (cov.matrix[i][j], cov.matrix[j][i]);
+                let (a, b) = (matrix[i][j], matrix[j][i]);
                 (a - b).abs() <= 1e-10 * a.abs().max(b.abs()).max(f64::MIN_POSITIVE)
             })
         });
-        let factor = symmetric.then(|| cholesky(&cov.matrix)).flatten();
+        let factor = symmetric.then(|| cholesky(matrix)).flatten();
         let Some(factor) = factor else {
             return Err(format!(
-                "family {name}: the covariance is not symmetric positive definite, so \
+                "{what}: the covariance is not symmetric positive definite, so \
                  parameters cannot be drawn from it"
             ));
         };
         Ok(Sampler {
             family,
-            mean: fit.estimates.clone(),
+            mean: mean.to_vec(),
             factor,
         })
     }

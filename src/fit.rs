@@ -964,6 +964,10 @@ pub struct FitFile {
     /// Joint models across arms (`fit --effects`).
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub effects: Vec<crate::effects::report::JointSummary>,
+    /// What curves from the joint models need: arms, terms, covariates and the distinct
+    /// covariate patterns per arm with counts (`fit --effects`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub effects_design: Option<crate::effects::curve::DesignRecord>,
 }
 
 /// Resolves `--families` (empty = the default families: the standard five plus `generalized-gamma`).
@@ -1043,6 +1047,7 @@ pub fn fit_dataset(
         plausibility: None,
         cox: None,
         effects: Vec::new(),
+        effects_design: None,
     }
 }
 

@@ -366,6 +366,16 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     }
     h.push_str("</section>\n");
 
+    // Models across arms (`[effects]`).
+    if let Some(cox) = &fits.cox {
+        h.push_str("<section id=\"effects\">\n<h2>Effects across arms</h2>\n");
+        h.push_str(&guide("The joint models fit one reference curve and one effect per arm (HR or AF with a 95% interval; a small p against the separate fits says one shape for all arms does not fit). The test of proportional hazards cannot prove them constant, and a test does not settle how the effect behaves beyond follow-up."));
+        let mut text = crate::effects::report::render_joint(&fits.effects);
+        text.push_str(&crate::effects::report::render(cox));
+        h.push_str(&format!("<pre>{}</pre>\n", escape(text.trim())));
+        h.push_str("</section>\n");
+    }
+
     // Plots.
     h.push_str("<section id=\"plots\">\n<h2>Fitted curves against the data</h2>\n");
     h.push_str(&guide("Left of the end-of-follow-up line, compare each fitted curve with the Kaplan–Meier estimate; right of it the curves differ by assumption alone. In the straight-line diagnostics, points on a straight line favour the family that is straight on that scale."));

@@ -473,6 +473,16 @@ impl Adjuster {
         build(base, &self.settings, self.table.clone())
     }
 
+    /// The adjusted curve of any base curve (e.g. an arm's curve from a joint model across
+    /// arms); `family` is the base's family, for the warnings on effects outside it.
+    pub fn adjust_curve(
+        &self,
+        base: Box<dyn Curve>,
+        family: &'static dyn Family,
+    ) -> Result<AdjustedCurve> {
+        build_curve(base, family, &self.settings, self.table.clone())
+    }
+
     /// The adjusted curve of natural parameters `params` of `family` in `unit`: what an
     /// uncertainty draw or a bootstrap refit becomes (errors as text, for the draw's message).
     pub fn adjust_params(
@@ -492,12 +502,22 @@ fn build(
     adjustments: &Adjustments,
     table: Option<LifeTable>,
 ) -> Result<AdjustedCurve> {
-    adjustments.validate()?;
     let family = base.family;
-    let unit = base.unit;
+    build_curve(Box::new(base), family, adjustments, table)
+}
+
+/// [`build`] for any base curve of `family`.
+fn build_curve(
+    base: Box<dyn Curve>,
+    family: &'static dyn Family,
+    adjustments: &Adjustments,
+    table: Option<LifeTable>,
+) -> Result<AdjustedCurve> {
+    adjustments.validate()?;
+    let unit = base.time_unit();
     let mut warnings = plausible::effect_warnings(adjustments);
     let mut metadata = Vec::new();
-    let mut curve: Box<dyn Curve> = Box::new(base);
+    let mut curve: Box<dyn Curve> = base;
     if let Some(ratio) = adjustments.hazard_ratio {
         if !family.proportional_hazards() {
             warnings.push(format!(

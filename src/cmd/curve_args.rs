@@ -13,6 +13,7 @@ use crate::adjust::{
 };
 use crate::cmd::fit::parse_durations;
 use crate::curve::ParametricCurve;
+use crate::effects::curve::JointSource;
 use crate::error::{Error, Result};
 use crate::export::number_text;
 use crate::families::{self, Family, FamilyOptions};
@@ -53,6 +54,14 @@ pub struct CurveArgs {
     /// boundary knots first and last (e.g. "2 months,1 year,5 years"); with --param only.
     #[arg(long, value_name = "DURATIONS", help_heading = "Curve")]
     pub knots: Option<String>,
+    /// Take the arm's curve from the joint model across arms of this kind (ph or aft; family from
+    /// --family, arm from --arm), fitted by `fit --effects`.
+    #[arg(long, value_name = "ph|aft", help_heading = "Curve")]
+    pub model: Option<String>,
+    /// With --model and covariates: fix them, e.g. --at age=60,stage=II (text covariates by
+    /// level); without --at the curve is the mean of the arm's patients' curves (standardised).
+    #[arg(long, value_name = "NAME=VALUE,...", help_heading = "Curve")]
+    pub at: Option<String>,
     /// Use a fit that the fitter marked as not converged (refused by default; recorded in the output).
     #[arg(long, help_heading = "Curve")]
     pub allow_unconverged: bool,
@@ -108,8 +117,8 @@ pub struct BuiltCurve {
     /// The checked adjustments with the life table read once: the one way from a parametric
     /// curve to the adjusted curve, used again for every draw.
     pub adjuster: Adjuster,
-    /// The parametric curve before any adjustment (for draws and parameter listings).
-    pub base: ParametricCurve,
+    /// The curve before any adjustment (for draws and parameter listings).
+    pub base: Base,
     /// The fit it came from, when it came from a fit file (covariance for draws).
     pub fit: Option<FamilyFit>,
     /// Ordered metadata lines: source, file hashes, family, parameters, their time unit, settings.
@@ -132,9 +141,73 @@ impl BuiltCurve {
     }
 }
 
+/// The curve before adjustments: a family's curve, or an arm's curve from a joint model.
+#[derive(Clone)]
+pub enum Base {
+    /// A fitted or published parametric curve.
+    Parametric(ParametricCurve),
+    /// An arm's curve from a joint model across arms (with the model's covariance, for draws).
+    Joint(Box<JointSource>),
+}
+
+impl Base {
+    /// The family (of the reference curve, for a joint model).
+    pub fn family(&self) -> &'static dyn Family {
+        match self {
+            Base::Parametric(p) => p.family,
+            Base::Joint(j) => j.family,
+        }
+    }
+
+    /// Time unit of the parameters.
+    pub fn unit(&self) -> TimeUnit {
+        match self {
+            Base::Parametric(p) => p.unit,
+            Base::Joint(j) => j.curve.unit,
+        }
+    }
+
+    /// The parametric curve, unless the curve comes from a joint model.
+    pub fn parametric(&self) -> Option<&ParametricCurve> {
+        match self {
+            Base::Parametric(p) => Some(p),
+            Base::Joint(_) => None,
+        }
+    }
+
+    /// The adjusted curve of this base.
+    pub fn adjust(&self, adjuster: &Adjuster) -> Result<AdjustedCurve> {
+        match self {
+            Base::Parametric(p) => adjuster.adjust(p.clone()),
+            Base::Joint(j) => adjuster.adjust_curve(Box::new(j.curve.clone()), j.family),
+        }
+    }
+
+    /// Parameter names, values and unit labels for listings: natural parameters of a family,
+    /// the estimation-scale parameters of a joint model.
+    pub fn parameter_rows(&self) -> Vec<(String, f64, String)> {
+        match self {
+            Base::Parametric(p) => p
+                .family
+                .param_names()
+                .iter()
+                .zip(&p.params)
+                .zip(p.family.param_units())
+                .map(|((n, v), kind)| (n.to_string(), *v, kind.label(p.unit)))
+                .collect(),
+            Base::Joint(j) => j
+                .names
+                .iter()
+                .zip(&j.curve.theta)
+                .map(|(n, v)| (n.clone(), *v, "estimation scale".to_string()))
+                .collect(),
+        }
+    }
+}
+
 /// Where a curve came from, before any adjustment.
 struct Source {
-    base: ParametricCurve,
+    base: Base,
     fit: Option<FamilyFit>,
     metadata: Vec<(String, String)>,
     warnings: Vec<String>,
@@ -194,21 +267,25 @@ impl CurveArgs {
             None => self.curve_from_params(family)?,
         };
         // The curve's own family: for configured families (cut points, knots) the fit file's.
-        let family = base.family;
+        let family = base.family();
         metadata.push(("family".into(), family.name().into()));
-        metadata.push(("parameters".into(), parameter_text(family, &base.params)));
-        if let Some(settings) = family.settings() {
-            if let Ok(text) = serde_json::to_string(&settings) {
-                metadata.push(("family_settings".into(), text));
+        if let Base::Parametric(p) = &base {
+            metadata.push(("parameters".into(), parameter_text(family, &p.params)));
+            if let Some(settings) = family.settings() {
+                if let Ok(text) = serde_json::to_string(&settings) {
+                    metadata.push(("family_settings".into(), text));
+                }
             }
         }
-        metadata.push(("parameter_time_unit".into(), base.unit.name().into()));
-        metadata.push((
-            "parameter_units".into(),
-            families::parameter_units_text(family, base.unit),
-        ));
+        metadata.push(("parameter_time_unit".into(), base.unit().name().into()));
+        if let Base::Parametric(p) = &base {
+            metadata.push((
+                "parameter_units".into(),
+                families::parameter_units_text(family, p.unit),
+            ));
+        }
         let adjuster = Adjuster::load(self.adjustments()?)?;
-        let curve = adjuster.adjust(base.clone())?;
+        let curve = base.adjust(&adjuster)?;
         metadata.extend(curve.metadata.iter().cloned());
         warnings.extend(curve.warnings.iter().cloned());
         for w in &warnings {
@@ -327,7 +404,41 @@ impl CurveArgs {
         let name = path.display().to_string();
         let bytes =
             std::fs::read(path).map_err(|e| Error::input(&name, format!("cannot read: {e}")))?;
+        let model = match &self.model {
+            Some(m) => Some(crate::effects::curve::parse_model(m)?),
+            None if self.at.is_some() => {
+                return Err(Error::Usage(
+                    "--at fixes the covariates of a joint model; add --model ph|aft".into(),
+                ))
+            }
+            None => None,
+        };
         let file = FitFile::load(path)?;
+        let mut metadata = vec![
+            ("source".into(), "fit file".into()),
+            ("fit_file".into(), name.clone()),
+            ("fit_file_sha256".into(), crate::input::sha256_hex(&bytes)),
+            ("data_file".into(), file.data.file.clone()),
+            ("data_sha256".into(), file.data.sha256.clone()),
+        ];
+        if let Some(model) = model {
+            let joint = crate::effects::curve::select(
+                &file,
+                &name,
+                family,
+                model,
+                self.arm.as_deref(),
+                self.at.as_deref(),
+                self.allow_unconverged,
+            )?;
+            metadata.extend(joint.metadata.iter().cloned());
+            return Ok(Source {
+                warnings: joint.warnings.clone(),
+                base: Base::Joint(Box::new(joint)),
+                fit: None,
+                metadata,
+            });
+        }
         let fit = file
             .find(family.name(), self.arm.as_deref())
             .map_err(|e| Error::input(&name, e))?
@@ -364,18 +475,11 @@ impl CurveArgs {
         })?;
         let base = ParametricCurve::new(family, params, file.data.time_unit)
             .map_err(|e| Error::input(&name, format!("the {} fit: {e}", family.name())))?;
-        let mut metadata = vec![
-            ("source".into(), "fit file".into()),
-            ("fit_file".into(), name.clone()),
-            ("fit_file_sha256".into(), crate::input::sha256_hex(&bytes)),
-            ("data_file".into(), file.data.file.clone()),
-            ("data_sha256".into(), file.data.sha256.clone()),
-        ];
         if let Some(arm) = &fit.arm {
             metadata.push(("arm".into(), arm.clone()));
         }
         Ok(Source {
-            base,
+            base: Base::Parametric(base),
             fit: Some(fit),
             metadata,
             warnings,
@@ -442,6 +546,11 @@ impl CurveArgs {
     fn curve_from_params(&self, family: &'static dyn Family) -> Result<Source> {
         if self.arm.is_some() {
             return Err(Error::Usage("--arm needs --fit".into()));
+        }
+        if self.model.is_some() || self.at.is_some() {
+            return Err(Error::Usage(
+                "--model and --at choose a joint model across arms from a fit file; add --fit FIT.json".into(),
+            ));
         }
         if self.params.is_empty() {
             let names = family.param_names();
@@ -515,7 +624,7 @@ impl CurveArgs {
         let base = ParametricCurve::new(family, params, unit)
             .map_err(|e| Error::Usage(format!("--param: {e}")))?;
         Ok(Source {
-            base,
+            base: Base::Parametric(base),
             fit: None,
             metadata: vec![("source".into(), "published parameters".into())],
             warnings: Vec::new(),
@@ -537,6 +646,8 @@ mod tests {
             time_unit: unit.map(String::from),
             cuts: None,
             knots: None,
+            model: None,
+            at: None,
             allow_unconverged: false,
             hazard_ratio: None,
             acceleration_factor: None,
@@ -559,7 +670,7 @@ mod tests {
         );
         args.knots = Some("30.4375 days,1 year,3 years".into());
         let built = args.build().unwrap();
-        let knots = built.base.family.settings().unwrap().knots.unwrap();
+        let knots = built.base.family().settings().unwrap().knots.unwrap();
         assert_eq!(knots, vec![1.0, 12.0, 36.0]);
         let mut args = published(
             "piecewise",
@@ -568,7 +679,7 @@ mod tests {
         );
         args.cuts = Some("6 months".into());
         let built = args.build().unwrap();
-        assert_eq!(built.base.params, vec![0.1, 0.2]);
+        assert_eq!(built.base.parametric().unwrap().params, vec![0.1, 0.2]);
         // S(1 year) = exp(-(0.1·0.5 + 0.2·0.5)) by the piecewise-constant hazard.
         let s = built.curve.log_survival(1.0);
         assert!((s + 0.15).abs() < 1e-15, "{s}");
@@ -583,7 +694,7 @@ mod tests {
         let built = published("weibull", &["scale=30", "shape=1.2"], Some("months"))
             .build()
             .unwrap();
-        assert_eq!(built.base.params, vec![1.2, 30.0]);
+        assert_eq!(built.base.parametric().unwrap().params, vec![1.2, 30.0]);
         assert_eq!(built.curve.time_unit(), TimeUnit::Months);
         let params = built
             .metadata

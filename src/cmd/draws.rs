@@ -5,7 +5,7 @@
 //! numbers are drawn, and only then are the tables computed (in parallel, in chunks) and
 //! written, the long CSV streamed to a temporary file renamed into place at the end.
 
-use crate::cmd::curve_args::{BuiltCurve, CurveArgs};
+use crate::cmd::curve_args::{Base, BuiltCurve, CurveArgs};
 use crate::cmd::tunnels::{header, parse_count, parse_duration};
 use crate::curve::Curve;
 use crate::discretise::{count_until, tunnel_table, TunnelTable};
@@ -13,7 +13,6 @@ use crate::draws::{self, Bootstrap, CurveBuilder, Sampler, SummaryBuilder, Summa
 use crate::error::{Error, Result};
 use crate::export::tunnel::{draw_columns, draw_rows, Layout};
 use crate::export::{xlsx, Cell, Document, Table, Target};
-use crate::families::Family;
 use crate::fit::FitFile;
 use crate::format::{counted, readable, sig};
 use crate::input::{self, InputOptions, Record};
@@ -247,9 +246,9 @@ pub(crate) fn summary_table(rows: &[SummaryRow]) -> Table {
 }
 
 /// The drawn natural parameters, one row per draw.
-fn parameter_table(family: &dyn Family, params: &[Vec<f64>]) -> Table {
+fn parameter_table(names: &[String], params: &[Vec<f64>]) -> Table {
     let mut columns = vec!["draw".to_string()];
-    columns.extend(family.param_names().iter().map(|s| s.to_string()));
+    columns.extend(names.iter().cloned());
     Table {
         name: "parameters".into(),
         columns,
@@ -399,7 +398,7 @@ fn draw_parameters(
     n: usize,
     run: &LongRun,
 ) -> Result<(Vec<Vec<f64>>, Metadata)> {
-    let family = built.base.family;
+    let family = built.base.family();
     let fit_path = args.curve.fit.as_deref().ok_or_else(|| {
         Error::Usage(
             "draws need --fit FIT.json: published parameters (--param) carry no covariance to draw from"
@@ -407,6 +406,25 @@ fn draw_parameters(
         )
     })?;
     let fit_name = fit_path.display().to_string();
+    if let Base::Joint(joint) = &built.base {
+        if args.bootstrap {
+            return Err(Error::Usage(
+                "--bootstrap refits one family to one arm; with --model the draws come from the joint model's covariance (leave out --bootstrap)".into(),
+            ));
+        }
+        let what = format!("the joint {} model", family.name());
+        let sampler =
+            Sampler::from_covariance(family, &what, &joint.curve.theta, &joint.covariance)
+                .map_err(|e| Error::input(&fit_name, e))?;
+        let metadata = vec![
+            (
+                "method".to_string(),
+                "multivariate normal on the estimation scale over all the joint model's parameters together (reference curve and effects; estimates and covariance from the fit file)".to_string(),
+            ),
+            ("estimation_names".to_string(), joint.names.join(", ")),
+        ];
+        return Ok((sampler.draw(n, args.seed), metadata));
+    }
     let fit = built
         .fit
         .as_ref()
@@ -536,11 +554,25 @@ pub fn run(args: DrawsArgs) -> Result<()> {
     let floor = built.floor_report(cycle_in_curve, count);
 
     // Every draw goes through the adjuster that made the point estimate's curve.
-    let family = built.base.family;
-    let unit = built.base.unit;
+    let base = &built.base;
     let adjuster = &built.adjuster;
     let build = move |p: &[f64]| -> std::result::Result<Box<dyn Curve>, String> {
-        Ok(Box::new(adjuster.adjust_params(family, p, unit)?))
+        Ok(Box::new(match base {
+            Base::Parametric(c) => adjuster.adjust_params(c.family, p, c.unit)?,
+            // A draw of all the joint model's parameters is the arm's curve at the draw.
+            Base::Joint(j) => adjuster
+                .adjust_curve(Box::new(j.curve.with_theta(p)), j.family)
+                .map_err(|e| e.to_string())?,
+        }))
+    };
+    let parameter_names: Vec<String> = match base {
+        Base::Parametric(c) => c
+            .family
+            .param_names()
+            .iter()
+            .map(|s| s.to_string())
+            .collect(),
+        Base::Joint(j) => j.names.clone(),
     };
 
     let label = if args.bootstrap { "refits" } else { "draws" };
@@ -641,7 +673,7 @@ pub fn run(args: DrawsArgs) -> Result<()> {
                 let mut tables = vec![main];
                 if t.exporter.holds_several_tables() || t.exporter.extension() == "json" {
                     tables.push(summary_table(&rows));
-                    tables.push(parameter_table(family, &params));
+                    tables.push(parameter_table(&parameter_names, &params));
                 }
                 let document = Document {
                     metadata: metadata.clone(),

@@ -202,6 +202,10 @@ pub fn run(args: FitArgs) -> Result<()> {
     file.cox = effects.as_ref().map(|e| e.cox.clone());
     if let Some(effects) = &effects {
         file.effects = super::fit_effects::joint(effects, &file);
+        file.effects_design = Some(crate::effects::curve::record(
+            &effects.design,
+            &effects.covariates,
+        ));
     }
     crate::plausibility::annotate(&mut file, &plausibility);
     let display = args

@@ -28,6 +28,8 @@ pub struct EffectsArgs {
 pub struct EffectsResult {
     /// The design they were fitted to.
     pub design: Design,
+    /// Its covariates (with the levels of text ones).
+    pub covariates: Vec<design::Covariate>,
     /// The Cox model and its test.
     pub cox: CoxSummary,
     /// Per term: (time, scaled Schoenfeld residual) of each event, for the plot.
@@ -71,16 +73,55 @@ pub fn prepare(
         zero_time,
     };
     let bytes = read_file(data)?;
-    let design = design::parse(&data.display().to_string(), &bytes, &options)?;
+    from_bytes(&data.display().to_string(), &bytes, &options).map(Some)
+}
+
+/// Reads the design from the data's bytes and fits the Cox model and its test.
+fn from_bytes(name: &str, bytes: &[u8], options: &DesignOptions) -> Result<EffectsResult> {
+    let (design, covariates) = design::parse_with_covariates(name, bytes, options)?;
     let (_, test, cox) = report::analyse(&design);
     let scaled = (0..design.p())
         .map(|j| test.scaled.iter().map(|(t, _, s)| (*t, s[j])).collect())
         .collect();
-    Ok(Some(EffectsResult {
+    Ok(EffectsResult {
         design,
+        covariates,
         cox,
         scaled,
-    }))
+    })
+}
+
+/// `run`'s `[effects]`: fits the models across arms to the data's bytes and records them in
+/// the fit file (Cox model, joint models, the design's patterns), as `fit --effects` does.
+pub fn attach(
+    file: &mut crate::fit::FitFile,
+    args: &EffectsArgs,
+    name: &str,
+    bytes: &[u8],
+    columns: (&str, &str, &str),
+) -> Result<()> {
+    let options = DesignOptions {
+        time_col: columns.0.into(),
+        event_col: columns.1.into(),
+        arm_col: columns.2.into(),
+        reference: args.reference.clone(),
+        covariates: args
+            .covariates
+            .iter()
+            .map(|c| c.trim().to_string())
+            .filter(|c| !c.is_empty())
+            .collect(),
+        delimiter: None,
+        zero_time: None,
+    };
+    let result = from_bytes(name, bytes, &options)?;
+    file.cox = Some(result.cox.clone());
+    file.effects = joint(&result, file);
+    file.effects_design = Some(crate::effects::curve::record(
+        &result.design,
+        &result.covariates,
+    ));
+    Ok(())
 }
 
 /// The printed section of the models across arms.

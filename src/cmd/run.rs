@@ -749,7 +749,17 @@ pub fn compute(
             ));
         }
     };
-    let fits = fit_dataset(&data, &analysis.families, analysis.time_unit, None);
+    let mut fits = fit_dataset(&data, &analysis.families, analysis.time_unit, None);
+    if let (Some(effects), Some(arm_col)) = (&analysis.effects, &analysis.arm_column) {
+        let columns = (&*analysis.time_column, &*analysis.event_column, &**arm_col);
+        crate::cmd::fit_effects::attach(
+            &mut fits,
+            effects,
+            &analysis.data_name,
+            data_bytes,
+            columns,
+        )?;
+    }
     let in_arm = |f: &&FamilyFit| f.arm == arm;
     let (chosen, chosen_by) = match analysis.choose {
         Choice::BestAic => {

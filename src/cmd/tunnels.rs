@@ -259,22 +259,13 @@ fn workbook_tables(
         other.push(matrix_by_cause_table(table));
     }
     let text = |s: &str| Cell::Text(s.to_string());
-    let family = built.base.family;
+    let family = built.base.family();
     let mut rows = vec![vec![text("family"), text(family.name()), Cell::Missing]];
-    let unit = built.base.unit;
-    for ((name, value), kind) in family
-        .param_names()
-        .iter()
-        .zip(&built.base.params)
-        .zip(family.param_units())
-    {
-        rows.push(vec![
-            text(name),
-            Cell::Number(*value),
-            text(&kind.label(unit)),
-        ]);
+    let unit = built.base.unit();
+    for (name, value, label) in built.base.parameter_rows() {
+        rows.push(vec![text(&name), Cell::Number(value), text(&label)]);
     }
-    if let Some(settings) = family.settings() {
+    if let Some(settings) = built.base.parametric().and_then(|p| p.family.settings()) {
         if let Some(scale) = &settings.scale {
             rows.push(vec![text("spline_scale"), text(scale), Cell::Missing]);
         }
@@ -413,7 +404,7 @@ fn run_entry_cycles(
                 )),
                 other => other,
             })?;
-        let curve = adjuster.adjust(built.base.clone())?;
+        let curve = built.base.adjust(&adjuster)?;
         curve
             .check_horizon(count as f64 * cycle_in_curve)
             .map_err(|err| match err {

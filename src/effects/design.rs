@@ -89,6 +89,16 @@ impl Design {
     }
 }
 
+/// A covariate as the user names it: a numeric column, or a text column with its levels in
+/// sorted order (the first is the reference level, without a term of its own).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Covariate {
+    /// Column name.
+    pub name: String,
+    /// Levels of a text covariate; `None` for a numeric one.
+    pub levels: Option<Vec<String>>,
+}
+
 /// A covariate column while reading: numeric values, or text values mapped to levels later.
 enum Column {
     Numeric(Vec<f64>),
@@ -97,6 +107,16 @@ enum Column {
 
 /// Reads the design from a time-to-event CSV's bytes.
 pub fn parse(file: &str, bytes: &[u8], options: &DesignOptions) -> Result<Design> {
+    parse_with_covariates(file, bytes, options).map(|(design, _)| design)
+}
+
+/// Reads the design and describes its covariates (the levels of text covariates, which the
+/// terms alone do not name in full), for curves that fix covariates by name and level.
+pub fn parse_with_covariates(
+    file: &str,
+    bytes: &[u8],
+    options: &DesignOptions,
+) -> Result<(Design, Vec<Covariate>)> {
     let mut reader = CsvReader::new(
         file,
         bytes,
@@ -305,12 +325,24 @@ pub fn parse(file: &str, bytes: &[u8], options: &DesignOptions) -> Result<Design
             x,
         });
     }
-    Ok(Design {
-        arms,
-        reference,
-        terms,
-        subjects,
-    })
+    let covariates = options
+        .covariates
+        .iter()
+        .zip(levels)
+        .map(|(name, levels)| Covariate {
+            name: name.clone(),
+            levels,
+        })
+        .collect();
+    Ok((
+        Design {
+            arms,
+            reference,
+            terms,
+            subjects,
+        },
+        covariates,
+    ))
 }
 
 #[cfg(test)]

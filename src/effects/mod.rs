@@ -3,6 +3,7 @@
 //! factors given by the user live in [`crate::adjust::effects`].)
 
 pub mod cox;
+pub mod curve;
 pub mod design;
 pub mod joint;
 pub mod ph_test;
