@@ -238,19 +238,28 @@ pub struct JointSummary {
 /// Fits every joint model (PH: exponential, Weibull, Gompertz; AFT: exponential, Weibull,
 /// log-normal, log-logistic, generalized gamma) and summarises them; `separate(family)` is the
 /// sum of that family's separate fits' log-likelihoods over the arms, when every arm has a
-/// converged one. A model whose optimiser finds no finite likelihood is left out (and named
-/// by [`missing_joint`]); one that does not converge is kept with `converged: false`.
+/// converged one. A model with no finite likelihood, estimates or covariance is left out (and
+/// named by [`missing_joint`]); one that does not converge otherwise is kept with
+/// `converged: false`.
 pub fn joint(design: &Design, separate: &dyn Fn(&str) -> Option<f64>) -> Vec<JointSummary> {
     use super::joint::{all, fit_with};
     all()
         .into_iter()
         .filter_map(|(family, model)| {
             let result = fit_with(family, model, design)?;
-            Some(summarise_joint(
-                design,
-                &result,
-                separate(family.family().name()),
-            ))
+            let summary = summarise_joint(design, &result, separate(family.family().name()));
+            // JSON has no NaN: a model without finite estimates or covariance (information
+            // not positive definite) is left out, so the fit file reads back, and named in
+            // the printout by `missing_joint`.
+            let finite = summary.loglik.is_finite()
+                && summary.params.values().all(|v| v.is_finite())
+                && summary
+                    .covariance
+                    .matrix
+                    .iter()
+                    .flatten()
+                    .all(|v| v.is_finite());
+            finite.then_some(summary)
         })
         .collect()
 }
@@ -421,7 +430,7 @@ pub fn render_joint(models: &[JointSummary]) -> String {
     let missing = missing_joint(models);
     if !missing.is_empty() {
         out.push_str(&format!(
-            "  not fitted (no finite likelihood from any start): {}\n",
+            "  left out (no finite likelihood, or the information is not positive definite): {}\n",
             missing.join(", ")
         ));
     }
