@@ -90,6 +90,25 @@ struct RawPayoffs {
     discount: Option<Spanned<f64>>,
 }
 
+/// `[plausibility]`: the long-run checks of every fit (landmarks, means, targets, population).
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawPlausibility {
+    landmarks: Option<Spanned<toml::Value>>,
+    mean_horizon: Option<Spanned<String>>,
+    targets: Option<Spanned<String>>,
+    background: Option<Spanned<String>>,
+    start_age: Option<Spanned<f64>>,
+    sex: Option<Spanned<String>>,
+}
+
+/// `[choice]`: why the chosen family was chosen.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawChoice {
+    reason: Spanned<String>,
+}
+
 /// `[effects]`: the models across arms of `fit --effects` (Cox model, test of proportional
 /// hazards, joint models), fitted beside the separate fits and listed in the report.
 #[derive(Debug, Deserialize)]
@@ -110,7 +129,45 @@ struct RawAnalysis {
     adjust: Option<Spanned<RawAdjust>>,
     draws: Option<Spanned<RawDraws>>,
     payoffs: Option<RawPayoffs>,
+    plausibility: Option<RawPlausibility>,
+    choice: Option<Spanned<RawChoice>>,
     effects: Option<RawEffects>,
+}
+
+/// The general population the fits are compared with: a life table, the age at entry and
+/// the sex column, from `[plausibility]` or else from `[adjust]`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PopulationSource {
+    /// The life table as the analysis file names it, resolved, and where it is named.
+    pub file: NamedFile,
+    /// Age in years at entry.
+    pub start_age: f64,
+    /// Column of a two-sex table.
+    pub sex: Option<crate::adjust::lifetable::Sex>,
+    /// Whether this is the `[adjust] background` table (the demo compiles its bytes in).
+    pub from_adjust: bool,
+}
+
+/// `[plausibility]` settings (defaults as for `fit`).
+#[derive(Debug, Clone, PartialEq)]
+pub struct PlausibilitySettings {
+    /// Landmark durations, years, increasing.
+    pub landmarks_years: Vec<f64>,
+    /// Horizon of the mean, years.
+    pub mean_horizon_years: f64,
+    /// External targets file, when given.
+    pub targets: Option<NamedFile>,
+    /// The general population, when a life table and a start age are given.
+    pub population: Option<PopulationSource>,
+}
+
+/// `[choice] reason`: why the chosen family was chosen, and where it is written.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ChoiceReason {
+    /// The reason, as written.
+    pub text: String,
+    /// Where `[choice]` is written.
+    pub place: Place,
 }
 
 /// `[payoffs]` settings: the payoff file and the annual discount rate of its figures.
@@ -303,6 +360,10 @@ pub struct Analysis {
     pub draws: Option<DrawSettings>,
     /// `[payoffs]` settings, when given.
     pub payoffs: Option<PayoffSettings>,
+    /// `[plausibility]` settings (defaults when the table is absent).
+    pub plausibility: PlausibilitySettings,
+    /// `[choice] reason`, required when the chosen family is not the lowest AIC.
+    pub reason: Option<ChoiceReason>,
 }
 
 impl std::fmt::Debug for Analysis {
@@ -398,6 +459,183 @@ fn adjustments(file: &str, place: Place, raw: &RawAdjust, base: &Path) -> Result
             format!("[adjust] {}", message.replace(" LIFETABLE.csv", "")),
         )
     })
+}
+
+/// The `[plausibility]` table checked: landmarks, mean horizon, targets file and the general
+/// population (its own `background`, `start_age`, `sex`, else those of `[adjust]`).
+fn plausibility_settings(
+    raw: Option<&RawPlausibility>,
+    adjustments: &Adjustments,
+    adjust_background: Option<String>,
+    adjust_place: Place,
+    base: &Path,
+    text: &str,
+    file: &str,
+) -> Result<PlausibilitySettings> {
+    let at = |span: std::ops::Range<usize>| place_of(text, span.start);
+    let bad = |span: std::ops::Range<usize>, message: String| error_at(file, at(span), message);
+    let mut settings = PlausibilitySettings {
+        landmarks_years: crate::plausibility::parse_landmarks(
+            crate::plausibility::DEFAULT_LANDMARKS,
+        )
+        .expect("default landmarks parse"),
+        mean_horizon_years: crate::plausibility::DEFAULT_MEAN_HORIZON_YEARS,
+        targets: None,
+        population: None,
+    };
+    let from_adjust = || {
+        let b = adjustments.background.as_ref()?;
+        Some(PopulationSource {
+            file: NamedFile {
+                name: adjust_background
+                    .clone()
+                    .unwrap_or_else(|| b.path.display().to_string()),
+                path: b.path.clone(),
+                place: adjust_place,
+            },
+            start_age: b.start_age,
+            sex: b.sex,
+            from_adjust: true,
+        })
+    };
+    let Some(raw) = raw else {
+        settings.population = from_adjust();
+        return Ok(settings);
+    };
+    if let Some(l) = &raw.landmarks {
+        let list = match l.get_ref() {
+            toml::Value::String(s) => s.clone(),
+            toml::Value::Array(items) => {
+                let mut parts = Vec::new();
+                for item in items {
+                    match item {
+                        toml::Value::String(s) => parts.push(s.clone()),
+                        other => {
+                            return Err(bad(
+                                l.span(),
+                                format!("[plausibility] landmarks: {other} is not a duration such as \"5 years\""),
+                            ))
+                        }
+                    }
+                }
+                parts.join(",")
+            }
+            other => {
+                return Err(bad(
+                    l.span(),
+                    format!("[plausibility] landmarks: {other} is not a list of durations such as [\"1 year\", \"5 years\"]"),
+                ))
+            }
+        };
+        if list.trim().is_empty() {
+            return Err(bad(l.span(), "[plausibility] landmarks is empty".into()));
+        }
+        settings.landmarks_years = crate::plausibility::parse_landmarks(&list).map_err(|e| {
+            bad(
+                l.span(),
+                format!("[plausibility] {}", e.replace("--landmarks", "landmarks")),
+            )
+        })?;
+        if settings
+            .landmarks_years
+            .iter()
+            .any(|y| !(y.is_finite() && *y > 0.0))
+        {
+            return Err(bad(
+                l.span(),
+                "[plausibility] landmarks must be positive durations".into(),
+            ));
+        }
+    }
+    if let Some(h) = &raw.mean_horizon {
+        let years = crate::plausibility::parse_mean_horizon(h.get_ref()).map_err(|e| {
+            bad(
+                h.span(),
+                format!(
+                    "[plausibility] {}",
+                    e.replace("--mean-horizon", "mean_horizon")
+                ),
+            )
+        })?;
+        if !(years.is_finite() && years > 0.0) {
+            return Err(bad(
+                h.span(),
+                "[plausibility] mean_horizon must be a positive duration".into(),
+            ));
+        }
+        settings.mean_horizon_years = years;
+    }
+    if let Some(t) = &raw.targets {
+        if t.get_ref().trim().is_empty() {
+            return Err(bad(t.span(), "[plausibility] targets is empty".into()));
+        }
+        settings.targets = Some(NamedFile {
+            name: t.get_ref().clone(),
+            path: base.join(t.get_ref()),
+            place: at(t.span()),
+        });
+    }
+    let sex = match &raw.sex {
+        None => None,
+        Some(s) => Some(match s.get_ref().trim() {
+            "female" => crate::adjust::lifetable::Sex::Female,
+            "male" => crate::adjust::lifetable::Sex::Male,
+            other => {
+                return Err(bad(
+                    s.span(),
+                    format!("[plausibility] sex: \"{other}\" is neither \"female\" nor \"male\""),
+                ))
+            }
+        }),
+    };
+    settings.population = match (&raw.background, &raw.start_age) {
+        (Some(b), Some(age)) => {
+            if b.get_ref().trim().is_empty() {
+                return Err(bad(b.span(), "[plausibility] background is empty".into()));
+            }
+            if !age.get_ref().is_finite() || *age.get_ref() < 0.0 {
+                return Err(bad(
+                    age.span(),
+                    format!(
+                        "[plausibility] start_age: {} is not an age in years",
+                        age.get_ref()
+                    ),
+                ));
+            }
+            Some(PopulationSource {
+                file: NamedFile {
+                    name: b.get_ref().clone(),
+                    path: base.join(b.get_ref()),
+                    place: at(b.span()),
+                },
+                start_age: *age.get_ref(),
+                sex,
+                from_adjust: false,
+            })
+        }
+        (Some(b), None) => {
+            return Err(bad(
+                b.span(),
+                "[plausibility] background needs start_age (age in years at entry)".into(),
+            ))
+        }
+        (None, Some(age)) => {
+            return Err(bad(
+                age.span(),
+                "[plausibility] start_age needs background = \"LIFETABLE.csv\"".into(),
+            ))
+        }
+        (None, None) => {
+            if let Some(s) = &raw.sex {
+                return Err(bad(
+                    s.span(),
+                    "[plausibility] sex needs background = \"LIFETABLE.csv\" and start_age".into(),
+                ));
+            }
+            from_adjust()
+        }
+    };
+    Ok(settings)
 }
 
 impl Analysis {
@@ -753,6 +991,35 @@ impl Analysis {
             }
         };
 
+        let plausibility = plausibility_settings(
+            raw.plausibility.as_ref(),
+            &adjustments,
+            raw.adjust
+                .as_ref()
+                .and_then(|a| a.get_ref().background.clone()),
+            adjust_place,
+            base,
+            text,
+            file,
+        )?;
+        let reason = match &raw.choice {
+            None => None,
+            Some(c) => {
+                let r = c.get_ref().reason.get_ref().trim();
+                if r.is_empty() {
+                    return Err(bad(
+                        c.get_ref().reason.span(),
+                        "[choice] reason is empty; say in a sentence why this family was chosen"
+                            .into(),
+                    ));
+                }
+                Some(ChoiceReason {
+                    text: r.to_string(),
+                    place: at(c.span()),
+                })
+            }
+        };
+
         let effects = match raw.effects {
             None => None,
             Some(_) if data.arm_column.is_none() => {
@@ -799,6 +1066,8 @@ impl Analysis {
                 .and_then(|a| a.get_ref().background.clone()),
             draws,
             payoffs,
+            plausibility,
+            reason,
         })
     }
 

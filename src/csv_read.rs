@@ -13,7 +13,9 @@
 use crate::error::{Error, Result};
 use crate::format::shown;
 use std::cell::Cell;
+use std::io::Read;
 use std::path::Path;
+use std::sync::Arc;
 
 /// What differs between the formats read through [`CsvReader`].
 #[derive(Debug, Clone, Copy, Default)]
@@ -60,7 +62,7 @@ pub struct CsvReader<'a> {
     /// Where the header row starts in `body` (the csv reader's offsets count from here).
     first: usize,
     delimiter: u8,
-    headers: Vec<String>,
+    headers: Arc<[String]>,
     header_line: u64,
     /// Header length without trailing empty names (a trailing delimiter on the header line).
     width: usize,
@@ -70,6 +72,8 @@ pub struct CsvReader<'a> {
     offset: usize,
     /// Last (offset, line) pair worked out, so rows read in order cost one pass over the file.
     cursor: Cell<(usize, u64)>,
+    /// Line of the first byte of `body` (1, or later for a block of a streamed file).
+    base_line: u64,
 }
 
 impl<'a> CsvReader<'a> {
@@ -114,7 +118,7 @@ impl<'a> CsvReader<'a> {
                 format!("cannot read the header row: {e}"),
             )
         })?;
-        let headers: Vec<String> = header
+        let headers: Arc<[String]> = header
             .iter()
             .map(|h| String::from_utf8_lossy(h).trim().to_string())
             .collect();
@@ -135,7 +139,20 @@ impl<'a> CsvReader<'a> {
             record: csv::ByteRecord::new(),
             offset: first,
             cursor: Cell::new((first, header_line)),
+            base_line: 1,
         })
+    }
+
+    /// What readers of later blocks of the same file share with this one.
+    fn layout(&self) -> Layout {
+        Layout {
+            file: self.file.clone(),
+            comments: self.comments,
+            delimiter: self.delimiter,
+            headers: Arc::clone(&self.headers),
+            header_line: self.header_line,
+            width: self.width,
+        }
     }
 
     /// File name as given by the user.
@@ -175,7 +192,7 @@ impl<'a> CsvReader<'a> {
                 let hint = crate::units::nearest(name, &refs)
                     .map(|n| format!(" (did you mean \"{n}\"?)"))
                     .unwrap_or_default();
-                let lone = match self.headers.as_slice() {
+                let lone = match &self.headers[..] {
                     [one] if one.starts_with('#') => {
                         "; a line starting with # is not a comment in this file: remove it".to_string()
                     }
@@ -246,7 +263,7 @@ impl<'a> CsvReader<'a> {
 
     /// The error for a file whose header is followed by no data row.
     pub fn no_rows(&self) -> Error {
-        self.error("no data rows after the header")
+        no_rows(&self.file)
     }
 
     /// The next data row, skipping blank lines and rows whose fields are all empty (spreadsheets
@@ -330,7 +347,7 @@ impl<'a> CsvReader<'a> {
         let start = content_start(self.body, offset, self.comments, false);
         let (at, line) = match self.cursor.get() {
             (at, line) if at <= start => (at, line),
-            _ => (0, 1),
+            _ => (0, self.base_line),
         };
         let line = line + line_ends(self.body, at, start);
         self.cursor.set((start, line));
@@ -376,6 +393,282 @@ fn content_start(body: &[u8], offset: usize, comments: bool, spaces: bool) -> us
             return i;
         }
         i = end;
+    }
+}
+
+/// The error for a file whose header is followed by no data row.
+pub fn no_rows(file: &str) -> Error {
+    Error::input(file, "no data rows after the header")
+}
+
+/// Default block of a streamed file: each block is parsed by one task.
+pub const BLOCK_BYTES: usize = 1 << 18;
+
+/// Blocks read ahead at once (parsed in parallel, then taken in file order).
+const BLOCKS_PER_BATCH: usize = 8;
+
+/// Whether byte `i` ends a line that can end a record: LF, or a CR not followed by LF. A CR
+/// last in `bytes` is not one (its LF may be in the bytes not read yet).
+fn line_end_at(bytes: &[u8], i: usize) -> bool {
+    match bytes[i] {
+        b'\n' => true,
+        b'\r' => bytes.get(i + 1).is_some_and(|&b| b != b'\n'),
+        _ => false,
+    }
+}
+
+/// Where `bytes` (starting at the start of a record) can be cut between records: positions just
+/// after a line end outside quotes, the first at or after `step`, each next one at least `step`
+/// further, and the last such position in `bytes`. Quotes follow the csv reader's rules (a
+/// quote opens a quoted field only at the start of a field; `""` inside one is a quote), so a
+/// line break inside a quoted field is never a cut; without any quote the scan is a byte search.
+fn record_ends(bytes: &[u8], delimiter: u8, step: usize) -> Vec<usize> {
+    let step = step.max(1);
+    let mut cuts = Vec::new();
+    let mut target = step;
+    let mut last = None;
+    if !bytes.contains(&b'"') {
+        let mut i = target - 1;
+        while i < bytes.len() {
+            match (i..bytes.len()).find(|&j| line_end_at(bytes, j)) {
+                Some(j) => {
+                    cuts.push(j + 1);
+                    i = j.saturating_add(step);
+                }
+                None => break,
+            }
+        }
+        if let Some(j) = (0..bytes.len()).rev().find(|&j| line_end_at(bytes, j)) {
+            last = Some(j + 1);
+        }
+    } else {
+        #[derive(PartialEq)]
+        enum State {
+            FieldStart,
+            Unquoted,
+            Quoted,
+            QuoteInQuoted,
+        }
+        let mut state = State::FieldStart;
+        for (i, &b) in bytes.iter().enumerate() {
+            state = match state {
+                State::Quoted if b == b'"' => State::QuoteInQuoted,
+                State::Quoted => State::Quoted,
+                State::FieldStart if b == b'"' => State::Quoted,
+                State::QuoteInQuoted if b == b'"' => State::Quoted,
+                _ if b == delimiter || b == b'\n' || b == b'\r' => State::FieldStart,
+                _ => State::Unquoted,
+            };
+            if state == State::FieldStart && line_end_at(bytes, i) {
+                last = Some(i + 1);
+                if i + 1 >= target {
+                    cuts.push(i + 1);
+                    target = (i + 1).saturating_add(step);
+                }
+            }
+        }
+    }
+    if let Some(last) = last {
+        if cuts.last() != Some(&last) {
+            cuts.push(last);
+        }
+    }
+    cuts
+}
+
+/// Line ends (LF, CRLF or a lone CR) in a block that does not end between a CR and its LF.
+fn count_line_ends(bytes: &[u8]) -> u64 {
+    let lf = bytes.iter().filter(|&&b| b == b'\n').count();
+    if !bytes.contains(&b'\r') {
+        return lf as u64;
+    }
+    line_ends(bytes, 0, bytes.len())
+}
+
+/// Reads up to `want` bytes into `buf` in all; `true` at the end of the source.
+fn fill(source: &mut impl Read, buf: &mut Vec<u8>, want: usize, file: &str) -> Result<bool> {
+    while buf.len() < want {
+        let missing = (want - buf.len()) as u64;
+        let got = source
+            .by_ref()
+            .take(missing)
+            .read_to_end(buf)
+            .map_err(|e| Error::input(file, format!("cannot read: {e}")))?;
+        if got == 0 {
+            return Ok(true);
+        }
+    }
+    Ok(false)
+}
+
+/// Reads a CSV file from `source` without holding it whole: bytes are read a batch of blocks at
+/// a time (`block` bytes each, cut between records), each block's rows are handed to `parse`
+/// (blocks of a batch in parallel, each with a [`CsvReader`] of the same header, delimiter and
+/// rules, whose errors name the file's physical lines), and the results are given to `take` in
+/// file order, so the first error in the file is the one reported. `columns` looks the columns
+/// up in the header. Returns what `columns` made and the lower-case hex SHA-256 of every byte
+/// read (hashed while the blocks are parsed). `settings.comments` must be false.
+pub fn stream<C: Sync, T: Send>(
+    file: &str,
+    mut source: impl Read,
+    settings: Settings,
+    block: usize,
+    columns: impl FnOnce(&CsvReader<'_>) -> Result<C>,
+    parse: impl Fn(&C, &mut CsvReader<'_>) -> T + Sync,
+    mut take: impl FnMut(&C, T) -> Result<()>,
+) -> Result<(C, String)> {
+    use rayon::prelude::*;
+    use sha2::{Digest, Sha256};
+    assert!(!settings.comments, "comment lines are not streamed");
+    let block = block.max(1);
+    let batch = block.saturating_mul(BLOCKS_PER_BATCH);
+    let mut hasher = Sha256::new();
+    let mut buf: Vec<u8> = Vec::new();
+    // First batch: at least the header's first line (for the delimiter) and its whole record.
+    let mut want = batch;
+    let (mut eof, bom, delimiter, header_end) = loop {
+        let eof = fill(&mut source, &mut buf, want, file)?;
+        let bom = buf.len() - strip_bom(&buf).len();
+        let body = &buf[bom..];
+        let first = content_start(body, 0, false, true);
+        let first_line_read = body[first..].iter().any(|&b| b == b'\n' || b == b'\r');
+        if !eof && !first_line_read {
+            want = want.saturating_mul(2);
+            continue;
+        }
+        let delimiter = settings
+            .delimiter
+            .unwrap_or_else(|| detect_delimiter(&body[first..]));
+        let header_end = record_ends(body, delimiter, first + 1).first().copied();
+        if !eof && header_end.is_none() {
+            want = want.saturating_mul(2);
+            continue;
+        }
+        break (eof, bom, delimiter, header_end.unwrap_or(body.len()));
+    };
+    let mut line = 1;
+    let mut start = bom;
+    let mut hashed = 0;
+    let mut layout: Option<(Layout, C)> = None;
+    let mut columns = Some(columns);
+    loop {
+        let body = &buf[start..];
+        let mut cuts = record_ends(body, delimiter, block);
+        if layout.is_none() {
+            // The first block holds the whole header record.
+            cuts.retain(|&c| c >= header_end);
+            if cuts.first() != Some(&header_end) {
+                cuts.insert(0, header_end);
+            }
+        }
+        if eof {
+            cuts.retain(|&c| c < body.len());
+            cuts.push(body.len());
+        }
+        let end = cuts.last().copied().unwrap_or(0);
+        let mut blocks = Vec::with_capacity(cuts.len());
+        let mut from = 0;
+        for &cut in &cuts {
+            if cut > from {
+                blocks.push(&body[from..cut]);
+            }
+            from = cut;
+        }
+        let counts: Vec<u64> = blocks.par_iter().map(|b| count_line_ends(b)).collect();
+        let mut starts = Vec::with_capacity(blocks.len());
+        for n in &counts {
+            starts.push(line);
+            line += n;
+        }
+        let mut header = None;
+        if layout.is_none() {
+            let reader = CsvReader::new(file, &buf[..start + header_end], settings)?;
+            let found = (columns.take().expect("columns looked up once"))(&reader)?;
+            layout = Some((reader.layout(), found));
+            header = Some(reader);
+        }
+        let (shape, found) = layout.as_ref().expect("header read");
+        let new_bytes = &buf[hashed..start + end];
+        let skip = usize::from(header.is_some());
+        let (_, (first, rest)) = rayon::join(
+            || hasher.update(new_bytes),
+            || {
+                let first = header.map(|mut r| parse(found, &mut r));
+                let rest: Vec<T> = blocks[skip..]
+                    .par_iter()
+                    .zip(&starts[skip..])
+                    .map(|(bytes, &at)| parse(found, &mut shape.reader(bytes, at)))
+                    .collect();
+                (first, rest)
+            },
+        );
+        hashed = start + end;
+        for result in first.into_iter().chain(rest) {
+            take(found, result)?;
+        }
+        if eof {
+            break;
+        }
+        // Keep the bytes after the last cut, then read the next batch (more when no record
+        // ends in it).
+        buf.drain(..start + end);
+        hashed -= start + end;
+        start = 0;
+        let mut want = batch;
+        loop {
+            eof = fill(&mut source, &mut buf, want, file)?;
+            if eof || !record_ends(&buf, delimiter, usize::MAX).is_empty() {
+                break;
+            }
+            want = want.saturating_mul(2).max(buf.len() + batch);
+        }
+    }
+    hasher.update(&buf[hashed..]);
+    let hex = hasher
+        .finalize()
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect();
+    let (_, found) = layout.expect("header read");
+    Ok((found, hex))
+}
+
+/// What a block reader of a streamed file shares with the header's reader.
+struct Layout {
+    file: String,
+    comments: bool,
+    delimiter: u8,
+    headers: Arc<[String]>,
+    header_line: u64,
+    width: usize,
+}
+
+impl Layout {
+    /// A reader for a block of the file that starts at a record boundary on line `start_line`.
+    fn reader<'b>(&self, body: &'b [u8], start_line: u64) -> CsvReader<'b> {
+        let mut builder = csv::ReaderBuilder::new();
+        builder
+            .delimiter(self.delimiter)
+            .flexible(true)
+            .has_headers(false);
+        if self.comments {
+            builder.comment(Some(b'#'));
+        }
+        CsvReader {
+            file: self.file.clone(),
+            body,
+            comments: self.comments,
+            first: 0,
+            delimiter: self.delimiter,
+            headers: Arc::clone(&self.headers),
+            header_line: self.header_line,
+            width: self.width,
+            reader: builder.from_reader(body),
+            record: csv::ByteRecord::new(),
+            offset: 0,
+            cursor: Cell::new((0, start_line)),
+            base_line: start_line,
+        }
     }
 }
 

@@ -100,6 +100,11 @@ impl Sampler {
     ) -> std::result::Result<Sampler, String> {
         let name = family.name();
         let Some(cov) = &fit.covariance else {
+            if let Some(note) = &fit.note {
+                return Err(format!(
+                    "family {name} has no covariance in the fit file, so its parameters cannot be drawn: {note}"
+                ));
+            }
             return Err(format!(
                 "family {name} has no covariance in the fit file (its information matrix was \
                  not positive definite), so its parameters cannot be drawn; choose another \
@@ -587,6 +592,7 @@ mod tests {
             median: None,
             gradient_max: None,
             message: None,
+            note: None,
             settings: None,
             landmarks: Vec::new(),
             rmst_followup: None,

@@ -268,6 +268,10 @@ pub struct FamilyFit {
     pub gradient_max: Option<f64>,
     /// Why the family did not converge, when it did not.
     pub message: Option<String>,
+    /// A remark on a converged fit that changes how to read it (a cure model whose cured
+    /// fraction is at its boundary 0); absent otherwise.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub note: Option<String>,
     /// Settings of a configured family (cut points, spline scale and knots); absent otherwise.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub settings: Option<families::FamilySettings>,
@@ -459,8 +463,10 @@ const NEWTON_GRADIENT_TOLERANCE: f64 = 1e-3 * GRADIENT_TOLERANCE;
 
 /// Newton iterations with step halving from a point near the optimum. The curvature is the
 /// differenced observed information at each iterate, or, when `fixed_covariance` is given,
-/// that inverse information throughout (one evaluation over the data per iteration, as used
-/// on large data with a subsample's curvature). Stops when the gradient is well inside the
+/// that inverse information refined after each accepted step by the BFGS secant update (one
+/// evaluation over the data per iteration, as used on large data with a subsample's
+/// curvature: the update corrects the subsample's curvature along the steps taken, so the
+/// steps approach full-data Newton steps). Stops when the gradient is well inside the
 /// convergence tolerance or a step no longer gains: with a Newton decrement (expected gain in
 /// log-likelihood, doubled) below rounding of the log-likelihood, a full step that does not
 /// gain in log-likelihood nor shrink the gradient ends the search without halving.
@@ -470,6 +476,7 @@ fn newton(
     mut point: Point,
     fixed_covariance: Option<&[Vec<f64>]>,
 ) -> Point {
+    let mut secant: Option<Vec<Vec<f64>>> = fixed_covariance.map(<[Vec<f64>]>::to_vec);
     for _ in 0..MAX_NEWTON {
         if !point.loglik.is_finite() || point.grad.iter().any(|g| !g.is_finite()) {
             break;
@@ -477,8 +484,8 @@ fn newton(
         if max_abs(&point.grad) / data.n_subjects < NEWTON_GRADIENT_TOLERANCE {
             break;
         }
-        let covariance = match fixed_covariance {
-            Some(c) => c.to_vec(),
+        let covariance = match &secant {
+            Some(c) => c.clone(),
             None => match invert_positive_definite(&information(family, &point.theta, data)) {
                 Some(c) => c,
                 None => break,
@@ -528,11 +535,55 @@ fn newton(
             scale *= 0.5;
         }
         match accepted {
-            Some(trial) => point = trial,
+            Some(trial) => {
+                // The gradient keeps its digits below the rounding floor of the log-likelihood;
+                // a change in it near its own rounding (relative 1e-16 of n terms) is skipped.
+                let change = point
+                    .grad
+                    .iter()
+                    .zip(&trial.grad)
+                    .fold(0.0f64, |m, (a, b)| m.max((a - b).abs()));
+                if let Some(c) = secant.as_mut() {
+                    if change / data.n_subjects > SECANT_MIN_CHANGE {
+                        secant_update(c, &point, &trial);
+                    }
+                }
+                point = trial;
+            }
             None => break,
         }
     }
     point
+}
+
+/// Smallest change in the gradient per subject that the secant update uses: well above the
+/// rounding of a gradient summed over the data (about 1e-16 per subject).
+const SECANT_MIN_CHANGE: f64 = 1e-13;
+
+/// BFGS update of `c`, an inverse Hessian of the negative log-likelihood, from the step
+/// between two evaluated points (Nocedal and Wright, 2006, eq. 6.17); skipped unless the
+/// curvature along the step is positive, so `c` stays positive definite.
+fn secant_update(c: &mut [Vec<f64>], from: &Point, to: &Point) {
+    let k = c.len();
+    let s: Vec<f64> = (0..k).map(|i| to.theta[i] - from.theta[i]).collect();
+    // Change in the gradient of the negative log-likelihood.
+    let y: Vec<f64> = (0..k).map(|i| from.grad[i] - to.grad[i]).collect();
+    let sy: f64 = s.iter().zip(&y).map(|(a, b)| a * b).sum();
+    if !(sy > 0.0 && sy.is_finite()) {
+        return;
+    }
+    let rho = 1.0 / sy;
+    let cy: Vec<f64> = c
+        .iter()
+        .map(|row| row.iter().zip(&y).map(|(a, b)| a * b).sum())
+        .collect();
+    let ycy: f64 = y.iter().zip(&cy).map(|(a, b)| a * b).sum();
+    let ss = rho * rho * ycy + rho;
+    for i in 0..k {
+        for j in 0..k {
+            c[i][j] += ss * s[i] * s[j] - rho * (s[i] * cy[j] + cy[i] * s[j]);
+        }
+    }
 }
 
 /// Distinct times above which a family is fitted first to a subsample (see [`FitData::subsample`]).
@@ -633,7 +684,14 @@ fn information_forward(
 
 /// Fits one family to collapsed data; never panics, reports failure in the result.
 pub fn fit_family(family: &dyn Family, data: &FitData, arm: Option<&str>) -> FamilyFit {
-    let k = family.param_names().len();
+    family
+        .fit_on_boundary(data, arm)
+        .unwrap_or_else(|| fit_family_searched(family, data, arm))
+}
+
+/// [`fit_family`] by the general search (starts, BFGS, Newton), without the family's own
+/// boundary check.
+pub fn fit_family_searched(family: &dyn Family, data: &FitData, arm: Option<&str>) -> FamilyFit {
     let (best, forward_steps) =
         if data.time.len() > SUBSAMPLE_ABOVE && family.closed_form_mle(data).is_none() {
             match maximise_large(family, data) {
@@ -643,6 +701,35 @@ pub fn fit_family(family: &dyn Family, data: &FitData, arm: Option<&str>) -> Fam
         } else {
             (maximise_from_starts(family, data), None)
         };
+    report_fit(family, data, arm, best, forward_steps)
+}
+
+/// [`fit_family`] by Newton steps on the full data (differenced information at each iterate)
+/// from a start the family knows to be close, e.g. a cure model's start from its base
+/// family's fit; no search over starts.
+pub fn fit_family_from(
+    family: &dyn Family,
+    data: &FitData,
+    arm: Option<&str>,
+    start: Vec<f64>,
+) -> FamilyFit {
+    let start = evaluate(family, data, start);
+    let best = start
+        .loglik
+        .is_finite()
+        .then(|| newton(family, data, start, None));
+    report_fit(family, data, arm, best, None)
+}
+
+/// The fit record at the best point found (intervals, covariance, convergence verdict).
+fn report_fit(
+    family: &dyn Family,
+    data: &FitData,
+    arm: Option<&str>,
+    best: Option<Point>,
+    forward_steps: Option<Vec<f64>>,
+) -> FamilyFit {
+    let k = family.param_names().len();
     let names: Vec<String> = family
         .estimation_names()
         .iter()
@@ -807,6 +894,7 @@ fn empty_fit(family: &dyn Family, arm: Option<&str>, why: Option<String>) -> Fam
         median: None,
         gradient_max: None,
         message: why,
+        note: None,
         settings: family.settings(),
         landmarks: Vec::new(),
         rmst_followup: None,
@@ -1090,6 +1178,45 @@ mod tests {
             .collect();
         r.sort_by(|a, b| a.time.total_cmp(&b.time).then(b.event.cmp(&a.event)));
         r
+    }
+
+    #[test]
+    fn secant_update_meets_the_secant_equation() {
+        // BFGS (Nocedal and Wright, 2006, eq. 6.17): the updated inverse Hessian maps the
+        // change in the gradient of -loglik onto the step, C·y = s, and stays symmetric.
+        let mut c = vec![
+            vec![2.0, 0.3, 0.1],
+            vec![0.3, 1.0, -0.2],
+            vec![0.1, -0.2, 0.5],
+        ];
+        let from = Point {
+            theta: vec![1.0, 2.0, 3.0],
+            loglik: -10.0,
+            grad: vec![0.5, -0.4, 0.9],
+        };
+        let to = Point {
+            theta: vec![1.2, 1.9, 3.05],
+            loglik: -9.0,
+            grad: vec![0.1, -0.3, 0.6],
+        };
+        secant_update(&mut c, &from, &to);
+        let s = [0.2, -0.1, 0.05];
+        let y = [0.4, -0.1, 0.3];
+        for i in 0..3 {
+            let cy: f64 = (0..3).map(|j| c[i][j] * y[j]).sum();
+            assert!((cy - s[i]).abs() < 1e-12, "row {i}: {cy} vs {}", s[i]);
+            for j in 0..3 {
+                assert!((c[i][j] - c[j][i]).abs() < 1e-15);
+            }
+        }
+        // Negative curvature along the step: no update.
+        let before = c.clone();
+        let away = Point {
+            grad: vec![0.9, -0.5, 1.2],
+            ..to.clone()
+        };
+        secant_update(&mut c, &from, &away);
+        assert_eq!(c, before);
     }
 
     #[test]

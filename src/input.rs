@@ -102,10 +102,13 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
     digest.iter().map(|b| format!("{b:02x}")).collect()
 }
 
-/// Reads and validates a time-to-event CSV file.
+/// Reads and validates a time-to-event CSV file, streaming it (memory follows the number of
+/// records, not the file's size).
 pub fn load(path: &Path, options: &InputOptions) -> Result<Dataset> {
-    let bytes = crate::csv_read::read_file(path)?;
-    parse(&path.display().to_string(), &bytes, options)
+    let file = path.display().to_string();
+    let source =
+        std::fs::File::open(path).map_err(|e| Error::input(&file, format!("cannot read: {e}")))?;
+    read(&file, source, options, crate::csv_read::BLOCK_BYTES)
 }
 
 /// Most distinct arms accepted; more means `--arm-col` probably names a subject identifier.
@@ -167,34 +170,47 @@ impl Dataset {
 
 /// Validates the bytes of a time-to-event CSV into a sorted dataset.
 pub fn parse(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Dataset> {
-    // The checksum does not depend on the rows, so it is computed on another core meanwhile.
-    let (sha256, dataset) = rayon::join(|| sha256_hex(bytes), || parse_rows(file, bytes, options));
-    let mut dataset = dataset?;
-    dataset.sha256 = sha256;
-    Ok(dataset)
+    read(file, bytes, options, crate::csv_read::BLOCK_BYTES)
 }
 
-/// [`parse`] without the checksum (left empty).
-fn parse_rows(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Dataset> {
-    let mut reader = CsvReader::new(
-        file,
-        bytes,
-        Settings {
-            delimiter: options.delimiter,
-            comments: false,
-        },
-    )?;
-    let time_idx = reader.column(&options.time_col)?;
-    let event_idx = reader.column(&options.event_col)?;
-    let arm_idx = match &options.arm_col {
-        Some(name) => Some(reader.column(name)?),
-        None => None,
-    };
+/// Columns of a time-to-event file, looked up in its header.
+struct Columns {
+    time: usize,
+    event: usize,
+    /// The arm column and its name as in the header.
+    arm: Option<(usize, String)>,
+}
 
-    let mut arms: Vec<ArmData> = Vec::new();
-    let mut arm_slots: std::collections::HashMap<Option<String>, usize> =
-        std::collections::HashMap::new();
-    let mut zero_times_replaced = 0;
+/// The rows of one block: the block's arms in order of first appearance (with the line where
+/// each first appears), the records of each, and the error that stopped the block, if any.
+#[derive(Default)]
+struct Block {
+    records: Vec<Vec<Record>>,
+    arms: Vec<(Option<String>, u64)>,
+    zero_times_replaced: usize,
+    error: Option<Error>,
+}
+
+/// Reads the rows of one block (see [`Block`]).
+fn read_block(columns: &Columns, options: &InputOptions, reader: &mut CsvReader<'_>) -> Block {
+    let mut block = Block::default();
+    let mut slots: std::collections::HashMap<String, u32> = std::collections::HashMap::new();
+    if let Err(e) = read_rows(columns, options, reader, &mut block, &mut slots) {
+        block.error = Some(e);
+    }
+    block
+}
+
+/// The loop of [`read_block`]; stops at the first bad row, or at the row bringing the block's
+/// arms past [`MAX_ARMS`] (the file's arms are then past it too; [`read`] names the row).
+fn read_rows(
+    columns: &Columns,
+    options: &InputOptions,
+    reader: &mut CsvReader<'_>,
+    block: &mut Block,
+    slots: &mut std::collections::HashMap<String, u32>,
+) -> Result<()> {
+    let (time_idx, event_idx) = (columns.time, columns.event);
     while let Some(row) = reader.next_row()? {
         let mut time = row.number(time_idx)?;
         if time < 0.0 {
@@ -204,7 +220,7 @@ fn parse_rows(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Datase
             match options.zero_time {
                 Some(replacement) => {
                     time = replacement;
-                    zero_times_replaced += 1;
+                    block.zero_times_replaced += 1;
                 }
                 None => {
                     return Err(row.error(
@@ -227,42 +243,114 @@ fn parse_rows(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Datase
                 ))
             }
         };
-        let arm = match arm_idx {
-            Some(idx) => {
-                let value = row.text(idx)?;
+        let slot = match &columns.arm {
+            Some((idx, _)) => {
+                let value = row.text(*idx)?;
                 if value.is_empty() {
-                    return Err(row.error(idx, "arm is empty"));
+                    return Err(row.error(*idx, "arm is empty"));
                 }
-                Some(value.to_string())
+                match slots.get(value) {
+                    Some(&slot) => slot,
+                    None => {
+                        let slot = block.arms.len() as u32;
+                        slots.insert(value.to_string(), slot);
+                        block.arms.push((Some(value.to_string()), row.line()));
+                        block.records.push(Vec::new());
+                        if block.arms.len() > MAX_ARMS {
+                            return Ok(());
+                        }
+                        slot
+                    }
+                }
             }
+            None => {
+                if block.arms.is_empty() {
+                    // The line is only for the too-many-arms error, which needs an arm column.
+                    block.arms.push((None, 0));
+                    block.records.push(Vec::new());
+                }
+                0
+            }
+        };
+        block.records[slot as usize].push(Record { time, event });
+    }
+    Ok(())
+}
+
+/// [`parse`] from any source, in blocks of `block` bytes (parsed in parallel; the result and
+/// the first error reported do not depend on `block`). The checksum is of every byte read.
+pub fn read(
+    file: &str,
+    source: impl std::io::Read,
+    options: &InputOptions,
+    block: usize,
+) -> Result<Dataset> {
+    let mut arms: Vec<ArmData> = Vec::new();
+    let mut arm_slots: std::collections::HashMap<Option<String>, usize> =
+        std::collections::HashMap::new();
+    let mut zero_times_replaced = 0;
+    let settings = Settings {
+        delimiter: options.delimiter,
+        comments: false,
+    };
+    let look_up = |reader: &CsvReader<'_>| -> Result<Columns> {
+        let time = reader.column(&options.time_col)?;
+        let event = reader.column(&options.event_col)?;
+        let arm = match &options.arm_col {
+            Some(name) => Some((reader.column(name)?, name.clone())),
             None => None,
         };
-        let slot = match arm_slots.get(&arm) {
-            Some(&i) => i,
-            None => {
-                if arms.len() == MAX_ARMS {
-                    return Err(row.error(
-                        arm_idx.unwrap_or(0),
-                        format!(
-                            "more than {MAX_ARMS} distinct arms; does --arm-col name the treatment arm rather than a subject identifier?"
-                        ),
-                    ));
+        Ok(Columns { time, event, arm })
+    };
+    let take = |columns: &Columns, block: Block| -> Result<()> {
+        for ((arm, line), records) in block.arms.into_iter().zip(block.records) {
+            let slot = match arm_slots.get(&arm) {
+                Some(&i) => i,
+                None => {
+                    if arms.len() == MAX_ARMS {
+                        let (idx, name) = columns.arm.clone().unwrap_or((0, String::new()));
+                        return Err(Error::at(
+                            file,
+                            line,
+                            idx + 1,
+                            &name,
+                            format!(
+                                "more than {MAX_ARMS} distinct arms; does --arm-col name the treatment arm rather than a subject identifier?"
+                            ),
+                        ));
+                    }
+                    arm_slots.insert(arm.clone(), arms.len());
+                    arms.push(ArmData {
+                        arm,
+                        records: Vec::new(),
+                    });
+                    arms.len() - 1
                 }
-                arm_slots.insert(arm.clone(), arms.len());
-                arms.push(ArmData {
-                    arm,
-                    records: Vec::new(),
-                });
-                arms.len() - 1
-            }
-        };
-        arms[slot].records.push(Record { time, event });
-    }
+            };
+            arms[slot].records.extend(records);
+        }
+        zero_times_replaced += block.zero_times_replaced;
+        match block.error {
+            Some(e) => Err(e),
+            None => Ok(()),
+        }
+    };
+    let (_, sha256) = crate::csv_read::stream(
+        file,
+        source,
+        settings,
+        block,
+        look_up,
+        |columns, reader| read_block(columns, options, reader),
+        take,
+    )?;
     if arms.is_empty() {
-        return Err(reader.no_rows());
+        return Err(crate::csv_read::no_rows(file));
     }
     for arm in &mut arms {
-        arm.records.sort_by(|a, b| {
+        // Records equal in this order are identical, so an unstable sort gives the same result
+        // without a buffer.
+        arm.records.sort_unstable_by(|a, b| {
             a.time
                 .total_cmp(&b.time)
                 .then_with(|| b.event.cmp(&a.event))
@@ -283,7 +371,7 @@ fn parse_rows(file: &str, bytes: &[u8], options: &InputOptions) -> Result<Datase
     }
     Ok(Dataset {
         file: file.to_string(),
-        sha256: String::new(),
+        sha256,
         arms,
         zero_times_replaced,
     })

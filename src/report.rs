@@ -203,7 +203,7 @@ figcaption{{font-size:11px;color:{muted}}}
 .file{{font-family:'DejaVu Sans Mono',monospace;font-size:10.5px}}
 pre{{background:{tint};border:1px solid {rule};padding:6px 8px;font-size:10.5px;white-space:pre-wrap}}
 code{{font-family:'DejaVu Sans Mono',monospace}}
-@media print{{body{{max-width:none;padding:0}}h2{{break-after:avoid}}figure,table{{break-inside:avoid}}}}
+@media print{{body{{max-width:none;padding:0}}section+section{{break-before:page}}h2{{break-after:avoid;border-top:none}}figure,table{{break-inside:avoid}}}}
 "
     )
 }
@@ -238,6 +238,8 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
         escape(crate::CAUTION)
     ));
     let contents_at = h.len();
+
+    h.push_str(&question_section(result));
 
     // Data summary.
     h.push_str("<section id=\"data\">\n<h2>Data</h2>\n");
@@ -292,6 +294,21 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     if let Some(section) = rebuild_section(result, figures) {
         h.push_str(&section);
     }
+
+    // Plots.
+    h.push_str("<section id=\"plots\">\n<h2>Fitted curves against the data</h2>\n");
+    h.push_str(&guide("Left of the end-of-follow-up line, compare each fitted curve with the Kaplan–Meier estimate; right of it the curves differ by assumption alone. In the straight-line diagnostics, points on a straight line favour the family that is straight on that scale."));
+    for arm in &fits.data.arms {
+        let label = arm.arm.as_deref();
+        let suffix = crate::plot::file_stem(label);
+        if let Some(name) = label {
+            h.push_str(&format!("<h3>Arm {}</h3>\n", escape(name)));
+        }
+        h.push_str(&figure(figures, &format!("survival{suffix}.svg"), "Kaplan–Meier estimate with 95% log-log band, censoring ticks and numbers at risk; fitted curves extrapolated to the horizon of the checks."));
+        h.push_str(&figure(figures, &format!("hazard{suffix}.svg"), "Kernel-smoothed Nelson–Aalen hazard (Epanechnikov kernel, Silverman's bandwidth over the event times; shown where the window lies within the event times) beside each fitted hazard."));
+        h.push_str(&figure(figures, &format!("diagnostics{suffix}.svg"), "Straight-line diagnostics: Kaplan–Meier points and each fitted curve on the scale where one family is a straight line in ln t."));
+    }
+    h.push_str("</section>\n");
 
     // Fit comparison.
     h.push_str("<section id=\"fits\">\n<h2>Fit comparison</h2>\n");
@@ -376,20 +393,7 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
         h.push_str("</section>\n");
     }
 
-    // Plots.
-    h.push_str("<section id=\"plots\">\n<h2>Fitted curves against the data</h2>\n");
-    h.push_str(&guide("Left of the end-of-follow-up line, compare each fitted curve with the Kaplan–Meier estimate; right of it the curves differ by assumption alone. In the straight-line diagnostics, points on a straight line favour the family that is straight on that scale."));
-    for arm in &fits.data.arms {
-        let label = arm.arm.as_deref();
-        let suffix = crate::plot::file_stem(label);
-        if let Some(name) = label {
-            h.push_str(&format!("<h3>Arm {}</h3>\n", escape(name)));
-        }
-        h.push_str(&figure(figures, &format!("survival{suffix}.svg"), "Kaplan–Meier estimate with 95% log-log band, censoring ticks and numbers at risk; fitted curves extrapolated to the horizon of the checks."));
-        h.push_str(&figure(figures, &format!("hazard{suffix}.svg"), "Kernel-smoothed Nelson–Aalen hazard (Epanechnikov kernel, Silverman's bandwidth over the event times; shown where the window lies within the event times) beside each fitted hazard."));
-        h.push_str(&figure(figures, &format!("diagnostics{suffix}.svg"), "Straight-line diagnostics: Kaplan–Meier points and each fitted curve on the scale where one family is a straight line in ln t."));
-    }
-    h.push_str("</section>\n");
+    h.push_str(&plausibility_section(result, figures));
 
     // Chosen curve.
     let c = &result.chosen;
@@ -401,8 +405,11 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     if let Some(arm) = &c.arm {
         facts.push(("arm", arm.clone()));
     }
+    facts.push(("chosen by", result.chosen_by.clone()));
+    if let Some(reason) = &result.reason {
+        facts.push(("why", reason.clone()));
+    }
     facts.extend([
-        ("chosen by", result.chosen_by.clone()),
         ("parameter time unit", unit.name().to_string()),
         (
             "log-likelihood",
@@ -458,6 +465,32 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     }
     h.push_str("</section>\n");
 
+    // Adjustments: the curve carried forward after the adjustments.
+    h.push_str("<section id=\"adjustments\">\n<h2>Adjustments</h2>\n");
+    h.push_str(&guide("Every setting listed here changes the fitted curve before it is cut into cycles; the same list is in each output file's provenance."));
+    match &result.adjusted {
+        None => h.push_str("<p>None: the chosen curve is used as fitted (no hazard ratio, acceleration factor or background mortality was requested).</p>\n"),
+        Some(adjusted) => {
+            h.push_str("<p>The tunnel table, the truncation and the within-cycle checks use the chosen curve with these adjustments (<code>[adjust]</code> of the analysis file):</p>\n<dl>\n");
+            // The floor lines over the tunnel table's count, as its files record them.
+            let floor = result.floor_report(result.tunnels.rows.len());
+            for (k, v) in adjusted.metadata.iter().chain(&floor) {
+                h.push_str(&format!("<dt>{}</dt><dd><code>{}</code></dd>\n", escape(k), escape(v)));
+            }
+            h.push_str("</dl>\n");
+            for w in &adjusted.warnings {
+                h.push_str(&format!("<p class=\"warning\">Warning: {}</p>\n", escape(w)));
+            }
+            let stem = format!("population{}", crate::plot::file_stem(c.arm.as_deref()));
+            if figures.iter().any(|(n, _)| *n == format!("{stem}.svg")) {
+                h.push_str(&format!(
+                    "<p>The adjusted curve is drawn in black beside the unadjusted fits and general-population survival in <a href=\"#fig-{}\">the population plot</a> of the plausibility section.</p>\n",
+                    escape(&stem)
+                ));
+            }
+        }
+    }
+    h.push_str("</section>\n");
     // Tunnel table.
     let t = &result.tunnels;
     let doc = result.tunnel_document();
@@ -543,25 +576,6 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
         h.push_str(&section);
     }
 
-    // Adjustments and draws.
-    h.push_str("<section id=\"adjustments\">\n<h2>Adjustments</h2>\n");
-    h.push_str(&guide("Every setting listed here changes the fitted curve before it is cut into cycles; the same list is in each output file's provenance."));
-    match &result.adjusted {
-        None => h.push_str("<p>None: the chosen curve is used as fitted (no hazard ratio, acceleration factor or background mortality was requested).</p>\n"),
-        Some(adjusted) => {
-            h.push_str("<p>The tunnel table, the truncation and the within-cycle checks use the chosen curve with these adjustments (<code>[adjust]</code> of the analysis file):</p>\n<dl>\n");
-            // The floor lines over the tunnel table's count, as its files record them.
-            let floor = result.floor_report(result.tunnels.rows.len());
-            for (k, v) in adjusted.metadata.iter().chain(&floor) {
-                h.push_str(&format!("<dt>{}</dt><dd><code>{}</code></dd>\n", escape(k), escape(v)));
-            }
-            h.push_str("</dl>\n");
-            for w in &adjusted.warnings {
-                h.push_str(&format!("<p class=\"warning\">Warning: {}</p>\n", escape(w)));
-            }
-        }
-    }
-    h.push_str("</section>\n");
     h.push_str("<section id=\"draws\">\n<h2>Uncertainty draws</h2>\n");
     h.push_str(&guide("The spread between the 2.5% and 97.5% columns is parameter uncertainty only: it does not cover the choice of family or of the extrapolation."));
     match (a.draws, result.draws_document()) {
@@ -638,6 +652,203 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     let listed = contents(&h[contents_at..]);
     h.insert_str(contents_at, &listed);
     Ok(h)
+}
+
+/// The question the analysis answers: the population (title), the arm the tunnel table is
+/// for, where the data come from, the general population compared with, the curve chosen.
+fn question_section(result: &RunResult) -> String {
+    let a = &result.analysis;
+    let mut h = String::from("<section id=\"question\">\n<h2>The question</h2>\n");
+    h.push_str(&guide("What this analysis is for: whose survival is extrapolated, from which data, and which curve is carried into the tunnel states. Every later section answers part of it."));
+    let mut facts: Vec<(&str, String)> = vec![(
+        "population",
+        a.title
+            .clone()
+            .unwrap_or_else(|| "not stated (give title = \"...\" in the analysis file)".into()),
+    )];
+    facts.push((
+        "arm modelled",
+        result
+            .chosen
+            .arm
+            .clone()
+            .unwrap_or_else(|| "the only arm of the data".into()),
+    ));
+    let source = match &a.rebuild {
+        Some(r) => format!(
+            "{} (rebuilt from the digitised curve {}); {} subjects, {} events; time in {}",
+            a.data_name, r.curve.name, result.fits.data.n, result.fits.data.events, a.time_unit
+        ),
+        None => format!(
+            "{}; {} subjects, {} events; time in {}",
+            a.data_name, result.fits.data.n, result.fits.data.events, a.time_unit
+        ),
+    };
+    facts.push(("data source", source));
+    if let Some(p) = result
+        .fits
+        .plausibility
+        .as_ref()
+        .and_then(|r| r.population.as_ref())
+    {
+        facts.push((
+            "general population",
+            format!(
+                "{} ({}), age {} at entry",
+                p.file,
+                p.column,
+                crate::format::readable(p.start_age)
+            ),
+        ));
+    }
+    let mut chosen = format!("{} ({})", result.curve.family.name(), result.chosen_by);
+    if let Some(reason) = &result.reason {
+        chosen.push_str(&format!(": {reason}"));
+    }
+    facts.push(("curve carried forward", chosen));
+    h.push_str("<dl>\n");
+    for (k, v) in facts {
+        h.push_str(&format!("<dt>{}</dt><dd>{}</dd>\n", escape(k), escape(&v)));
+    }
+    h.push_str("</dl>\n</section>\n");
+    h
+}
+
+/// The plausibility section: the printed comparison (ranks, ΔAIC, AIC weights, landmarks,
+/// means, targets, population) as `run` prints it, the landmark intervals per fit, the targets
+/// and each arm's plot against the general population.
+fn plausibility_section(result: &RunResult, figures: &[Figure]) -> String {
+    use crate::plausibility::comparison::{
+        population_text, survival_text, target_flag, years_label,
+    };
+    let fits = &result.fits;
+    let mut h =
+        String::from("<section id=\"plausibility\">\n<h2>Plausibility of the extrapolation</h2>\n");
+    h.push_str(&guide("Read across each family's row: survival at the landmarks and the mean are what the extrapolation implies for patients; a fit outside an external target, or one whose hazard falls below the general population's, needs a reason before it is used."));
+    let display = crate::plausibility::comparison::default_display_unit(fits);
+    h.push_str(&format!(
+        "<p>The comparison as <code>tunnelcast run</code> prints it (times in {display}):</p>\n<pre id=\"comparison\">{}</pre>\n",
+        escape(&crate::plausibility::comparison::render(fits, display))
+    ));
+    let Some(record) = &fits.plausibility else {
+        h.push_str("</section>\n");
+        return h;
+    };
+    let how = if record.interval == "draws" {
+        "2.5–97.5 percentiles of parameter draws"
+    } else {
+        "delta method on ln(−ln S), from each fit's covariance"
+    };
+    h.push_str(&format!(
+        "<p>Survival at each landmark (years since entry) with its 95% interval ({how}); RMST: mean restricted to the arm's longest follow-up; mean: restricted to {} years; both in years. Also in <span class=\"file\">fit.json</span> (<code>landmarks</code>, <code>rmst_followup</code>, <code>mean_years</code>).</p>\n",
+        crate::format::readable(record.mean_horizon_years)
+    ));
+    let has_targets = fits.fits.iter().any(|f| !f.targets.is_empty());
+    let has_population = fits
+        .fits
+        .iter()
+        .any(|f| f.below_population_from_years.is_some());
+    for arm in &fits.data.arms {
+        let label = arm.arm.as_deref();
+        if let Some(name) = label {
+            h.push_str(&format!("<h3>Arm {}</h3>\n", escape(name)));
+        }
+        let mut header: Vec<String> = vec!["family".into()];
+        header.extend(
+            record
+                .landmarks_years
+                .iter()
+                .map(|y| format!("S({}) (95% CI)", years_label(*y))),
+        );
+        header.extend(["RMST (y)".to_string(), "mean (y)".to_string()]);
+        if has_targets {
+            header.push("targets".into());
+        }
+        if has_population {
+            header.push("below population from (y)".into());
+        }
+        let rows: Vec<Vec<String>> = fits
+            .fits
+            .iter()
+            .filter(|f| f.arm.as_deref() == label && f.converged)
+            .map(|f| {
+                let mut row = vec![f.family.clone()];
+                for (i, _) in record.landmarks_years.iter().enumerate() {
+                    row.push(match f.landmarks.get(i) {
+                        Some(l) => match (l.lower, l.upper) {
+                            (Some(lo), Some(hi)) => format!(
+                                "{} ({} to {})",
+                                survival_text(l.survival),
+                                survival_text(lo),
+                                survival_text(hi)
+                            ),
+                            _ => survival_text(l.survival),
+                        },
+                        None => "NA".into(),
+                    });
+                }
+                let opt = |x: Option<f64>| {
+                    x.map(|v| crate::format::fixed(v, 2))
+                        .unwrap_or_else(|| "NA".into())
+                };
+                row.push(opt(f.rmst_followup));
+                row.push(opt(f.mean_years));
+                if has_targets {
+                    row.push(target_flag(f));
+                }
+                if has_population {
+                    row.push(population_text(f, record.mean_horizon_years));
+                }
+                row
+            })
+            .collect();
+        let header_refs: Vec<&str> = header.iter().map(String::as_str).collect();
+        let numeric: Vec<bool> = (0..header.len()).map(|i| i > 0).collect();
+        h.push_str(&text_table(
+            &format!("table-landmarks{}", crate::plot::file_stem(label)),
+            &header_refs,
+            &rows,
+            &numeric,
+        ));
+        h.push_str(&figure(
+            figures,
+            &format!("population{}.svg", crate::plot::file_stem(label)),
+            "Each fit's survival (and, in the arm carried forward, the chosen curve with its adjustments, in black) beside general-population survival from the same age at entry (thick grey line). A curve above the population's line implies patients outlive people of the same age in general.",
+        ));
+    }
+    if !record.targets.is_empty() {
+        h.push_str("<h3>External targets</h3>\n");
+        let rows: Vec<Vec<String>> = record
+            .targets
+            .iter()
+            .map(|t| {
+                vec![
+                    t.time.clone(),
+                    t.arm.clone().unwrap_or_else(|| "every arm".into()),
+                    crate::format::readable(t.lower),
+                    crate::format::readable(t.upper),
+                    t.source.clone().unwrap_or_default(),
+                ]
+            })
+            .collect();
+        h.push_str(&text_table(
+            "table-targets",
+            &["time", "arm", "lower", "upper", "source"],
+            &rows,
+            &[false, false, true, true, false],
+        ));
+    }
+    if let Some(p) = &record.population {
+        h.push_str(&format!(
+            "<p>General population: life table <span class=\"file\">{}</span> (column {}, SHA-256 <code>{}</code>), age {} at entry. “Below population from” is the first time after the end of follow-up at which a fit's hazard is below the population's hazard at the same age (constant within each year of age at −ln(1 − qx)); past the table's last age its last hazard is held.</p>\n",
+            escape(&p.file),
+            escape(&p.column),
+            escape(&p.sha256),
+            crate::format::readable(p.start_age)
+        ));
+    }
+    h.push_str("</section>\n");
+    h
 }
 
 /// The payoff section (`[payoffs]`): the schedule, the per-tunnel payoff columns, the method

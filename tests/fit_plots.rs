@@ -68,3 +68,89 @@ fn refuses_a_non_empty_folder_without_force() {
         "mine"
     );
 }
+
+/// The `points` of every polyline of `svg` drawn in `stroke` at `width`, as pixel pairs.
+fn polylines(svg: &str, stroke: &str, width: &str) -> Vec<Vec<(f64, f64)>> {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    doc.descendants()
+        .filter(|n| n.has_tag_name("polyline"))
+        .filter(|n| {
+            n.attribute("stroke") == Some(stroke) && n.attribute("stroke-width") == Some(width)
+        })
+        .map(|n| {
+            n.attribute("points")
+                .unwrap()
+                .split_whitespace()
+                .map(|p| {
+                    let (x, y) = p.split_once(',').unwrap();
+                    (x.parse().unwrap(), y.parse().unwrap())
+                })
+                .collect()
+        })
+        .collect()
+}
+
+#[test]
+fn with_a_life_table_every_fit_is_drawn_against_the_population() {
+    let dir = tempfile::tempdir().unwrap();
+    let lifetable = concat!(env!("CARGO_MANIFEST_DIR"), "/data/demo_lifetable.csv");
+    Command::cargo_bin("tunnelcast")
+        .unwrap()
+        .current_dir(dir.path())
+        .args(["fit", demo_csv().to_str().unwrap(), "--time-unit", "months"])
+        .args([
+            "--families",
+            "weibull,lognormal,exponential",
+            "--plots",
+            "plots",
+        ])
+        .args([
+            "--background",
+            lifetable,
+            "--start-age",
+            "62",
+            "--sex",
+            "female",
+        ])
+        .assert()
+        .success();
+    let plots = dir.path().join("plots");
+    assert!(plots.join("population.png").exists());
+    let svg = std::fs::read_to_string(plots.join("population.svg")).unwrap();
+    assert!(
+        svg.contains("Time since entry (years)"),
+        "years: the data span over two years"
+    );
+    // One line per fit in its family's colour (and a legend line each).
+    for colour in ["#E69A2E", "#8C4BAD", "#3B6FB6"] {
+        assert_eq!(polylines(&svg, colour, "2").len(), 2, "{colour}");
+    }
+    // The population line (thick grey, the longest of its two polylines; the other is the
+    // legend's): starts at survival 1 with the fits and only falls (pixel y only grows).
+    let population = polylines(&svg, "#707070", "5")
+        .into_iter()
+        .max_by_key(Vec::len)
+        .unwrap();
+    let weibull = polylines(&svg, "#E69A2E", "2")
+        .into_iter()
+        .max_by_key(Vec::len)
+        .unwrap();
+    assert_eq!(population[0], weibull[0], "both start at (0, 1)");
+    assert!(population
+        .windows(2)
+        .all(|w| w[1].1 >= w[0].1 && w[1].0 >= w[0].0));
+    assert!(
+        population.last().unwrap().1 > population[0].1 + 100.0,
+        "it falls"
+    );
+    // Without a life table there is no population plot.
+    let other = tempfile::tempdir().unwrap();
+    Command::cargo_bin("tunnelcast")
+        .unwrap()
+        .current_dir(other.path())
+        .args(["fit", demo_csv().to_str().unwrap(), "--time-unit", "months"])
+        .args(["--families", "weibull", "--plots", "plots"])
+        .assert()
+        .success();
+    assert!(!other.path().join("plots/population.svg").exists());
+}

@@ -121,36 +121,44 @@ fn run_writes_every_output_and_the_report_matches_the_json() {
         },
     )
     .expect("report.html is well-formed");
-    for id in [
+    // The reviewer's order (issue 18): the question, the data and Kaplan–Meier curve, the
+    // comparison, plausibility, the choice, the adjusted curve, tunnels, horizon checks,
+    // uncertainty, reproducibility.
+    let order = [
+        "question",
         "data",
-        "fits",
         "plots",
+        "fits",
+        "plausibility",
         "chosen",
+        "adjustments",
         "tunnels",
         "truncation",
         "within-cycle",
-        "adjustments",
         "draws",
         "caution",
         "reproducibility",
-    ] {
-        assert!(
-            doc.descendants()
-                .any(|n| n.has_tag_name("section") && n.attribute("id") == Some(id)),
-            "section {id} missing"
-        );
-    }
+    ];
+    let found: Vec<&str> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("section"))
+        .filter_map(|n| n.attribute("id"))
+        .filter(|id| order.contains(id))
+        .collect();
+    assert_eq!(found, order, "sections missing or out of order");
     // Each of these sections opens with its one-line reading guide.
     for id in [
+        "question",
         "data",
-        "fits",
         "plots",
+        "fits",
+        "plausibility",
         "chosen",
+        "adjustments",
         "tunnels",
         "truncation",
         "within-cycle",
         "payoffs",
-        "adjustments",
         "draws",
         "caution",
         "reproducibility",
@@ -188,8 +196,9 @@ fn run_writes_every_output_and_the_report_matches_the_json() {
         || n.attribute("href").is_some_and(|h| !h.starts_with('#'))));
     // Every plot of the run is inline.
     let svgs = doc.descendants().filter(|n| n.has_tag_name("svg")).count();
-    // Fits per arm (3 each), tunnels, horizon and the payoff accrual plot.
-    assert_eq!(svgs, 3 * 2 + 3);
+    // Fits per arm (3 each, and the population plot: the demo has a life table), tunnels,
+    // horizon and the payoff accrual plot.
+    assert_eq!(svgs, 4 * 2 + 3);
 
     // Tunnel table: every shown cell equals tunnels.json.
     let tunnels = read_table(&out.join("tunnels.json"));

@@ -47,7 +47,8 @@ pub struct FitArgs {
     #[arg(long)]
     pub json: Option<PathBuf>,
     /// Write plots (Kaplan–Meier with fitted curves, hazards, straight-line diagnostics; SVG
-    /// and PNG) into this folder, extrapolated to three times the longest follow-up.
+    /// and PNG) into this folder, extrapolated to three times the longest follow-up; with
+    /// --background also every fit against general-population survival (population*.svg).
     #[arg(long)]
     pub plots: Option<PathBuf>,
     /// Field delimiter (detected from the header when not given).
@@ -232,6 +233,12 @@ pub fn run(args: FitArgs) -> Result<()> {
         let longest = data.arms.iter().map(|a| a.max_time()).fold(0.0, f64::max);
         let staged = output::StagedFolder::new(dir)?;
         for (name, bytes) in crate::plot::fit_figures(&data, &file, 3.0 * longest)? {
+            staged.write(&name, &bytes)?;
+        }
+        // With a life table: every fit against the general population of the same age.
+        for (name, bytes) in
+            crate::plot::population_figures(&file, &plausibility, display, None, &[])?
+        {
             staged.write(&name, &bytes)?;
         }
         if let Some(effects) = &effects {

@@ -59,6 +59,12 @@ pub struct RunResult {
     pub chosen: FamilyFit,
     /// Why that fit (e.g. "smallest AIC among converged fits").
     pub chosen_by: String,
+    /// `[choice] reason` of the analysis file, when given (required when the chosen family is
+    /// not the lowest AIC of its arm).
+    pub reason: Option<String>,
+    /// The plausibility settings every fit was annotated with (landmarks, means, targets,
+    /// general population); the population plot reads its life table from here.
+    pub plausibility: crate::plausibility::Settings,
     /// The chosen curve in the data's time unit.
     pub curve: ParametricCurve,
     /// The chosen curve with the `[adjust]` adjustments, when any were asked for; the
@@ -139,6 +145,11 @@ impl RunResult {
         m.extend([
             ("family".into(), family.name().to_string()),
             ("chosen_by".into(), self.chosen_by.clone()),
+        ]);
+        if let Some(reason) = &self.reason {
+            m.push(("choice_reason".into(), reason.clone()));
+        }
+        m.extend([
             (
                 "parameters".into(),
                 crate::cmd::curve_args::parameter_text(family, &self.curve.params),
@@ -760,6 +771,8 @@ pub fn compute(
             columns,
         )?;
     }
+    let plausibility = plausibility_settings(&analysis, &data, lifetable_bytes)?;
+    crate::plausibility::annotate(&mut fits, &plausibility);
     let in_arm = |f: &&FamilyFit| f.arm == arm;
     let (chosen, chosen_by) = match analysis.choose {
         Choice::BestAic => {
@@ -806,6 +819,28 @@ pub fn compute(
             (fit.clone(), "named in the analysis file".to_string())
         }
     };
+    let lowest = fits
+        .fits
+        .iter()
+        .filter(in_arm)
+        .filter(|f| f.converged)
+        .filter_map(|f| f.aic.map(|aic| (f, aic)))
+        .min_by(|a, b| a.1.total_cmp(&b.1));
+    let reason = analysis.reason.as_ref().map(|r| r.text.clone());
+    if let (Some((best, best_aic)), Some(aic), None) = (lowest, chosen.aic, &reason) {
+        if aic > best_aic {
+            return Err(analysis.error_at(
+                analysis.choose_place,
+                format!(
+                    "[fit] choose: {} is not the lowest AIC{} ({} is, by {}); say why it is chosen with [choice] reason = \"...\"",
+                    chosen.family,
+                    chosen.arm.as_deref().map(|a| format!(" in arm {a}")).unwrap_or_default(),
+                    best.family,
+                    crate::format::fixed(aic - best_aic, 2)
+                ),
+            ));
+        }
+    }
     let family = chosen.family().map_err(Error::Computation)?;
     let params = chosen
         .param_vector(family)
@@ -998,6 +1033,8 @@ pub fn compute(
         fits,
         chosen,
         chosen_by,
+        reason,
+        plausibility,
         curve,
         adjusted,
         draws,
@@ -1013,6 +1050,77 @@ pub fn compute(
         rebuild: None,
         payoffs,
     })
+}
+
+/// The plausibility settings of `[plausibility]` (and `[adjust]`'s life table), with the
+/// targets and the life table read; errors name the analysis file's keys. `lifetable_bytes`
+/// are the `[adjust] background` table's bytes when compiled in (the demo).
+pub fn plausibility_settings(
+    analysis: &Analysis,
+    data: &Dataset,
+    lifetable_bytes: Option<&[u8]>,
+) -> Result<crate::plausibility::Settings> {
+    use crate::adjust::background::{BackgroundHazard, BeyondTable};
+    let p = &analysis.plausibility;
+    let mut settings = crate::plausibility::Settings {
+        landmarks_years: p.landmarks_years.clone(),
+        mean_horizon_years: p.mean_horizon_years,
+        ..Default::default()
+    };
+    let read = |f: &NamedFile, key: &str| {
+        std::fs::read(&f.path).map_err(|e| {
+            analysis.error_at(
+                f.place,
+                format!("{key} {}: cannot read: {e}", f.path.display()),
+            )
+        })
+    };
+    if let Some(t) = &p.targets {
+        let bytes = read(t, "[plausibility] targets")?;
+        settings.targets = crate::plausibility::targets::parse(&t.name, &bytes)?;
+        settings.targets_file = Some(t.name.clone());
+        let arms: Vec<Option<String>> = data.arms.iter().map(|a| a.arm.clone()).collect();
+        crate::plausibility::targets::check_arms(&settings.targets, &arms, &t.name)?;
+    }
+    if let Some(source) = &p.population {
+        let key = if source.from_adjust {
+            "[adjust] background"
+        } else {
+            "[plausibility] background"
+        };
+        let read_bytes;
+        let bytes = match (source.from_adjust, lifetable_bytes) {
+            (true, Some(bytes)) => bytes,
+            _ => {
+                read_bytes = read(&source.file, key)?;
+                &read_bytes
+            }
+        };
+        let table = lifetable::parse(&source.file.name, bytes, source.sex)?;
+        let hazard = BackgroundHazard::new(
+            table,
+            source.start_age,
+            BeyondTable::HoldLast,
+            crate::units::TimeUnit::Years,
+        )
+        .map_err(|e| {
+            let message = match e {
+                Error::Usage(m) => m,
+                other => other.to_string(),
+            };
+            let section = if source.from_adjust {
+                "[adjust]"
+            } else {
+                "[plausibility]"
+            };
+            analysis.error_at(
+                source.file.place,
+                format!("{section} {}", message.replace("--start-age", "start_age")),
+            )
+        })?;
+        settings.population = Some(hazard);
+    }
+    Ok(settings)
 }
 
 /// Every output file of a finished analysis, by name. Each CSV file gets its descriptor
@@ -1059,6 +1167,18 @@ pub fn render_files(result: &RunResult, created: Option<u64>) -> Result<Vec<(Str
         .fold(0.0, f64::max);
     let horizon = (result.horizon_cycles as f64 * result.analysis.cycle.in_unit(unit)).max(longest);
     let mut figures = plot::fit_figures(&result.data, &result.fits, horizon)?;
+    let adjusted_label = format!("{}, adjusted", result.curve.family.name());
+    let extra: Vec<(String, &dyn Curve)> = match &result.adjusted {
+        Some(a) => vec![(adjusted_label, a.as_ref() as &dyn Curve)],
+        None => Vec::new(),
+    };
+    figures.extend(plot::population_figures(
+        &result.fits,
+        &result.plausibility,
+        crate::plausibility::comparison::default_display_unit(&result.fits),
+        result.chosen.arm.as_deref(),
+        &extra,
+    )?);
     let tunnel_plot = TunnelPlot {
         title: format!(
             "Tunnel table: {}{}",
@@ -1130,12 +1250,16 @@ pub fn summary(result: &RunResult, folder: &Path) -> String {
         .as_deref()
         .map(|a| format!(", arm {a}"))
         .unwrap_or_default();
-    let mut text = crate::cmd::fit::render_comparison(&result.fits);
+    let display = crate::plausibility::comparison::default_display_unit(&result.fits);
+    let mut text = crate::plausibility::comparison::render(&result.fits, display);
     text.push_str(&format!(
         "\nchosen curve: {} ({}{arm})\n",
         result.curve.describe(),
         result.chosen_by
     ));
+    if let Some(reason) = &result.reason {
+        text.push_str(&format!("why: {reason}\n"));
+    }
     if let Some(adjusted) = &result.adjusted {
         // The adjusted curve's description repeats the chosen curve's; show what it adds.
         let full = adjusted.describe();

@@ -154,6 +154,16 @@ pub trait Family: Sync + Send {
     fn rescaled_family(&self, _factor: f64) -> Option<&'static dyn Family> {
         None
     }
+
+    /// A fit decided by the family itself before the general search, e.g. a cure model whose
+    /// maximum is on the boundary (no cured fraction); `None` to run the general search.
+    fn fit_on_boundary(
+        &self,
+        _data: &FitData,
+        _arm: Option<&str>,
+    ) -> Option<crate::fit::FamilyFit> {
+        None
+    }
 }
 
 /// What a natural parameter is measured in, for a curve with time in some unit. Converting a

@@ -239,6 +239,11 @@ fn render_arm(file: &FitFile, arm: &ArmSummary, display: TimeUnit) -> String {
             ));
         }
     }
+    for fit in fits.iter().filter(|f| f.converged) {
+        if let Some(note) = &fit.note {
+            out.push_str(&format!("note: {}: {note}\n", fit.family));
+        }
+    }
     for fit in fits.iter().filter(|f| !f.converged) {
         out.push_str(&format!(
             "note: {} did not converge: {}\n",

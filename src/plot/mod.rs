@@ -15,6 +15,7 @@ mod effects;
 mod hazard;
 mod horizon;
 mod payoffs;
+mod population;
 mod rebuild;
 mod survival;
 mod tunnels;
@@ -24,6 +25,7 @@ pub use effects::{EffectsPlot, ResidualPanel};
 pub use hazard::{smoothed_hazard, HazardPlot, SmoothedHazard};
 pub use horizon::HorizonPlot;
 pub use payoffs::{PayoffPanel, PayoffPlot};
+pub use population::PopulationPlot;
 pub use rebuild::{RebuildPlot, RebuildPlotArm};
 pub use survival::SurvivalPlot;
 pub use tunnels::{TunnelMarker, TunnelPlot};
@@ -329,6 +331,74 @@ pub fn fit_figures(data: &Dataset, file: &FitFile, horizon: f64) -> Result<Vec<F
                 curves,
             },
         )?);
+    }
+    Ok(figures)
+}
+
+/// End of the population plot's time axis, years: the mean horizon, or earlier where the
+/// population's survival falls below 1%, but at least one and a half times the follow-up.
+pub fn population_horizon_years(
+    population: &crate::adjust::background::BackgroundHazard,
+    mean_horizon_years: f64,
+    follow_up_years: f64,
+) -> f64 {
+    let mut end = mean_horizon_years;
+    let mut t = 0.0;
+    while t < mean_horizon_years {
+        t += 0.5;
+        if crate::plausibility::population::population_survival(population, t) < 0.01 {
+            end = t;
+            break;
+        }
+    }
+    end.max(1.5 * follow_up_years)
+}
+
+/// The population plot of every arm (`population-ARM.svg`/`.png`): the converged fits against
+/// general-population survival from the same age, times in `display`; `extra` adds labelled
+/// curves to the arm `extra_arm` (the chosen curve with its adjustments). Nothing without a
+/// life table in `settings`.
+pub fn population_figures(
+    file: &FitFile,
+    settings: &crate::plausibility::Settings,
+    display: crate::units::TimeUnit,
+    extra_arm: Option<&str>,
+    extra: &[(String, &dyn Curve)],
+) -> Result<Vec<Figure>> {
+    let Some(population) = &settings.population else {
+        return Ok(Vec::new());
+    };
+    let unit = file.data.time_unit;
+    let mut figures = Vec::new();
+    for arm in &file.data.arms {
+        let label = arm.arm.as_deref();
+        let owned = fitted_curves(file, label);
+        let curves: Vec<(String, &dyn Curve)> = owned
+            .iter()
+            .map(|(n, c)| (n.clone(), c as &dyn Curve))
+            .collect();
+        let follow_years = unit.convert(arm.max_time, crate::units::TimeUnit::Years);
+        let horizon_years =
+            population_horizon_years(population, settings.mean_horizon_years, follow_years);
+        let to_display = crate::units::TimeUnit::Years.factor_to(display);
+        let title = match label {
+            Some(a) => format!("Fitted survival and the general population: arm {a}"),
+            None => "Fitted survival and the general population".to_string(),
+        };
+        let plot = PopulationPlot {
+            title,
+            unit: display,
+            curves,
+            extra: if label == extra_arm {
+                extra.to_vec()
+            } else {
+                Vec::new()
+            },
+            population,
+            follow_up: follow_years * to_display,
+            horizon: horizon_years * to_display,
+        };
+        figures.extend(both(&format!("population{}", file_stem(label)), &plot)?);
     }
     Ok(figures)
 }
