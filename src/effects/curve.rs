@@ -9,7 +9,7 @@
 //! their counts.
 
 use super::design::{Covariate, Design};
-use super::joint::{ln_survival_at, Model};
+use super::joint::{ln_survival_at, JointFamily, Model};
 use super::report::JointSummary;
 use crate::curve::Curve;
 use crate::error::{Error, Result};
@@ -101,6 +101,8 @@ pub fn record(design: &Design, covariates: &[Covariate]) -> DesignRecord {
 /// weights summing to 1 (one row at fixed covariates).
 #[derive(Debug, Clone)]
 pub struct JointCurve {
+    /// Family of the reference curve, with how the effects move its parameters.
+    pub joint_family: &'static dyn JointFamily,
     /// PH or AFT.
     pub model: Model,
     /// Parameters on the estimation scale.
@@ -129,13 +131,13 @@ impl Curve for JointCurve {
             return 0.0;
         }
         if let [(_, x)] = self.rows.as_slice() {
-            return ln_survival_at(self.model, &self.theta, t, x);
+            return ln_survival_at(self.joint_family, self.model, &self.theta, t, x);
         }
         // ln Σ wᵢ Sᵢ on the log scale (every Sᵢ may underflow far in the tail).
         let terms: Vec<f64> = self
             .rows
             .iter()
-            .map(|(lw, x)| lw + ln_survival_at(self.model, &self.theta, t, x))
+            .map(|(lw, x)| lw + ln_survival_at(self.joint_family, self.model, &self.theta, t, x))
             .collect();
         let m = terms.iter().copied().fold(f64::NEG_INFINITY, f64::max);
         if m == f64::NEG_INFINITY {
@@ -434,8 +436,11 @@ pub fn select(
             format!(", {how}")
         }
     );
+    let joint_family = super::joint::by_name(family.name())
+        .ok_or_else(|| bad("has a family with no joint form".to_string()))?;
     Ok(JointSource {
         curve: JointCurve {
+            joint_family,
             model,
             theta,
             rows,
