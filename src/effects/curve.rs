@@ -465,6 +465,7 @@ mod tests {
         // with x = 0 and x = ln 1.001 the two curves are e^−1000 and e^−1001 (both 0 in f64);
         // their mean is e^−1000·(1 + e^−1)/2, so ln S̄ = −1000 + ln((1 + e^−1)/2) (by hand).
         let curve = JointCurve {
+            joint_family: crate::effects::joint::by_name("weibull").expect("joint Weibull"),
             model: Model::Ph,
             theta: vec![0.0, 0.0, 1.0],
             rows: vec![(0.5f64.ln(), vec![0.0]), (0.5f64.ln(), vec![1.001f64.ln()])],
