@@ -6,7 +6,7 @@
 //! Tables are rendered from the same export documents as the CSV/JSON files, so the numbers
 //! shown are the exported numbers (at 6 significant digits).
 
-use crate::cmd::run::RunResult;
+use crate::cmd::run::compute::RunResult;
 use crate::error::Result;
 use crate::export::{Cell, Table};
 use crate::format::sig;
@@ -943,7 +943,7 @@ fn rebuild_section(result: &RunResult, figures: &[Figure]) -> Option<String> {
     h.push_str(&guide("The records fitted in this report are reconstructed, not observed; the smaller the differences below, the closer the rebuilt curve follows the published figure."));
     h.push_str(&format!(
         "<p class=\"caution\">{}</p>\n",
-        escape(crate::cmd::run::REBUILD_CAUTION)
+        escape(crate::cmd::run::compute::REBUILD_CAUTION)
     ));
     let mut from = format!(
         "the digitised Kaplan–Meier points <code>{}</code>",

@@ -615,29 +615,32 @@ fn entry_cycles_report_where_the_floor_binds_for_each_entry_age() {
         .map(|a| (a, if a < 65 { 0.001 } else { 0.05 }))
         .collect();
     write_table(dir.path(), "step.csv", &rows);
-    let doc = tunnels_json(
-        dir.path(),
-        &[
-            "--family",
-            "exponential",
-            "--param",
-            "rate=0.002",
-            "--time-unit",
-            "months",
-            "--cycle",
-            "1 year",
-            "--count",
-            "10",
-            "--background",
-            "step.csv",
-            "--start-age",
-            "60",
-            "--background-mode",
-            "floor",
-            "--entry-cycles",
-            "3",
-        ],
-    );
+    let with_mode = |mode: &str| {
+        tunnels_json(
+            dir.path(),
+            &[
+                "--family",
+                "exponential",
+                "--param",
+                "rate=0.002",
+                "--time-unit",
+                "months",
+                "--cycle",
+                "1 year",
+                "--count",
+                "10",
+                "--background",
+                "step.csv",
+                "--start-age",
+                "60",
+                "--background-mode",
+                mode,
+                "--entry-cycles",
+                "3",
+            ],
+        )
+    };
+    let doc = with_mode("floor");
     assert_eq!(doc.metadata["floor_binds_in_tunnels"], "6–10");
     assert_eq!(
         doc.metadata["floor_binds_in_tunnels_by_entry"],
@@ -662,29 +665,7 @@ fn entry_cycles_report_where_the_floor_binds_for_each_entry_age() {
         );
     }
     // Without a floor the by-entry key is absent.
-    let plain = tunnels_json(
-        dir.path(),
-        &[
-            "--family",
-            "exponential",
-            "--param",
-            "rate=0.002",
-            "--time-unit",
-            "months",
-            "--cycle",
-            "1 year",
-            "--count",
-            "10",
-            "--background",
-            "step.csv",
-            "--start-age",
-            "60",
-            "--background-mode",
-            "add",
-            "--entry-cycles",
-            "3",
-        ],
-    );
+    let plain = with_mode("add");
     assert!(!plain
         .metadata
         .contains_key("floor_binds_in_tunnels_by_entry"));

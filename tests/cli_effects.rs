@@ -61,15 +61,34 @@ fn fit_effects_writes_the_cox_model_and_its_test() {
         assert!(t["lower"].as_f64().unwrap() < hr && hr < t["upper"].as_f64().unwrap());
     }
     assert_eq!(cox["ph_test"]["df"], 5);
-    // Joint Weibull models: PH and AFT, the same fit (AF = HR^(-1/shape)); no LR test with
-    // covariates (the separate fits have none).
+    // Every joint model, PH first; the Weibull PH and AFT are the same fit
+    // (AF = HR^(-1/shape)); no LR test with covariates (the separate fits have none).
     let effects = json["effects"].as_array().unwrap();
-    assert_eq!(effects.len(), 2);
-    let (ph, aft) = (&effects[0], &effects[1]);
+    let listed: Vec<String> = effects
+        .iter()
+        .map(|e| {
+            format!(
+                "{} {}",
+                e["family"].as_str().unwrap(),
+                e["model"].as_str().unwrap()
+            )
+        })
+        .collect();
     assert_eq!(
-        (ph["model"].as_str(), aft["model"].as_str()),
-        (Some("ph"), Some("aft"))
+        listed,
+        [
+            "exponential ph",
+            "weibull ph",
+            "gompertz ph",
+            "exponential aft",
+            "weibull aft",
+            "lognormal aft",
+            "loglogistic aft",
+            "generalized-gamma aft"
+        ]
     );
+    assert!(effects.iter().all(|e| e["lr_test"].is_null()));
+    let (ph, aft) = (&effects[1], &effects[4]);
     let shape = ph["params"]["shape"].as_f64().unwrap();
     let hr = ph["params"]["log_hr_test"].as_f64().unwrap().exp();
     let af = aft["params"]["log_af_test"].as_f64().unwrap().exp();
@@ -90,8 +109,13 @@ fn fit_effects_writes_the_cox_model_and_its_test() {
         .success();
     let plain: serde_json::Value =
         serde_json::from_slice(&std::fs::read(dir.path().join("plain.json")).unwrap()).unwrap();
-    let lr = &plain["effects"][0]["lr_test"];
+    let lr = &plain["effects"][1]["lr_test"];
+    assert_eq!(plain["effects"][1]["family"], "weibull");
     assert_eq!(lr["df"], 1);
+    // Only the Weibull has separate fits here: the other families' tests are null.
+    for (j, e) in plain["effects"].as_array().unwrap().iter().enumerate() {
+        assert_eq!(e["lr_test"].is_null(), e["family"] != "weibull", "{j}");
+    }
     let separate: f64 = plain["fits"]
         .as_array()
         .unwrap()
@@ -99,8 +123,50 @@ fn fit_effects_writes_the_cox_model_and_its_test() {
         .map(|f| f["loglik"].as_f64().unwrap())
         .sum();
     assert!((lr["separate_loglik"].as_f64().unwrap() - separate).abs() < 1e-9);
-    let statistic = 2.0 * (separate - plain["effects"][0]["loglik"].as_f64().unwrap());
+    let statistic = 2.0 * (separate - plain["effects"][1]["loglik"].as_f64().unwrap());
     assert!((lr["statistic"].as_f64().unwrap() - statistic).abs() < 1e-9);
+    // Degrees of freedom of the test by family: (parameters - 1) x (arms - 1), two arms; the
+    // exponential joint model is the separate fits reparameterised (0 df, statistic 0).
+    let out = tunnelcast(dir.path())
+        .args(["fit", &va_lung(), "--time-unit", "days", "--arm-col", "arm"])
+        .args(["--families", "exponential,lognormal,generalized-gamma"])
+        .args(["--effects", "--json", "df.json"])
+        .assert()
+        .success()
+        .get_output()
+        .stdout
+        .clone();
+    let text = String::from_utf8(out).unwrap();
+    let df: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(dir.path().join("df.json")).unwrap()).unwrap();
+    for e in df["effects"].as_array().unwrap() {
+        let expected = match e["family"].as_str().unwrap() {
+            "exponential" => Some(0),
+            "lognormal" => Some(1),
+            "generalized-gamma" => Some(2),
+            _ => None,
+        };
+        match expected {
+            Some(d) => {
+                assert_eq!(e["lr_test"]["df"], d, "{e}");
+                if d == 0 {
+                    assert!(e["lr_test"]["statistic"].as_f64().unwrap() < 1e-6);
+                    assert_eq!(e["lr_test"]["p_value"], 1.0);
+                }
+            }
+            None => assert!(e["lr_test"].is_null()),
+        }
+    }
+    assert!(text.contains("on 2 df"), "{text}");
+    assert!(text.contains("the same model (0 df"), "{text}");
+    for line in [
+        "lognormal         aft",
+        "gompertz          ph ",
+        "AF test",
+        "HR test",
+    ] {
+        assert!(text.contains(line), "{line}: {text}");
+    }
     let svg = std::fs::read_to_string(dir.path().join("plots/effects.svg")).unwrap();
     assert!(svg.contains("arm_test") && svg.contains("running mean"));
     assert!(dir.path().join("plots/effects.png").exists());

@@ -188,6 +188,22 @@ fn standardised_curve_is_the_mean_of_the_patients_curves() {
             let want = 1.0 - mean_survival(b) / mean_survival(a);
             assert!((p - want).abs() < 1e-10, "{model}: {p} vs {want}");
         }
+        // The curve at the mean covariates is a different curve (the check above can tell).
+        let (dose, south) = (7.0 / 8.0, 4.0 / 8.0);
+        let xb = b_arm + b_dose * dose + b_south * south;
+        let at_mean = |t: f64| {
+            let h = if model == "ph" {
+                (t / scale).powf(k) * xb.exp()
+            } else {
+                (t / (scale * xb.exp())).powf(k)
+            };
+            (-h).exp()
+        };
+        let largest = got
+            .iter()
+            .map(|&(a, b, p)| (p - (1.0 - at_mean(b) / at_mean(a))).abs())
+            .fold(0.0, f64::max);
+        assert!(largest > 1e-6, "{model}: {largest}");
         // At the reference arm, the first level and covariate 0: the reference curve.
         let got = tunnels(
             dir.path(),
@@ -449,4 +465,51 @@ fn run_effects_table_fits_the_joint_models_and_lists_them_in_the_report() {
     let err = String::from_utf8(out.stderr).unwrap();
     assert!(err.contains("[effects] needs [data] arm_column"), "{err}");
     assert!(!dir.path().join("bad").exists());
+}
+
+#[test]
+fn adjustments_apply_on_top_of_a_joint_curve_in_tunnels_and_horizon() {
+    // A further hazard ratio X on the arm's curve of a joint PH model multiplies its cumulative
+    // hazard: S(t) = exp(−(t/scale)^k·HR·X) (definition of a hazard ratio, common practice).
+    let dir = tempfile::tempdir().unwrap();
+    let json = fit(dir.path(), &va_lung(), "days", None);
+    let ph = joint(&json, "ph");
+    let (k, scale, hr) = (
+        param(ph, "shape"),
+        param(ph, "scale"),
+        param(ph, "log_hr_test").exp() * 0.8,
+    );
+    let h = |months: f64| (months * 365.25 / 12.0 / scale).powf(k) * hr;
+    let curve = ["--model", "ph", "--arm", "test", "--hazard-ratio", "0.8"];
+    for &(a, b, p) in &tunnels(dir.path(), &curve, "t.json") {
+        let want = 1.0 - (-(h(b) - h(a))).exp();
+        assert!((p - want).abs() < 1e-10, "tunnels: {p} vs {want}");
+    }
+    tunnelcast(dir.path())
+        .args(["horizon", "--fit", "fit.json", "--family", "weibull"])
+        .args(curve)
+        .args([
+            "--cycle",
+            "1 month",
+            "--horizon",
+            "2 years",
+            "--json",
+            "h.json",
+        ])
+        .assert()
+        .success();
+    let doc: Value =
+        serde_json::from_slice(&std::fs::read(dir.path().join("h.json")).unwrap()).unwrap();
+    let rows = doc["truncation"].as_array().unwrap();
+    assert_eq!(rows.len(), 24);
+    for r in rows {
+        // p_exit_last of a table of K tunnels: the exit probability of tunnel K.
+        let kk = r["count"].as_f64().unwrap();
+        let want = 1.0 - (-(h(kk) - h(kk - 1.0))).exp();
+        let got = r["p_exit_last"].as_f64().unwrap();
+        assert!(
+            (got - want).abs() < 1e-10,
+            "horizon K {kk}: {got} vs {want}"
+        );
+    }
 }

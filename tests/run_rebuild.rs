@@ -166,7 +166,7 @@ fn run_from_a_digitised_curve_rebuilds_as_the_rebuild_command_does() {
     assert!(text.contains("demo_digitised.csv") && text.contains("demo_at_risk.csv"));
     let first_paragraph = section.children().find(|n| n.has_tag_name("p")).unwrap();
     assert_eq!(first_paragraph.attribute("class"), Some("guide"));
-    // Listed in the contents, after the data.
+    // Listed in the contents, after the question and the data.
     let links: Vec<&str> = doc
         .descendants()
         .find(|n| n.attribute("id") == Some("contents"))
@@ -174,7 +174,7 @@ fn run_from_a_digitised_curve_rebuilds_as_the_rebuild_command_does() {
         .descendants()
         .filter_map(|n| n.attribute("href"))
         .collect();
-    assert_eq!(&links[..3], ["#data", "#rebuild", "#fits"]);
+    assert_eq!(&links[..3], ["#question", "#data", "#rebuild"]);
     for id in [
         "table-rebuild-quality",
         "table-rebuild-at-risk",

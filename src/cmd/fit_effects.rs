@@ -131,22 +131,21 @@ pub fn render(result: &EffectsResult, joint: &[report::JointSummary]) -> String 
     text
 }
 
-/// The joint models, with the likelihood-ratio test against the separate Weibull fits of
-/// `file` when every arm has a converged one.
+/// The joint models, each with the likelihood-ratio test against the separate fits of the
+/// same family in `file` when every arm has a converged one.
 pub fn joint(result: &EffectsResult, file: &crate::fit::FitFile) -> Vec<report::JointSummary> {
-    let mut separate = 0.0;
-    for arm in &result.design.arms {
-        match file
-            .fits
-            .iter()
-            .find(|f| f.family == "weibull" && f.arm.as_deref() == Some(arm) && f.converged)
-            .and_then(|f| f.loglik)
-        {
-            Some(ll) => separate += ll,
-            None => return report::joint(&result.design, None),
+    let separate = |family: &str| -> Option<f64> {
+        let mut sum = 0.0;
+        for arm in &result.design.arms {
+            sum += file
+                .fits
+                .iter()
+                .find(|f| f.family == family && f.arm.as_deref() == Some(arm) && f.converged)
+                .and_then(|f| f.loglik)?;
         }
-    }
-    report::joint(&result.design, Some(separate))
+        Some(sum)
+    };
+    report::joint(&result.design, &separate)
 }
 
 /// The figure `effects.svg`/`effects.png`: ln(−ln S) per arm against ln t, and the scaled

@@ -9,7 +9,7 @@
 //! their counts.
 
 use super::design::{Covariate, Design};
-use super::joint::{ln_survival_at, Model};
+use super::joint::{ln_survival_at, JointFamily, Model};
 use super::report::JointSummary;
 use crate::curve::Curve;
 use crate::error::{Error, Result};
@@ -101,6 +101,8 @@ pub fn record(design: &Design, covariates: &[Covariate]) -> DesignRecord {
 /// weights summing to 1 (one row at fixed covariates).
 #[derive(Debug, Clone)]
 pub struct JointCurve {
+    /// Family of the reference curve, with how the effects move its parameters.
+    pub joint_family: &'static dyn JointFamily,
     /// PH or AFT.
     pub model: Model,
     /// Parameters on the estimation scale.
@@ -129,13 +131,13 @@ impl Curve for JointCurve {
             return 0.0;
         }
         if let [(_, x)] = self.rows.as_slice() {
-            return ln_survival_at(self.model, &self.theta, t, x);
+            return ln_survival_at(self.joint_family, self.model, &self.theta, t, x);
         }
         // ln Σ wᵢ Sᵢ on the log scale (every Sᵢ may underflow far in the tail).
         let terms: Vec<f64> = self
             .rows
             .iter()
-            .map(|(lw, x)| lw + ln_survival_at(self.model, &self.theta, t, x))
+            .map(|(lw, x)| lw + ln_survival_at(self.joint_family, self.model, &self.theta, t, x))
             .collect();
         let m = terms.iter().copied().fold(f64::NEG_INFINITY, f64::max);
         if m == f64::NEG_INFINITY {
@@ -434,8 +436,11 @@ pub fn select(
             format!(", {how}")
         }
     );
+    let joint_family = super::joint::by_name(family.name())
+        .ok_or_else(|| bad("has a family with no joint form".to_string()))?;
     Ok(JointSource {
         curve: JointCurve {
+            joint_family,
             model,
             theta,
             rows,
@@ -448,4 +453,32 @@ pub fn select(
         metadata,
         warnings,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn standardised_log_survival_stays_finite_where_every_curve_underflows() {
+        // Weibull PH with shape 1, scale 1, one coefficient 1: ln S(t | x) = −t·e^x. At t = 1000
+        // with x = 0 and x = ln 1.001 the two curves are e^−1000 and e^−1001 (both 0 in f64);
+        // their mean is e^−1000·(1 + e^−1)/2, so ln S̄ = −1000 + ln((1 + e^−1)/2) (by hand).
+        let curve = JointCurve {
+            joint_family: crate::effects::joint::by_name("weibull").expect("joint Weibull"),
+            model: Model::Ph,
+            theta: vec![0.0, 0.0, 1.0],
+            rows: vec![(0.5f64.ln(), vec![0.0]), (0.5f64.ln(), vec![1.001f64.ln()])],
+            unit: TimeUnit::Months,
+            label: "test".into(),
+        };
+        let want = -1000.0 + ((1.0 + (-1.0f64).exp()) / 2.0).ln();
+        let got = curve.log_survival(1000.0);
+        assert!((got - want).abs() < 1e-9, "{got} vs {want}");
+        // Hazard of the mixture: Σ wᵢ Sᵢ hᵢ / Σ wᵢ Sᵢ with hᵢ = e^xᵢ (by hand), at t = 2.
+        let (s1, s2) = ((-2.0f64).exp(), (-2.0 * 1.001f64).exp());
+        let want = (s1 + s2 * 1.001) / (s1 + s2);
+        let got = curve.hazard(2.0);
+        assert!((got - want).abs() < 1e-7 * want, "{got} vs {want}");
+    }
 }

@@ -235,71 +235,125 @@ pub struct JointSummary {
     pub lr_test: Option<LrTest>,
 }
 
-/// Fits the joint Weibull models and summarises them; `separate` is the sum of the separate
-/// Weibull fits' log-likelihoods over the arms, when every arm has one.
-pub fn joint(design: &Design, separate: Option<f64>) -> Vec<JointSummary> {
-    use super::design::TermKind;
-    use super::joint::{fit, Model};
-    let n = design.subjects.len() as f64;
-    [Model::Ph, Model::Aft]
+/// Fits every joint model (PH: exponential, Weibull, Gompertz; AFT: exponential, Weibull,
+/// log-normal, log-logistic, generalized gamma) and summarises them; `separate(family)` is the
+/// sum of that family's separate fits' log-likelihoods over the arms, when every arm has a
+/// converged one. A model with no finite likelihood, estimates or covariance is left out (and
+/// named by [`missing_joint`]); one that does not converge otherwise is kept with
+/// `converged: false`.
+pub fn joint(design: &Design, separate: &dyn Fn(&str) -> Option<f64>) -> Vec<JointSummary> {
+    use super::joint::{all, fit_with};
+    all()
         .into_iter()
-        .map(|model| {
-            let result = fit(design, model);
-            let prefix = match model {
-                Model::Ph => "log_hr",
-                Model::Aft => "log_af",
-            };
-            let mut names = vec!["ln_shape".to_string(), "ln_scale".to_string()];
-            for term in &design.terms {
-                names.push(match &term.kind {
-                    TermKind::Arm(level) => format!("{prefix}_{level}"),
-                    _ => term.name.clone(),
-                });
-            }
-            let mut params = std::collections::BTreeMap::new();
-            params.insert("shape".to_string(), result.theta[0].exp());
-            params.insert("scale".to_string(), result.theta[1].exp());
-            for (name, v) in names.iter().zip(&result.theta).skip(2) {
-                params.insert(name.clone(), *v);
-            }
-            let k = result.theta.len() as f64;
-            let lr_test = match separate {
-                Some(sep) if !design.has_covariates() => {
-                    let statistic = (2.0 * (sep - result.loglik)).max(0.0);
-                    let df = design.arms.len() - 1;
-                    let p_value = statrs::distribution::ChiSquared::new(df as f64)
-                        .map(|d| statrs::distribution::ContinuousCDF::sf(&d, statistic))
-                        .unwrap_or(f64::NAN);
-                    Some(LrTest {
-                        separate_loglik: sep,
-                        statistic,
-                        df,
-                        p_value,
-                    })
-                }
-                _ => None,
-            };
-            JointSummary {
-                family: "weibull".into(),
-                model: match model {
-                    Model::Ph => "ph".into(),
-                    Model::Aft => "aft".into(),
-                },
-                reference: design.arms[design.reference].clone(),
-                params,
-                loglik: result.loglik,
-                aic: 2.0 * k - 2.0 * result.loglik,
-                bic: k * n.ln() - 2.0 * result.loglik,
-                converged: result.converged,
-                covariance: crate::fit::Covariance {
-                    scale: "estimation".into(),
-                    names,
-                    matrix: result.covariance,
-                },
-                lr_test,
-            }
+        .filter_map(|(family, model)| {
+            let result = fit_with(family, model, design)?;
+            let summary = summarise_joint(design, &result, separate(family.family().name()));
+            // JSON has no NaN: a model without finite estimates or covariance (information
+            // not positive definite) is left out, so the fit file reads back, and named in
+            // the printout by `missing_joint`.
+            let finite = summary.loglik.is_finite()
+                && summary.params.values().all(|v| v.is_finite())
+                && summary
+                    .covariance
+                    .matrix
+                    .iter()
+                    .flatten()
+                    .all(|v| v.is_finite());
+            finite.then_some(summary)
         })
         .collect()
+}
+
+/// The (family, model) pairs of [`super::joint::all`] missing from `models`.
+pub fn missing_joint(models: &[JointSummary]) -> Vec<String> {
+    super::joint::all()
+        .into_iter()
+        .filter(|(f, m)| {
+            !models
+                .iter()
+                .any(|s| s.family == f.family().name() && s.model == m.name())
+        })
+        .map(|(f, m)| format!("{} {}", f.family().name(), m.name()))
+        .collect()
+}
+
+/// The JSON summary of one fitted joint model.
+pub fn summarise_joint(
+    design: &Design,
+    result: &super::joint::JointFit,
+    separate: Option<f64>,
+) -> JointSummary {
+    use super::design::TermKind;
+    use super::joint::Model;
+    let n = design.subjects.len() as f64;
+    let one = result.family.family();
+    let m = one.estimation_names().len();
+    let prefix = match result.model {
+        Model::Ph => "log_hr",
+        Model::Aft => "log_af",
+    };
+    let mut names: Vec<String> = one
+        .estimation_names()
+        .iter()
+        .map(|s| s.to_string())
+        .collect();
+    for term in &design.terms {
+        names.push(match &term.kind {
+            TermKind::Arm(level) => format!("{prefix}_{level}"),
+            _ => term.name.clone(),
+        });
+    }
+    let mut params = std::collections::BTreeMap::new();
+    for (name, v) in one
+        .param_names()
+        .iter()
+        .zip(one.to_natural(&result.theta[..m]))
+    {
+        params.insert(name.to_string(), v);
+    }
+    for (name, v) in names.iter().zip(&result.theta).skip(m) {
+        params.insert(name.clone(), *v);
+    }
+    let k = result.theta.len() as f64;
+    let lr_test = match separate {
+        Some(sep) if !design.has_covariates() => {
+            let statistic = (2.0 * (sep - result.loglik)).max(0.0);
+            // Separate fits: m parameters per arm; joint: m plus one per non-reference arm.
+            let df = (m - 1) * (design.arms.len() - 1);
+            // With 0 df (exponential) the joint model is the separate fits reparameterised:
+            // nothing to test, p = 1.
+            let p_value = if df == 0 {
+                1.0
+            } else {
+                statrs::distribution::ChiSquared::new(df as f64)
+                    .map(|d| statrs::distribution::ContinuousCDF::sf(&d, statistic))
+                    .unwrap_or(f64::NAN)
+            };
+            Some(LrTest {
+                separate_loglik: sep,
+                statistic,
+                df,
+                p_value,
+            })
+        }
+        _ => None,
+    };
+    JointSummary {
+        family: one.name().into(),
+        model: result.model.name().into(),
+        reference: design.arms[design.reference].clone(),
+        params,
+        loglik: result.loglik,
+        aic: 2.0 * k - 2.0 * result.loglik,
+        bic: k * n.ln() - 2.0 * result.loglik,
+        converged: result.converged,
+        covariance: crate::fit::Covariance {
+            scale: "estimation".into(),
+            names,
+            matrix: result.covariance.clone(),
+        },
+        lr_test,
+    }
 }
 
 /// The printed section of the joint models: per model, the effect of each non-reference arm
@@ -307,46 +361,78 @@ pub fn joint(design: &Design, separate: Option<f64>) -> Vec<JointSummary> {
 /// separate fits.
 pub fn render_joint(models: &[JointSummary]) -> String {
     let z = normal_quantile(0.975);
-    let mut out =
-        String::from("\nJoint models across arms (one reference curve, one effect per arm)\n");
+    let mut out = String::from(
+        "\nJoint models across arms (one reference curve, one effect per arm; HR: hazard ratio, AF: acceleration factor, with 95% intervals)\n",
+    );
+    let width = models
+        .iter()
+        .map(|m| m.family.chars().count())
+        .max()
+        .unwrap_or(0);
     for m in models {
         let what = if m.model == "ph" { "HR" } else { "AF" };
+        let family = crate::families::by_name(&m.family).ok();
+        let base = family.map_or(0, |f| f.estimation_names().len());
+        let reference: Vec<String> = family
+            .map(|f| {
+                f.param_names()
+                    .iter()
+                    .filter_map(|n| m.params.get(*n).map(|v| format!("{n} {}", sig(*v, 4))))
+                    .collect()
+            })
+            .unwrap_or_default();
         let mut line = format!(
-            "  {} {:<3}  shape {}  scale {}",
+            "  {:<width$} {:<3}  {}",
             m.family,
             m.model,
-            sig(m.params["shape"], 4),
-            sig(m.params["scale"], 4)
+            reference.join(", ")
         );
-        for (j, name) in m.covariance.names.iter().enumerate().skip(2) {
-            let v = m.params[name];
+        for (j, name) in m.covariance.names.iter().enumerate().skip(base) {
+            let Some(&v) = m.params.get(name) else {
+                continue;
+            };
             let se = m.covariance.matrix[j][j].sqrt();
             let label = name
                 .strip_prefix("log_hr_")
                 .or_else(|| name.strip_prefix("log_af_"))
                 .map(|arm| format!("{what} {arm}"))
                 .unwrap_or_else(|| format!("{what} per {name}"));
-            line.push_str(&format!(
-                "; {label} {} ({} to {})",
-                sig(v.exp(), 4),
-                sig((v - z * se).exp(), 3),
-                sig((v + z * se).exp(), 3)
-            ));
+            let interval = if se.is_finite() {
+                format!(
+                    "({} to {})",
+                    sig((v - z * se).exp(), 3),
+                    sig((v + z * se).exp(), 3)
+                )
+            } else {
+                "(no interval)".to_string()
+            };
+            line.push_str(&format!("; {label} {} {interval}", sig(v.exp(), 4)));
         }
         line.push_str(&format!("; loglik {:.2}; AIC {:.2}", m.loglik, m.aic));
         if let Some(lr) = &m.lr_test {
-            line.push_str(&format!(
-                "; vs separate fits: chi-square {} on {} df, p {}",
-                sig(lr.statistic, 4),
-                lr.df,
-                p_text(lr.p_value)
-            ));
+            if lr.df == 0 {
+                line.push_str("; vs separate fits: the same model (0 df, nothing to test)");
+            } else {
+                line.push_str(&format!(
+                    "; vs separate fits: chi-square {} on {} df, p {}",
+                    sig(lr.statistic, 4),
+                    lr.df,
+                    p_text(lr.p_value)
+                ));
+            }
         }
         if !m.converged {
             line.push_str("; DID NOT CONVERGE");
         }
         out.push_str(&line);
         out.push('\n');
+    }
+    let missing = missing_joint(models);
+    if !missing.is_empty() {
+        out.push_str(&format!(
+            "  left out (no finite likelihood, or the information is not positive definite): {}\n",
+            missing.join(", ")
+        ));
     }
     out
 }
