@@ -154,3 +154,35 @@ fn with_a_life_table_every_fit_is_drawn_against_the_population() {
         .success();
     assert!(!other.path().join("plots/population.svg").exists());
 }
+
+#[test]
+fn survival_and_hazard_axes_are_in_years_past_two_years_of_data() {
+    // Issue 18: axes in years by default where the data span more than two years. The demo
+    // trial's follow-up is 41.79 months (3.48 years): survival and hazard in years, the
+    // diagnostics (ln t) in the data's months. A file of 300 days stays in days.
+    let dir = tempfile::tempdir().unwrap();
+    let short: String = std::iter::once("time,event\n".to_string())
+        .chain((1..=40).map(|i| format!("{},{}\n", 7 * i + 20, i % 3 != 0)))
+        .collect::<String>()
+        .replace("true", "1")
+        .replace("false", "0");
+    std::fs::write(dir.path().join("short.csv"), short).unwrap();
+    let plot = |data: &str, unit: &str, out: &str| {
+        Command::cargo_bin("tunnelcast")
+            .unwrap()
+            .current_dir(dir.path())
+            .args(["fit", data, "--time-unit", unit])
+            .args(["--families", "weibull", "--plots", out])
+            .assert()
+            .success();
+    };
+    plot(demo_csv().to_str().unwrap(), "months", "long");
+    plot("short.csv", "days", "short");
+    let read = |path: &str| std::fs::read_to_string(dir.path().join(path)).unwrap();
+    assert!(read("long/survival.svg").contains("Time (years)"));
+    assert!(read("long/hazard.svg").contains("Hazard (per year)"));
+    assert!(read("long/diagnostics.svg").contains("months"));
+    assert!(!read("long/survival.svg").contains("Time (months)"));
+    assert!(read("short/survival.svg").contains("Time (days)"));
+    assert!(read("short/hazard.svg").contains("Hazard (per day)"));
+}

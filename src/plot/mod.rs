@@ -286,12 +286,26 @@ pub fn fitted_curves(file: &FitFile, arm: Option<&str>) -> Vec<(String, Parametr
 }
 
 /// Plots (a)–(c) for every arm of a fitted dataset, extrapolated to `horizon` (data's unit).
+/// The survival and hazard plots show time in years where the data span more than two years
+/// (the comparison's display unit), otherwise in the data's unit; the diagnostics keep the
+/// data's unit (ln t only shifts).
 pub fn fit_figures(data: &Dataset, file: &FitFile, horizon: f64) -> Result<Vec<Figure>> {
     let unit = file.data.time_unit;
+    let display = crate::plausibility::comparison::default_display_unit(file);
+    let scale = unit.factor_to(display);
     let mut figures = Vec::new();
     for arm in &data.arms {
         let label = arm.arm.as_deref();
         let km = KaplanMeier::from_records(&arm.records);
+        let shown_records: Vec<crate::input::Record> = arm
+            .records
+            .iter()
+            .map(|r| crate::input::Record {
+                time: r.time * scale,
+                event: r.event,
+            })
+            .collect();
+        let shown_km = KaplanMeier::from_records(&shown_records);
         let owned = fitted_curves(file, label);
         let curves: Vec<(String, &dyn Curve)> = owned
             .iter()
@@ -306,20 +320,20 @@ pub fn fit_figures(data: &Dataset, file: &FitFile, horizon: f64) -> Result<Vec<F
             &format!("survival{suffix}"),
             &SurvivalPlot {
                 title: named("Kaplan–Meier and fitted survival"),
-                unit,
-                km: &km,
+                unit: display,
+                km: &shown_km,
                 curves: curves.clone(),
-                horizon,
+                horizon: horizon * scale,
             },
         )?);
         figures.extend(both(
             &format!("hazard{suffix}"),
             &HazardPlot {
                 title: named("Smoothed and fitted hazards"),
-                unit,
-                km: &km,
+                unit: display,
+                km: &shown_km,
                 curves: curves.clone(),
-                horizon,
+                horizon: horizon * scale,
             },
         )?);
         figures.extend(both(
