@@ -113,14 +113,7 @@ fn run_writes_every_output_and_the_report_matches_the_json() {
     );
 
     let html = std::fs::read_to_string(out.join("report.html")).unwrap();
-    let doc = roxmltree::Document::parse_with_options(
-        &html,
-        roxmltree::ParsingOptions {
-            allow_dtd: true,
-            ..Default::default()
-        },
-    )
-    .expect("report.html is well-formed");
+    let doc = shell::parse_report(&html);
     // The reviewer's order (issue 18): the question, the data and Kaplan–Meier curve, the
     // comparison, plausibility, the choice, the adjusted curve, tunnels, horizon checks,
     // uncertainty, reproducibility.
@@ -371,14 +364,7 @@ fn life_years_of_a_monthly_analysis_are_in_years_in_every_output() {
     assert!(html.contains("Life-years, in years,"));
     // Columns holding times in another unit say so in their heading.
     assert!(html.contains("<th>t_start (months)</th><th>t_end (months)</th>"));
-    let doc = roxmltree::Document::parse_with_options(
-        &html,
-        roxmltree::ParsingOptions {
-            allow_dtd: true,
-            ..Default::default()
-        },
-    )
-    .unwrap();
+    let doc = shell::parse_report(&html);
     for row in html_rows(&doc, "table-within-cycle") {
         assert!(close(&row[exact], expected), "{row:?}");
     }
@@ -690,14 +676,7 @@ fn adjustments_and_draws_of_the_analysis_file_reach_the_outputs() {
 
     // The report shows both sections.
     let html = std::fs::read_to_string(out.join("report.html")).unwrap();
-    let doc = roxmltree::Document::parse_with_options(
-        &html,
-        roxmltree::ParsingOptions {
-            allow_dtd: true,
-            ..Default::default()
-        },
-    )
-    .unwrap();
+    let doc = shell::parse_report(&html);
     let section = |id: &str| {
         let node = doc
             .descendants()

@@ -144,14 +144,7 @@ fn run_from_a_digitised_curve_rebuilds_as_the_rebuild_command_does() {
     // The report's rebuild section: says the data are reconstructed, shows the quality
     // tables and the overlay plot.
     let html = std::fs::read_to_string(out.join("report.html")).unwrap();
-    let doc = roxmltree::Document::parse_with_options(
-        &html,
-        roxmltree::ParsingOptions {
-            allow_dtd: true,
-            ..Default::default()
-        },
-    )
-    .expect("report.html is well-formed");
+    let doc = shell::parse_report(&html);
     let section = doc
         .descendants()
         .find(|n| n.has_tag_name("section") && n.attribute("id") == Some("rebuild"))

@@ -363,3 +363,17 @@ pub fn read_csv_table(path: &Path) -> CsvFile {
         .collect();
     CsvFile { columns, rows }
 }
+
+/// Parses `report.html` as XML (it is written as well-formed XHTML with a doctype), panicking
+/// with a message when it is not.
+#[allow(dead_code)]
+pub fn parse_report(html: &str) -> roxmltree::Document<'_> {
+    roxmltree::Document::parse_with_options(
+        html,
+        roxmltree::ParsingOptions {
+            allow_dtd: true,
+            ..Default::default()
+        },
+    )
+    .expect("report.html is well-formed")
+}
