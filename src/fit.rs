@@ -63,7 +63,7 @@ impl FitData {
 
     /// Builds the sums and the Kaplan–Meier points from collapsed columns; `km_points` is
     /// reused when given (a subsample keeps its parent's starting-value points).
-    fn from_collapsed(
+    pub(crate) fn from_collapsed(
         time: Vec<f64>,
         events: Vec<f64>,
         total: Vec<f64>,
@@ -352,8 +352,38 @@ impl Gradient for Objective<'_> {
     }
 }
 
+/// A log-likelihood on the estimation scale with its analytic gradient: what the shared Newton
+/// iterations, the differenced information and the large-data path work on. One family on
+/// collapsed records here; a joint model across arms in [`crate::effects::joint`].
+pub(crate) trait Likelihood: Sync {
+    /// Log-likelihood and gradient at `theta`.
+    fn loglik_grad(&self, theta: &[f64]) -> (f64, Vec<f64>);
+    /// Number of subjects (scales the gradient tolerance and the subsample's curvature).
+    fn n_subjects(&self) -> f64;
+}
+
+/// One family on collapsed records.
+struct OneSample<'a> {
+    family: &'a dyn Family,
+    data: &'a FitData,
+}
+
+impl Likelihood for OneSample<'_> {
+    fn loglik_grad(&self, theta: &[f64]) -> (f64, Vec<f64>) {
+        self.family.loglik_grad(theta, self.data)
+    }
+    fn n_subjects(&self) -> f64 {
+        self.data.n_subjects
+    }
+}
+
 /// Hessian of the log-likelihood by central differences of the analytic gradient, symmetrised.
 pub fn hessian(family: &dyn Family, theta: &[f64], data: &FitData) -> Vec<Vec<f64>> {
+    hessian_of(&OneSample { family, data }, theta)
+}
+
+/// [`hessian`] of any [`Likelihood`].
+pub(crate) fn hessian_of(lik: &dyn Likelihood, theta: &[f64]) -> Vec<Vec<f64>> {
     let k = theta.len();
     let mut h = vec![vec![0.0; k]; k];
     for j in 0..k {
@@ -362,8 +392,8 @@ pub fn hessian(family: &dyn Family, theta: &[f64], data: &FitData) -> Vec<Vec<f6
         let mut down = theta.to_vec();
         up[j] += step;
         down[j] -= step;
-        let (_, gu) = family.loglik_grad(&up, data);
-        let (_, gd) = family.loglik_grad(&down, data);
+        let (_, gu) = lik.loglik_grad(&up);
+        let (_, gd) = lik.loglik_grad(&down);
         for i in 0..k {
             h[i][j] = (gu[i] - gd[i]) / (2.0 * step);
         }
@@ -380,7 +410,12 @@ pub fn hessian(family: &dyn Family, theta: &[f64], data: &FitData) -> Vec<Vec<f6
 
 /// Observed information (minus the Hessian) at `theta`.
 fn information(family: &dyn Family, theta: &[f64], data: &FitData) -> Vec<Vec<f64>> {
-    hessian(family, theta, data)
+    information_of(&OneSample { family, data }, theta)
+}
+
+/// [`information`] of any [`Likelihood`].
+pub(crate) fn information_of(lik: &dyn Likelihood, theta: &[f64]) -> Vec<Vec<f64>> {
+    hessian_of(lik, theta)
         .into_iter()
         .map(|row| row.into_iter().map(|x| -x).collect())
         .collect()
@@ -393,14 +428,22 @@ fn max_abs(v: &[f64]) -> f64 {
 /// A point on the estimation scale with its log-likelihood and gradient, so that no
 /// evaluation over the data is repeated.
 #[derive(Debug, Clone)]
-struct Point {
-    theta: Vec<f64>,
-    loglik: f64,
-    grad: Vec<f64>,
+pub(crate) struct Point {
+    /// Estimation-scale parameters.
+    pub(crate) theta: Vec<f64>,
+    /// Log-likelihood there.
+    pub(crate) loglik: f64,
+    /// Its gradient.
+    pub(crate) grad: Vec<f64>,
 }
 
 fn evaluate(family: &dyn Family, data: &FitData, theta: Vec<f64>) -> Point {
-    let (loglik, grad) = family.loglik_grad(&theta, data);
+    evaluate_at(&OneSample { family, data }, theta)
+}
+
+/// A [`Point`] of any [`Likelihood`].
+pub(crate) fn evaluate_at(lik: &dyn Likelihood, theta: Vec<f64>) -> Point {
+    let (loglik, grad) = lik.loglik_grad(&theta);
     Point {
         theta,
         loglik,
@@ -473,20 +516,30 @@ const NEWTON_GRADIENT_TOLERANCE: f64 = 1e-3 * GRADIENT_TOLERANCE;
 fn newton(
     family: &dyn Family,
     data: &FitData,
+    point: Point,
+    fixed_covariance: Option<&[Vec<f64>]>,
+) -> Point {
+    newton_of(&OneSample { family, data }, point, fixed_covariance)
+}
+
+/// [`newton`] on any [`Likelihood`].
+pub(crate) fn newton_of(
+    lik: &dyn Likelihood,
     mut point: Point,
     fixed_covariance: Option<&[Vec<f64>]>,
 ) -> Point {
+    let n_subjects = lik.n_subjects();
     let mut secant: Option<Vec<Vec<f64>>> = fixed_covariance.map(<[Vec<f64>]>::to_vec);
     for _ in 0..MAX_NEWTON {
         if !point.loglik.is_finite() || point.grad.iter().any(|g| !g.is_finite()) {
             break;
         }
-        if max_abs(&point.grad) / data.n_subjects < NEWTON_GRADIENT_TOLERANCE {
+        if max_abs(&point.grad) / n_subjects < NEWTON_GRADIENT_TOLERANCE {
             break;
         }
         let covariance = match &secant {
             Some(c) => c.clone(),
-            None => match invert_positive_definite(&information(family, &point.theta, data)) {
+            None => match invert_positive_definite(&information_of(lik, &point.theta)) {
                 Some(c) => c,
                 None => break,
             },
@@ -518,7 +571,7 @@ fn newton(
                 .zip(&step)
                 .map(|(t, s)| t + scale * s)
                 .collect();
-            let trial = evaluate(family, data, theta);
+            let trial = evaluate_at(lik, theta);
             let gains = trial.loglik > point.loglik
                 || (near_floor
                     && trial.loglik >= point.loglik - 1e-13 * point.loglik.abs()
@@ -544,7 +597,7 @@ fn newton(
                     .zip(&trial.grad)
                     .fold(0.0f64, |m, (a, b)| m.max((a - b).abs()));
                 if let Some(c) = secant.as_mut() {
-                    if change / data.n_subjects > SECANT_MIN_CHANGE {
+                    if change / n_subjects > SECANT_MIN_CHANGE {
                         secant_update(c, &point, &trial);
                     }
                 }
@@ -587,13 +640,13 @@ fn secant_update(c: &mut [Vec<f64>], from: &Point, to: &Point) {
 }
 
 /// Distinct times above which a family is fitted first to a subsample (see [`FitData::subsample`]).
-const SUBSAMPLE_ABOVE: usize = 60_000;
+pub(crate) const SUBSAMPLE_ABOVE: usize = 60_000;
 
 /// Distinct times in that subsample.
-const SUBSAMPLE_SIZE: usize = 20_000;
+pub(crate) const SUBSAMPLE_SIZE: usize = 20_000;
 
 /// Distinct times in the smaller subsample on which every start is tried.
-const COARSE_SIZE: usize = 2_000;
+pub(crate) const COARSE_SIZE: usize = 2_000;
 
 /// The best of the family's starts: closed form where there is one, else BFGS then Newton
 /// from each data-driven start. `None` when no start gives a finite log-likelihood.
@@ -629,28 +682,45 @@ fn maximise_large(family: &dyn Family, data: &FitData) -> Option<(Point, Option<
     // estimate and gives the curvature used on the full data.
     let coarse = maximise_from_starts(family, &data.subsample(COARSE_SIZE))?;
     let sub = data.subsample(SUBSAMPLE_SIZE);
-    let sub_best = newton(family, &sub, evaluate(family, &sub, coarse.theta), None);
-    let ratio = data.n_subjects / sub.n_subjects;
-    let Some(sub_covariance) =
-        invert_positive_definite(&information(family, &sub_best.theta, &sub))
-    else {
-        return maximise_from_starts(family, data).map(|p| (p, None));
-    };
+    match warm_newton(
+        &OneSample { family, data },
+        &OneSample { family, data: &sub },
+        coarse.theta,
+    ) {
+        Some((best, steps)) => Some((best, Some(steps))),
+        None => maximise_from_starts(family, data).map(|p| (p, None)),
+    }
+}
+
+/// The large-data step shared by the separate and the joint fits: Newton from `start` on the
+/// subsample `sub`, then Newton on the `full` likelihood with the subsample's information
+/// scaled to the full size as curvature, refined by secant updates (one pass over the data
+/// per step instead of 2k + 1). Returns the maximum and difference steps for
+/// [`information_forward_of`]; `None` when the subsample gives no usable curvature or the
+/// start no finite full-data log-likelihood (the caller then searches the full data).
+pub(crate) fn warm_newton(
+    full: &dyn Likelihood,
+    sub: &dyn Likelihood,
+    start: Vec<f64>,
+) -> Option<(Point, Vec<f64>)> {
+    let sub_best = newton_of(sub, evaluate_at(sub, start), None);
+    let ratio = full.n_subjects() / sub.n_subjects();
+    let sub_covariance = invert_positive_definite(&information_of(sub, &sub_best.theta))?;
     let covariance: Vec<Vec<f64>> = sub_covariance
         .into_iter()
         .map(|row| row.into_iter().map(|x| x / ratio).collect())
         .collect();
-    let start = evaluate(family, data, sub_best.theta);
+    let start = evaluate_at(full, sub_best.theta);
     if !start.loglik.is_finite() {
-        return maximise_from_starts(family, data).map(|p| (p, None));
+        return None;
     }
-    let best = newton(family, data, start, Some(&covariance));
+    let best = newton_of(full, start, Some(&covariance));
     // Difference steps of a thousandth of a standard error: small against the curvature's
     // change, large against the rounding of a sum over the data.
     let steps = (0..covariance.len())
         .map(|j| 1e-3 * covariance[j][j].sqrt())
         .collect();
-    Some((best, Some(steps)))
+    Some((best, steps))
 }
 
 /// Observed information at an evaluated point by forward differences of the gradient with
@@ -662,12 +732,21 @@ fn information_forward(
     point: &Point,
     steps: &[f64],
 ) -> Vec<Vec<f64>> {
+    information_forward_of(&OneSample { family, data }, point, steps)
+}
+
+/// [`information_forward`] of any [`Likelihood`].
+pub(crate) fn information_forward_of(
+    lik: &dyn Likelihood,
+    point: &Point,
+    steps: &[f64],
+) -> Vec<Vec<f64>> {
     let k = point.theta.len();
     let mut h = vec![vec![0.0; k]; k];
     for j in 0..k {
         let mut up = point.theta.clone();
         up[j] += steps[j];
-        let (_, grad) = family.loglik_grad(&up, data);
+        let (_, grad) = lik.loglik_grad(&up);
         for i in 0..k {
             h[i][j] = -(grad[i] - point.grad[i]) / steps[j];
         }

@@ -242,11 +242,13 @@ pub struct JointSummary {
 /// named by [`missing_joint`]); one that does not converge otherwise is kept with
 /// `converged: false`.
 pub fn joint(design: &Design, separate: &dyn Fn(&str) -> Option<f64>) -> Vec<JointSummary> {
-    use super::joint::{all, fit_with};
+    use super::joint::{all, fit_patterns, Patterns};
+    // Collapsed once for all models.
+    let patterns = Patterns::new(design);
     all()
         .into_iter()
         .filter_map(|(family, model)| {
-            let result = fit_with(family, model, design)?;
+            let result = fit_patterns(family, model, &patterns)?;
             let summary = summarise_joint(design, &result, separate(family.family().name()));
             // JSON has no NaN: a model without finite estimates or covariance (information
             // not positive definite) is left out, so the fit file reads back, and named in

@@ -15,7 +15,7 @@
 
 use super::design::Design;
 use crate::families::Family;
-use crate::fit::FitData;
+use crate::fit::{FitData, Likelihood};
 use crate::input::Record;
 use crate::numeric::invert_positive_definite;
 
@@ -164,79 +164,177 @@ pub fn ln_survival_at(
 }
 
 /// The records of a design collapsed per distinct covariate pattern, each as the one-sample
-/// fitter's columns: what the likelihood is evaluated on.
+/// fitter's columns: what the likelihood is evaluated on. Subjects with the same design row
+/// (arm, covariate values: exact equality) and the same time are one weighted record (events
+/// and subjects at that time), so without covariates or with text covariates only the
+/// likelihood runs over a few patterns of collapsed times; with a continuous covariate most
+/// patterns hold one subject and only exact repeats collapse.
+#[derive(Debug, Clone)]
 pub struct Patterns {
     /// Design row of each pattern.
     x: Vec<Vec<f64>>,
     /// Range of each pattern in the columns below.
     ranges: Vec<std::ops::Range<usize>>,
     time: Vec<f64>,
+    ln_time: Vec<f64>,
     events: Vec<f64>,
     total: Vec<f64>,
+    /// Number of subjects.
+    n_subjects: f64,
     /// All records pooled, for starting values.
     pooled: FitData,
+}
+
+/// Lexicographic order of design rows by [`f64::total_cmp`] (equal exactly when the bits are).
+fn cmp_rows(a: &[f64], b: &[f64]) -> std::cmp::Ordering {
+    a.iter()
+        .zip(b)
+        .map(|(u, v)| u.total_cmp(v))
+        .find(|o| o.is_ne())
+        .unwrap_or(std::cmp::Ordering::Equal)
 }
 
 impl Patterns {
     /// Groups the design's subjects by covariate pattern (exact equality) and collapses tied
     /// times within each.
     pub fn new(design: &Design) -> Patterns {
-        let mut order: Vec<usize> = (0..design.subjects.len()).collect();
-        let key =
-            |i: usize| -> Vec<u64> { design.subjects[i].x.iter().map(|v| v.to_bits()).collect() };
-        order.sort_by(|&a, &b| {
-            key(a)
-                .cmp(&key(b))
-                .then(design.subjects[a].time.total_cmp(&design.subjects[b].time))
+        Self::build(design, true)
+    }
+
+    /// The same records without collapsing tied times: one record per subject (for checking
+    /// that collapsing does not change the likelihood).
+    pub fn each_record(design: &Design) -> Patterns {
+        Self::build(design, false)
+    }
+
+    fn build(design: &Design, collapse: bool) -> Patterns {
+        let subjects = &design.subjects;
+        let mut order: Vec<usize> = (0..subjects.len()).collect();
+        order.sort_unstable_by(|&a, &b| {
+            cmp_rows(&subjects[a].x, &subjects[b].x)
+                .then(subjects[a].time.total_cmp(&subjects[b].time))
+                .then(a.cmp(&b))
         });
-        let mut p = Patterns {
-            x: Vec::new(),
-            ranges: Vec::new(),
-            time: Vec::new(),
-            events: Vec::new(),
-            total: Vec::new(),
-            pooled: FitData::from_records(&[Record {
-                time: 1.0,
-                event: true,
-            }]),
-        };
-        let mut last_key: Option<Vec<u64>> = None;
+        let mut x: Vec<Vec<f64>> = Vec::new();
+        let mut ranges: Vec<std::ops::Range<usize>> = Vec::new();
+        let mut time = Vec::with_capacity(subjects.len());
+        let mut events = Vec::with_capacity(subjects.len());
+        let mut total = Vec::with_capacity(subjects.len());
         for &i in &order {
-            let s = &design.subjects[i];
-            let k = key(i);
-            if last_key.as_ref() != Some(&k) {
-                if let Some(r) = p.ranges.last_mut() {
-                    r.end = p.time.len();
+            let s = &subjects[i];
+            let event = if s.event { 1.0 } else { 0.0 };
+            if x.last().is_none_or(|last| cmp_rows(last, &s.x).is_ne()) {
+                if let Some(r) = ranges.last_mut() {
+                    r.end = time.len();
                 }
-                p.x.push(s.x.clone());
-                p.ranges.push(p.time.len()..p.time.len());
-                last_key = Some(k);
-            } else if p.time.last() == Some(&s.time) {
-                let j = p.time.len() - 1;
-                p.total[j] += 1.0;
-                p.events[j] += if s.event { 1.0 } else { 0.0 };
+                x.push(s.x.clone());
+                ranges.push(time.len()..time.len());
+            } else if collapse && time.last() == Some(&s.time) {
+                let j = time.len() - 1;
+                total[j] += 1.0;
+                events[j] += event;
                 continue;
             }
-            p.time.push(s.time);
-            p.total.push(1.0);
-            p.events.push(if s.event { 1.0 } else { 0.0 });
+            time.push(s.time);
+            total.push(1.0);
+            events.push(event);
         }
-        if let Some(r) = p.ranges.last_mut() {
-            r.end = p.time.len();
+        if let Some(r) = ranges.last_mut() {
+            r.end = time.len();
         }
-        let mut records: Vec<Record> = design
-            .subjects
+        Self::from_columns(x, ranges, time, events, total)
+    }
+
+    /// Fills in the logarithms, the count of subjects and the pooled records.
+    fn from_columns(
+        x: Vec<Vec<f64>>,
+        ranges: Vec<std::ops::Range<usize>>,
+        time: Vec<f64>,
+        events: Vec<f64>,
+        total: Vec<f64>,
+    ) -> Patterns {
+        let ln_time = time.iter().map(|t| t.ln()).collect();
+        let n_subjects = total.iter().sum();
+        // Pooled over patterns: merge the collapsed records by time.
+        let mut pooled: Vec<(f64, f64, f64)> = time
             .iter()
-            .map(|s| Record {
-                time: s.time,
-                event: s.event,
-            })
+            .zip(&events)
+            .zip(&total)
+            .map(|((&t, &d), &n)| (t, d, n))
             .collect();
-        records.sort_by(|a, b| a.time.total_cmp(&b.time));
-        if !records.is_empty() {
-            p.pooled = FitData::from_records(&records);
+        pooled.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
+        let (mut pt, mut pd, mut pn) = (Vec::new(), Vec::new(), Vec::new());
+        for (t, d, n) in pooled {
+            if pt.last() == Some(&t) {
+                let j = pt.len() - 1;
+                pd[j] += d;
+                pn[j] += n;
+            } else {
+                pt.push(t);
+                pd.push(d);
+                pn.push(n);
+            }
         }
-        p
+        let pooled = if pt.is_empty() {
+            FitData::from_records(&[Record {
+                time: 1.0,
+                event: true,
+            }])
+        } else {
+            FitData::from_collapsed(pt, pd, pn, None)
+        };
+        Patterns {
+            x,
+            ranges,
+            time,
+            ln_time,
+            events,
+            total,
+            n_subjects,
+            pooled,
+        }
+    }
+
+    /// A seeded random subsample of about `size` collapsed records (each kept with the same
+    /// probability, whatever its pattern), with at least one event: a warm start for the full
+    /// data, as [`FitData::subsample`] is for the separate fits.
+    pub fn subsample(&self, size: usize, seed: u64) -> Patterns {
+        use rand_chacha::rand_core::{Rng, SeedableRng};
+        let n = self.time.len();
+        if n <= size {
+            return self.clone();
+        }
+        let keep = size as f64 / n as f64;
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(seed);
+        let mut x = Vec::new();
+        let mut ranges: Vec<std::ops::Range<usize>> = Vec::new();
+        let (mut time, mut events, mut total) = (Vec::new(), Vec::new(), Vec::new());
+        for (k, range) in self.ranges.iter().enumerate() {
+            let start = time.len();
+            for i in range.clone() {
+                if ((rng.next_u64() >> 11) as f64) * (1.0 / (1u64 << 53) as f64) < keep {
+                    time.push(self.time[i]);
+                    events.push(self.events[i]);
+                    total.push(self.total[i]);
+                }
+            }
+            if time.len() > start {
+                x.push(self.x[k].clone());
+                ranges.push(start..time.len());
+            }
+        }
+        if !events.iter().any(|&d| d > 0.0) {
+            // Keep the subsample fittable: add the first record with an event.
+            if let Some(i) = self.events.iter().position(|&d| d > 0.0) {
+                let k = self.ranges.iter().position(|r| r.contains(&i)).unwrap_or(0);
+                x.push(self.x[k].clone());
+                ranges.push(time.len()..time.len() + 1);
+                time.push(self.time[i]);
+                events.push(self.events[i]);
+                total.push(self.total[i]);
+            }
+        }
+        Self::from_columns(x, ranges, time, events, total)
     }
 
     /// Number of distinct covariate patterns.
@@ -248,6 +346,11 @@ impl Patterns {
     pub fn is_empty(&self) -> bool {
         self.x.is_empty()
     }
+
+    /// Number of collapsed records (what one pass of the likelihood runs over).
+    pub fn records(&self) -> usize {
+        self.time.len()
+    }
 }
 
 /// Fills `data` with pattern `k`'s columns (no allocation once it has grown).
@@ -256,8 +359,7 @@ fn load(data: &mut FitData, p: &Patterns, k: usize) {
     data.time.clear();
     data.time.extend_from_slice(&p.time[r.clone()]);
     data.ln_time.clear();
-    data.ln_time
-        .extend(p.time[r.clone()].iter().map(|t| t.ln()));
+    data.ln_time.extend_from_slice(&p.ln_time[r.clone()]);
     data.events.clear();
     data.events.extend_from_slice(&p.events[r.clone()]);
     data.total.clear();
@@ -267,19 +369,24 @@ fn load(data: &mut FitData, p: &Patterns, k: usize) {
     data.total_time = data.time.iter().zip(&data.total).map(|(t, n)| t * n).sum();
 }
 
-/// Log-likelihood and its gradient at `theta` (reference parameters, then coefficients).
-pub fn loglik_gradient(
+/// Patterns per chunk of the parallel likelihood sum: fixed, so that sums are identical
+/// whatever the number of threads (as [`crate::fit::sum_terms`]).
+const PATTERN_CHUNK: usize = 2_048;
+
+/// Log-likelihood and gradient over patterns `range` (serial).
+fn loglik_gradient_range(
     family: &dyn JointFamily,
     model: Model,
     patterns: &Patterns,
     theta: &[f64],
+    range: std::ops::Range<usize>,
 ) -> (f64, Vec<f64>) {
     let m = base_len(family);
     let one = family.family();
     let mut ll = 0.0;
     let mut g = vec![0.0; theta.len()];
-    let mut data = patterns.pooled.clone();
-    for k in 0..patterns.len() {
+    let mut data = FitData::from_collapsed(vec![1.0], vec![1.0], vec![1.0], Some(Vec::new()));
+    for k in range {
         load(&mut data, patterns, k);
         let x = &patterns.x[k];
         let eta = linear_predictor(x, &theta[m..]);
@@ -295,6 +402,55 @@ pub fn loglik_gradient(
         }
     }
     (ll, g)
+}
+
+/// Log-likelihood and its gradient at `theta` (reference parameters, then coefficients).
+/// Few large patterns are summed in turn (each pattern's sum is parallel inside the family);
+/// many small ones (a continuous covariate) in parallel over fixed chunks of patterns.
+pub fn loglik_gradient(
+    family: &dyn JointFamily,
+    model: Model,
+    patterns: &Patterns,
+    theta: &[f64],
+) -> (f64, Vec<f64>) {
+    use rayon::prelude::*;
+    let n = patterns.len();
+    if n <= PATTERN_CHUNK {
+        return loglik_gradient_range(family, model, patterns, theta, 0..n);
+    }
+    let partial: Vec<(f64, Vec<f64>)> = (0..n.div_ceil(PATTERN_CHUNK))
+        .into_par_iter()
+        .map(|c| {
+            let range = c * PATTERN_CHUNK..((c + 1) * PATTERN_CHUNK).min(n);
+            loglik_gradient_range(family, model, patterns, theta, range)
+        })
+        .collect();
+    let mut ll = 0.0;
+    let mut g = vec![0.0; theta.len()];
+    for (l, gc) in partial {
+        ll += l;
+        for (a, b) in g.iter_mut().zip(&gc) {
+            *a += b;
+        }
+    }
+    (ll, g)
+}
+
+/// A joint model's likelihood on some patterns, for the shared Newton iterations of
+/// [`crate::fit`].
+struct JointLikelihood<'a> {
+    family: &'a dyn JointFamily,
+    model: Model,
+    patterns: &'a Patterns,
+}
+
+impl Likelihood for JointLikelihood<'_> {
+    fn loglik_grad(&self, theta: &[f64]) -> (f64, Vec<f64>) {
+        loglik_gradient(self.family, self.model, self.patterns, theta)
+    }
+    fn n_subjects(&self) -> f64 {
+        self.patterns.n_subjects
+    }
 }
 
 /// Observed information −∂²ℓ by central differences of the analytic gradient, symmetrised.
@@ -373,7 +529,7 @@ fn newton(
                 g = tg;
                 moved = true;
                 if change.abs() < 1e-12 * (1.0 + ll.abs())
-                    && g.iter().all(|v| v.abs() < 1e-6 * (1.0 + ll.abs()))
+                    && g.iter().all(|v| v.abs() < GRADIENT_TOLERANCE * (1.0 + ll.abs()))
                 {
                     converged = true;
                 }
@@ -414,14 +570,90 @@ pub fn fit_with(
     model: Model,
     design: &Design,
 ) -> Option<JointFit> {
-    let patterns = Patterns::new(design);
+    fit_patterns(family, model, &Patterns::new(design))
+}
+
+/// [`fit_with`] on patterns already built (build them once for all models of a design). Above
+/// the separate fits' threshold of collapsed records ([`crate::fit::SUBSAMPLE_ABOVE`]) the
+/// model is fitted as the separate fits are on large data: every start on a seeded small
+/// subsample, Newton on a larger one, then a few Newton passes over the full data with the
+/// subsample's curvature; [`fit_plain`] when that path gives no converged fit.
+pub fn fit_patterns(
+    family: &'static dyn JointFamily,
+    model: Model,
+    patterns: &Patterns,
+) -> Option<JointFit> {
     if patterns.is_empty() {
         return None;
     }
-    let p = design.p();
+    if patterns.records() > crate::fit::SUBSAMPLE_ABOVE {
+        if let Some(fit) = fit_large(family, model, patterns) {
+            return Some(fit);
+        }
+    }
+    fit_plain(family, model, patterns)
+}
+
+/// Seeds of the two subsamples of the large-data path (fixed: the fit is reproducible).
+const COARSE_SEED: u64 = 20_261_204;
+const SUBSAMPLE_SEED: u64 = 20_261_205;
+
+/// The large-data path of [`fit_patterns`]; `None` when it does not reach a converged fit.
+fn fit_large(
+    family: &'static dyn JointFamily,
+    model: Model,
+    patterns: &Patterns,
+) -> Option<JointFit> {
+    let coarse = patterns.subsample(crate::fit::COARSE_SIZE, COARSE_SEED);
+    let (start, _, _) = search(family, model, &coarse)?;
+    let sub = patterns.subsample(crate::fit::SUBSAMPLE_SIZE, SUBSAMPLE_SEED);
+    let full = JointLikelihood {
+        family,
+        model,
+        patterns,
+    };
+    let sub_lik = JointLikelihood {
+        family,
+        model,
+        patterns: &sub,
+    };
+    let (best, steps) = crate::fit::warm_newton(&full, &sub_lik, start)?;
+    if !best.loglik.is_finite()
+        || best
+            .grad
+            .iter()
+            .any(|g| !(g.abs() < GRADIENT_TOLERANCE * (1.0 + best.loglik.abs())))
+    {
+        return None;
+    }
+    let info = crate::fit::information_forward_of(&full, &best, &steps);
+    let covariance = invert_positive_definite(&info)?;
+    if !covariance.iter().flatten().all(|v| v.is_finite()) {
+        return None;
+    }
+    Some(JointFit {
+        family,
+        model,
+        theta: best.theta,
+        covariance,
+        loglik: best.loglik,
+        converged: true,
+    })
+}
+
+/// Largest gradient component, relative to 1 + |loglik|, of a converged joint fit.
+const GRADIENT_TOLERANCE: f64 = 1e-6;
+
+/// Every start on `patterns`, Newton from each: the best (theta, loglik, converged).
+fn search(
+    family: &dyn JointFamily,
+    model: Model,
+    patterns: &Patterns,
+) -> Option<(Vec<f64>, f64, bool)> {
+    let p = patterns.x.first().map_or(0, Vec::len);
     let mut best: Option<(Vec<f64>, f64, bool)> = None;
-    for start in starts(family, &patterns, p) {
-        let Some(found) = newton(family, model, &patterns, start) else {
+    for start in starts(family, patterns, p) {
+        let Some(found) = newton(family, model, patterns, start) else {
             continue;
         };
         let better = match &best {
@@ -437,9 +669,22 @@ pub fn fit_with(
             break;
         }
     }
-    let (theta, loglik, mut converged) = best?;
+    best
+}
+
+/// Fits a joint model on the full data from every start (Newton with the differenced
+/// information at each iterate): the path below the large-data threshold.
+pub fn fit_plain(
+    family: &'static dyn JointFamily,
+    model: Model,
+    patterns: &Patterns,
+) -> Option<JointFit> {
+    if patterns.is_empty() {
+        return None;
+    }
+    let (theta, loglik, mut converged) = search(family, model, patterns)?;
     let n = theta.len();
-    let info = information(family, model, &patterns, &theta);
+    let info = information(family, model, patterns, &theta);
     let covariance = match invert_positive_definite(&info) {
         Some(c) => c,
         None => {
