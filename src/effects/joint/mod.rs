@@ -529,7 +529,8 @@ fn newton(
                 g = tg;
                 moved = true;
                 if change.abs() < 1e-12 * (1.0 + ll.abs())
-                    && g.iter().all(|v| v.abs() < GRADIENT_TOLERANCE * (1.0 + ll.abs()))
+                    && g.iter()
+                        .all(|v| v.abs() < GRADIENT_TOLERANCE * (1.0 + ll.abs()))
                 {
                     converged = true;
                 }
