@@ -21,7 +21,7 @@ use std::path::{Path, PathBuf};
 use std::time::Instant;
 use tunnelcast::effects::cox;
 use tunnelcast::effects::design::{parse, Design, DesignOptions};
-use tunnelcast::effects::joint::{all, fit_patterns, Patterns};
+use tunnelcast::effects::joint::{all, fit_patterns, loglik_gradient, Model, Patterns};
 
 /// Records in the benchmark file.
 const N: usize = 1_000_000;
@@ -117,6 +117,19 @@ fn main() {
                 patterns.records()
             );
             record(&mut rows, "collapse", clock.elapsed().as_secs_f64(), what);
+            let weibull = tunnelcast::effects::joint::by_name("weibull").unwrap();
+            let mut theta = vec![0.25, 3.0];
+            theta.resize(2 + design.p(), 0.1);
+            let clock = Instant::now();
+            let (ll, _) = loglik_gradient(weibull, Model::Ph, &patterns, &theta);
+            assert!(ll.is_finite());
+            let s = clock.elapsed().as_secs_f64();
+            record(
+                &mut rows,
+                "one likelihood and gradient pass (Weibull PH)",
+                s,
+                String::new(),
+            );
             for (family, model) in all() {
                 let clock = Instant::now();
                 let fit = fit_patterns(family, model, &patterns);

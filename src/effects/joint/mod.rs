@@ -208,11 +208,18 @@ impl Patterns {
     }
 
     fn build(design: &Design, collapse: bool) -> Patterns {
+        use rayon::prelude::*;
         let subjects = &design.subjects;
+        let p = design.p();
+        // Design rows and times in flat arrays, sorted by (row, time, position): a total
+        // order, so the parallel sort gives the same result whatever the number of threads.
+        let rows: Vec<f64> = subjects.iter().flat_map(|s| s.x.iter().copied()).collect();
+        let row = |i: usize| &rows[i * p..(i + 1) * p];
+        let times: Vec<f64> = subjects.iter().map(|s| s.time).collect();
         let mut order: Vec<usize> = (0..subjects.len()).collect();
-        order.sort_unstable_by(|&a, &b| {
-            cmp_rows(&subjects[a].x, &subjects[b].x)
-                .then(subjects[a].time.total_cmp(&subjects[b].time))
+        order.par_sort_unstable_by(|&a, &b| {
+            cmp_rows(row(a), row(b))
+                .then(times[a].total_cmp(&times[b]))
                 .then(a.cmp(&b))
         });
         let mut x: Vec<Vec<f64>> = Vec::new();
@@ -223,11 +230,11 @@ impl Patterns {
         for &i in &order {
             let s = &subjects[i];
             let event = if s.event { 1.0 } else { 0.0 };
-            if x.last().is_none_or(|last| cmp_rows(last, &s.x).is_ne()) {
+            if x.last().is_none_or(|last| cmp_rows(last, row(i)).is_ne()) {
                 if let Some(r) = ranges.last_mut() {
                     r.end = time.len();
                 }
-                x.push(s.x.clone());
+                x.push(row(i).to_vec());
                 ranges.push(time.len()..time.len());
             } else if collapse && time.last() == Some(&s.time) {
                 let j = time.len() - 1;
