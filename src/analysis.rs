@@ -1332,6 +1332,47 @@ count = 24
         assert!(msg.contains("not among the fitted families"), "{msg}");
     }
 
+    #[test]
+    fn choice_reads_a_joint_model_with_the_curve_options_rules() {
+        let joint = GOOD.replace("\"weibull\", \"lognormal\"", "\"weibull\"")
+            + "[effects]\ncovariates = [\"age\", \"stage\"]\n[choice]\nmodel = \"AFT\"\nat = { stage = \"II\", age = 60.5 }\n";
+        let a = Analysis::parse("a.toml", &joint, Path::new(".")).unwrap();
+        let j = a.joint.unwrap();
+        assert_eq!(j.model, crate::effects::joint::Model::Aft);
+        // The arm of [fit] when [choice] names none; `at` as `--at` takes it.
+        assert_eq!(j.arm.as_deref(), Some("b"));
+        assert_eq!(j.at.as_deref(), Some("age=60.5,stage=II"));
+        assert!(a.reason.is_none());
+        let err = |text: String| {
+            Analysis::parse("a.toml", &text, Path::new("."))
+                .unwrap_err()
+                .to_string()
+        };
+        let e = err(joint.replace("model = \"AFT\"\n", ""));
+        assert!(
+            e.contains(
+                "[choice] at fixes the covariates of a joint model; add model = \"ph\" or \"aft\""
+            ),
+            "{e}"
+        );
+        let e = err(joint.replace("\"AFT\"", "\"pH model\""));
+        assert!(e.contains("[choice] model ph model: unknown model"), "{e}");
+        let e = err(joint.replace("at = {", "arm = \"a\"\nat = {"));
+        assert!(e.contains("differs from [fit] arm \"b\""), "{e}");
+        let e = err(joint.replace("age = 60.5", "age = true"));
+        assert!(e.contains("[choice] at: age = true is neither"), "{e}");
+        let e = err(joint.replace("[effects]\ncovariates = [\"age\", \"stage\"]\n", ""));
+        assert!(e.contains("add [effects]"), "{e}");
+        let e = err(joint.replace("choose = \"best-aic\"", "choose = \"gompertz\""));
+        assert!(e.contains("there is no joint gompertz aft model"), "{e}");
+        // A joint model need not be among the separate fits' families.
+        let loglogistic = joint.replace("choose = \"best-aic\"", "choose = \"loglogistic\"");
+        assert!(Analysis::parse("a.toml", &loglogistic, Path::new(".")).is_ok());
+        let e = err(format!("{GOOD}[choice]\n"));
+        assert!(e.contains("[choice] is empty"), "{e}");
+        assert_eq!(e.lines().count(), 1);
+    }
+
     const ADJUST: &str = r#"
 [adjust]
 hazard_ratio = 0.6

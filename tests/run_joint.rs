@@ -502,3 +502,102 @@ fn a_joint_model_that_is_not_the_lowest_aic_needs_a_reason() {
         "{e}"
     );
 }
+
+#[test]
+fn background_mortality_and_payoffs_on_a_joint_curve_match_the_standalone_commands() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let data = format!("{}/data", env!("CARGO_MANIFEST_DIR"));
+    for name in ["demo_lifetable.csv", "demo_payoffs.csv"] {
+        std::fs::copy(format!("{data}/{name}"), d.join(name)).unwrap();
+    }
+    // Log-normal AFT, standardised over arm standard's patients, background mortality added
+    // (two causes of exit) and the demo's invented payoff schedule.
+    setup(
+        d,
+        "families = [\"lognormal\"]\nchoose = \"lognormal\"",
+        "[adjust]\nbackground = \"demo_lifetable.csv\"\nstart_age = 60\nsex = \"male\"\nbackground_mode = \"add\"\n\n\
+         [payoffs]\nfile = \"demo_payoffs.csv\"\n\n\
+         [effects]\ncovariates = [\"karnofsky\"]\n\n\
+         [choice]\nmodel = \"aft\"\narm = \"standard\"\nreason = \"log-normal hazards rise then fall, as clinicians expect\"\n",
+    );
+    run(d);
+    let curve = [
+        "--fit",
+        "out/fit.json",
+        "--family",
+        "lognormal",
+        "--model",
+        "aft",
+        "--arm",
+        "standard",
+        "--background",
+        "demo_lifetable.csv",
+        "--start-age",
+        "60",
+        "--sex",
+        "male",
+        "--background-mode",
+        "add",
+        "--payoffs",
+        "demo_payoffs.csv",
+        "--discount",
+        "0.035",
+        "--cycle",
+        "30 days",
+    ];
+    tunnelcast(d)
+        .arg("tunnels")
+        .args(curve)
+        .args(["--count", "6", "--out", "t.json"])
+        .assert()
+        .success();
+    tunnelcast(d)
+        .arg("horizon")
+        .args(curve)
+        .args(["--horizon", "3 years", "--json", "h.json"])
+        .assert()
+        .success();
+    let run_tunnels = read_table(&d.join("out/tunnels.json"));
+    let alone = read_table(&d.join("t.json"));
+    assert_eq!(run_tunnels.tables[0].columns, alone.tables[0].columns);
+    for column in ["p_exit_background", "payoff_treatment_cost"] {
+        assert!(
+            run_tunnels.tables[0].columns.iter().any(|c| c == column),
+            "no {column}"
+        );
+    }
+    same("tunnels", &numbers(&run_tunnels), &numbers(&alone));
+    assert_eq!(curve_lines(&run_tunnels), curve_lines(&alone));
+    // The truncation table with the payoff criteria, and the payoff totals by method.
+    let h: Value = serde_json::from_slice(&std::fs::read(d.join("h.json")).unwrap()).unwrap();
+    let truncation = read_table(&d.join("out/truncation.json"));
+    let columns = truncation.tables[0].columns.clone();
+    assert!(columns.iter().any(|c| c.starts_with("payoff_rel_error_")));
+    let from_h: Vec<Vec<f64>> = h["truncation"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| {
+            columns
+                .iter()
+                .map(|k| r[k.as_str()].as_f64().unwrap())
+                .collect()
+        })
+        .collect();
+    same("truncation", &numbers(&truncation), &from_h);
+    let methods = read_table(&d.join("out/payoff_methods.json"));
+    let columns = methods.tables[0].columns.clone();
+    let from_h: Vec<Vec<f64>> = h["payoffs"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| {
+            columns
+                .iter()
+                .map(|k| r[k.as_str()].as_f64().unwrap_or(f64::NAN))
+                .collect()
+        })
+        .collect();
+    same("payoff methods", &numbers(&methods), &from_h);
+}

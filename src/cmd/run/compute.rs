@@ -76,7 +76,7 @@ pub struct RunResult {
 #[derive(Clone)]
 pub enum Chosen {
     /// A separate fit of one arm (`[fit] choose`).
-    Separate(FamilyFit),
+    Separate(Box<FamilyFit>),
     /// A joint model across arms (`[choice] model`), for one arm.
     Joint(Box<JointChosen>),
 }
@@ -597,7 +597,11 @@ fn choose_separate(
         .ok_or_else(|| Error::Computation(format!("the {} fit lacks parameters", family.name())))?;
     let curve = ParametricCurve::new(family, params, analysis.time_unit)
         .map_err(|e| Error::Computation(format!("the {} fit: {e}", family.name())))?;
-    Ok((Chosen::Separate(chosen), chosen_by, Base::Parametric(curve)))
+    Ok((
+        Chosen::Separate(Box::new(chosen)),
+        chosen_by,
+        Base::Parametric(curve),
+    ))
 }
 
 /// The joint model of `[choice] model` (family from `[fit] choose`, or the lowest AIC among the
