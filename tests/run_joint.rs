@@ -601,3 +601,43 @@ fn background_mortality_and_payoffs_on_a_joint_curve_match_the_standalone_comman
         .collect();
     same("payoff methods", &numbers(&methods), &from_h);
 }
+
+#[test]
+fn the_joint_model_example_runs_and_gives_the_log_logistic_aft_arm() {
+    // data/demo_joint_analysis.toml: the invented demo trial, the veltranib arm's curve from
+    // the joint log-logistic AFT model, S(t) = 1/(1 + (t/(scale·e^γ))^shape) (definition of
+    // the log-logistic AFT model, common practice), γ = log_af_veltranib.
+    let dir = tempfile::tempdir().unwrap();
+    let example = format!(
+        "{}/data/demo_joint_analysis.toml",
+        env!("CARGO_MANIFEST_DIR")
+    );
+    let out = dir.path().join("out");
+    tunnelcast(dir.path())
+        .args(["run", &example, "--out", "out"])
+        .assert()
+        .success();
+    let json: Value =
+        serde_json::from_slice(&std::fs::read(out.join("fit.json")).unwrap()).unwrap();
+    let aft = joint(&json, "loglogistic", "aft");
+    let scale = param(aft, "scale") * param(aft, "log_af_veltranib").exp();
+    let shape = param(aft, "shape");
+    let survival = |t: f64| 1.0 / (1.0 + (t / scale).powf(shape));
+    let tunnels = read_table(&out.join("tunnels.json"));
+    assert_eq!(tunnels.metadata["arm"], "veltranib");
+    assert!(tunnels.metadata["joint_model"].starts_with("loglogistic aft across arms"));
+    let col = |n: &str| {
+        tunnels.tables[0]
+            .columns
+            .iter()
+            .position(|c| c == n)
+            .unwrap()
+    };
+    let (t_end, s_end) = (col("t_end"), col("surv_end"));
+    for row in &tunnels.tables[0].rows {
+        let t = row[t_end].as_f64().unwrap();
+        let (got, want) = (row[s_end].as_f64().unwrap(), survival(t));
+        assert!((got - want).abs() < 1e-12 * want, "S({t}): {got} vs {want}");
+    }
+    assert!(out.join("draws_summary.csv").is_file());
+}
