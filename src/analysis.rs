@@ -189,6 +189,8 @@ pub struct JointChoice {
     pub arm: Option<String>,
     /// Where the arm is written (`[choice] arm` or `[fit] arm`), else `[choice] model`.
     pub arm_place: Place,
+    /// The key the arm comes from: `[choice] arm` or `[fit] arm`.
+    pub arm_key: &'static str,
     /// `[choice] at` as `--at` takes it (`NAME=VALUE,...`), when given.
     pub at: Option<String>,
     /// Where `[choice] at` is written, else `[choice] model`.
@@ -969,7 +971,7 @@ impl Analysis {
                         ));
                     }
                 }
-                let (joint_arm, joint_arm_place) = match (&c.arm, &arm) {
+                let (joint_arm, joint_arm_place, arm_key) = match (&c.arm, &arm) {
                     (Some(a), Some(fit_arm)) if a.get_ref() != fit_arm => {
                         return Err(bad(
                             a.span(),
@@ -979,9 +981,9 @@ impl Analysis {
                             ),
                         ))
                     }
-                    (Some(a), _) => (Some(a.get_ref().clone()), at(a.span())),
-                    (None, Some(fit_arm)) => (Some(fit_arm.clone()), arm_place),
-                    (None, None) => (None, model_place),
+                    (Some(a), _) => (Some(a.get_ref().clone()), at(a.span()), "[choice] arm"),
+                    (None, Some(fit_arm)) => (Some(fit_arm.clone()), arm_place, "[fit] arm"),
+                    (None, None) => (None, model_place, "[choice] arm"),
                 };
                 let (at_value, at_place) = match &c.at {
                     Some(v) => (
@@ -995,6 +997,7 @@ impl Analysis {
                     model_place,
                     arm: joint_arm,
                     arm_place: joint_arm_place,
+                    arm_key,
                     at: at_value,
                     at_place,
                 })

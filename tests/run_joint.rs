@@ -417,6 +417,15 @@ fn bad_joint_choices_are_one_line_errors_naming_the_key() {
         &format!("{effects}[choice]\nmodel = \"cox\"\narm = \"test\"\n"),
     );
     assert!(e.contains("[choice] model cox: unknown model"), "{e}");
+    // The arm may come from [fit] arm; an unknown one is named by that key.
+    let e = fails(
+        "families = [\"weibull\"]\nchoose = \"weibull\"\narm = \"placebo\"",
+        &format!("{effects}[choice]\nmodel = \"ph\"\nreason = \"r\"\n"),
+    );
+    assert!(
+        e.contains("line 9 column 7: [fit] arm placebo: not an arm of the joint model"),
+        "{e}"
+    );
     // [fit] arm and [choice] arm must agree.
     let e = fails(
         "families = [\"weibull\"]\nchoose = \"weibull\"\narm = \"standard\"",

@@ -663,7 +663,11 @@ fn choose_joint(
                 "; choose another or add --allow-unconverged",
                 "; choose another family or model",
             );
-        analysis.error_at(place, crate::analysis::choice_message(&message))
+        let mut message = crate::analysis::choice_message(&message);
+        if message.starts_with("[choice] arm ") {
+            message = message.replacen("[choice] arm", joint.arm_key, 1);
+        }
+        analysis.error_at(place, message)
     })?;
     let summary = fits
         .effects
