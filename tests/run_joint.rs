@@ -28,7 +28,7 @@ fn setup(dir: &Path, fit: &str, extra: &str) {
         format!(
             "[data]\nfile = \"va.csv\"\ntime_unit = \"days\"\narm_column = \"arm\"\n\n[fit]\n{fit}\n\n\
              [tunnels]\ncycle = \"30 days\"\ncount = {COUNT}\nhorizon = \"3 years\"\n\n\
-             [output]\nformats = [\"csv\", \"json\"]\n\n{extra}"
+             [output]\nformats = [\"csv\", \"json\", \"xlsx\"]\n\n{extra}"
         ),
     )
     .unwrap();
@@ -87,6 +87,38 @@ fn same(what: &str, a: &[Vec<f64>], b: &[Vec<f64>]) {
             assert!(ok, "{what} row {i}: {x} vs {y}\n{ra:?}\n{rb:?}");
         }
     }
+}
+
+/// A sheet of an XLSX file read by calamine: header and numbers (empty or text cells NaN).
+fn xlsx_sheet(path: &Path, sheet: &str) -> (Vec<String>, Vec<Vec<f64>>) {
+    use calamine::{Data, Reader, Xlsx};
+    let mut book: Xlsx<_> = calamine::open_workbook(path).unwrap();
+    let range = book.worksheet_range(sheet).unwrap();
+    let mut rows = range.rows();
+    let columns = rows.next().unwrap().iter().map(|c| c.to_string()).collect();
+    let values = rows
+        .map(|r| {
+            r.iter()
+                .map(|c| match c {
+                    Data::Float(x) => *x,
+                    Data::Int(i) => *i as f64,
+                    _ => f64::NAN,
+                })
+                .collect()
+        })
+        .collect();
+    (columns, values)
+}
+
+/// A sheet of an XLSX file as text cells, row by row.
+fn xlsx_text(path: &Path, sheet: &str) -> Vec<Vec<String>> {
+    use calamine::{Reader, Xlsx};
+    let mut book: Xlsx<_> = calamine::open_workbook(path).unwrap();
+    let range = book.worksheet_range(sheet).unwrap();
+    range
+        .rows()
+        .map(|r| r.iter().map(|c| c.to_string()).collect())
+        .collect()
 }
 
 /// The metadata lines that describe the curve (model, arm, covariates, estimates, adjustments).
@@ -175,6 +207,17 @@ fn a_joint_choice_writes_what_the_standalone_commands_write_from_its_fit_file() 
         &read_csv_table(&out.join("tunnels.csv")).numbers(),
         &numbers(&alone),
     );
+    // The workbook: the same numbers, the joint model's lines in its notes sheet.
+    let (columns, rows) = xlsx_sheet(&out.join("tunnels.xlsx"), "tunnels");
+    assert_eq!(columns, alone.tables[0].columns);
+    same("tunnels.xlsx", &rows, &numbers(&alone));
+    let notes = xlsx_text(&out.join("tunnels.xlsx"), "notes");
+    for (key, value) in curve_lines(&alone) {
+        assert!(
+            notes.contains(&vec![key.clone(), value.clone()]),
+            "{key} = {value} not in the notes sheet"
+        );
+    }
     // The same curve described by the same lines.
     assert_eq!(curve_lines(&run_tunnels), curve_lines(&alone));
     assert_eq!(
