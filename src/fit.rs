@@ -69,11 +69,12 @@ impl FitData {
         total: Vec<f64>,
         km_points: Option<Vec<(f64, f64)>>,
     ) -> FitData {
-        let ln_time = time.iter().map(|t| t.ln()).collect();
+        let ln_time: Vec<f64> = time.par_iter().map(|t| t.ln()).collect();
         let n_subjects = total.iter().sum();
         let n_events = events.iter().sum();
         let total_time = time.iter().zip(&total).map(|(t, n)| t * n).sum();
-        let km_points = km_points.unwrap_or_else(|| km_points_for_starts(&time, &events, &total));
+        let km_points =
+            km_points.unwrap_or_else(|| km_points_for_starts(&ln_time, &events, &total));
         FitData {
             time,
             ln_time,
@@ -163,15 +164,15 @@ const MAX_KM_POINTS: usize = 2_000;
 
 /// Kaplan–Meier (ln t, S) at event times with 0 < S < 1, thinned evenly to at most
 /// [`MAX_KM_POINTS`]; only the product-limit estimate is needed here, not its interval.
-fn km_points_for_starts(time: &[f64], events: &[f64], total: &[f64]) -> Vec<(f64, f64)> {
+fn km_points_for_starts(ln_time: &[f64], events: &[f64], total: &[f64]) -> Vec<(f64, f64)> {
     let mut at_risk: f64 = total.iter().sum();
     let mut survival = 1.0;
     let mut points = Vec::new();
-    for i in 0..time.len() {
+    for i in 0..ln_time.len() {
         if events[i] > 0.0 {
             survival *= 1.0 - events[i] / at_risk;
             if survival > 0.0 && survival < 1.0 {
-                points.push((time[i].ln(), survival));
+                points.push((ln_time[i], survival));
             }
         }
         at_risk -= total[i];
