@@ -102,11 +102,16 @@ struct RawPlausibility {
     sex: Option<Spanned<String>>,
 }
 
-/// `[choice]`: why the chosen family was chosen.
+/// `[choice]`: why the chosen family was chosen, and whether the chosen curve is an arm's
+/// curve from a joint model across arms (`model`, `arm`, `at`, as the curve options
+/// `--model`, `--arm`, `--at`).
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
 struct RawChoice {
-    reason: Spanned<String>,
+    reason: Option<Spanned<String>>,
+    model: Option<Spanned<String>>,
+    arm: Option<Spanned<String>>,
+    at: Option<Spanned<toml::Value>>,
 }
 
 /// `[effects]`: the models across arms of `fit --effects` (Cox model, test of proportional
@@ -168,6 +173,74 @@ pub struct ChoiceReason {
     pub text: String,
     /// Where `[choice]` is written.
     pub place: Place,
+}
+
+/// `[choice] model`, `arm`, `at`: the chosen curve is an arm's curve from the joint model of
+/// `[fit] choose`'s family (or the lowest AIC among the joint models of this kind), taken as
+/// the curve options `--model`, `--arm`, `--at` take it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct JointChoice {
+    /// PH or AFT.
+    pub model: crate::effects::joint::Model,
+    /// Where `[choice] model` is written.
+    pub model_place: Place,
+    /// The arm level: `[choice] arm`, else `[fit] arm` (checked against the data when the
+    /// joint model is chosen).
+    pub arm: Option<String>,
+    /// Where the arm is written (`[choice] arm` or `[fit] arm`), else `[choice] model`.
+    pub arm_place: Place,
+    /// The key the arm comes from: `[choice] arm` or `[fit] arm`.
+    pub arm_key: &'static str,
+    /// `[choice] at` as `--at` takes it (`NAME=VALUE,...`), when given.
+    pub at: Option<String>,
+    /// Where `[choice] at` is written, else `[choice] model`.
+    pub at_place: Place,
+}
+
+/// A curve-option message (`--model`, `--arm`, `--at`) in the words of the analysis file's
+/// `[choice]` keys, so the analysis file and the curve options share one set of rules.
+pub fn choice_message(message: &str) -> String {
+    let mut m = message.to_string();
+    for (option, key) in [
+        ("--model ph|aft", "model = \"ph\" or \"aft\""),
+        ("--arm LEVEL", "arm = \"LEVEL\""),
+        ("--model", "model"),
+        ("--arm", "arm"),
+        ("--at", "at"),
+    ] {
+        m = m.replace(option, key);
+    }
+    format!("[choice] {m}")
+}
+
+/// `[choice] at = { NAME = VALUE, ... }` as the text `--at` takes (`NAME=VALUE,...`): numbers
+/// as TOML reads them (shortest form that reads back exactly), text levels as written.
+fn at_text(value: &toml::Value) -> std::result::Result<String, String> {
+    let toml::Value::Table(table) = value else {
+        return Err(format!(
+            "[choice] at: {value} is not a table of covariate values; write e.g. at = {{ age = 60, stage = \"II\" }}"
+        ));
+    };
+    let mut items = Vec::new();
+    for (name, v) in table {
+        let text = match v {
+            toml::Value::Integer(n) => n.to_string(),
+            toml::Value::Float(x) => format!("{x:?}"),
+            toml::Value::String(level) => level.clone(),
+            other => {
+                return Err(format!(
+                    "[choice] at: {name} = {other} is neither a number nor a level (text)"
+                ))
+            }
+        };
+        if name.contains([',', '=']) || text.contains([',', '=']) {
+            return Err(format!(
+                "[choice] at: {name} = {v}: a name or level with \",\" or \"=\" cannot be given"
+            ));
+        }
+        items.push(format!("{name}={text}"));
+    }
+    Ok(items.join(","))
 }
 
 /// `[payoffs]` settings: the payoff file and the annual discount rate of its figures.
@@ -364,6 +437,8 @@ pub struct Analysis {
     pub plausibility: PlausibilitySettings,
     /// `[choice] reason`, required when the chosen family is not the lowest AIC.
     pub reason: Option<ChoiceReason>,
+    /// `[choice] model`, `arm`, `at`: the chosen curve from a joint model across arms.
+    pub joint: Option<JointChoice>,
 }
 
 impl std::fmt::Debug for Analysis {
@@ -802,13 +877,49 @@ impl Analysis {
                 out
             }
         };
+        let choice = raw.choice.as_ref().map(|c| (c.get_ref(), at(c.span())));
+        // `model` and `at` by the curve options' own rule (`--at` needs `--model`).
+        let model = match choice {
+            None => None,
+            Some((c, place)) => {
+                let at_given = c.at.as_ref().map(|_| "");
+                let model_text = c.model.as_ref().map(|m| m.get_ref().as_str());
+                let parsed =
+                    crate::cmd::curve_args::joint_model(model_text, at_given).map_err(|e| {
+                        let span_place = match (&c.model, &c.at) {
+                            (Some(m), _) => at(m.span()),
+                            (None, Some(a)) => at(a.span()),
+                            _ => place,
+                        };
+                        error_at(file, span_place, choice_message(&e.to_string()))
+                    })?;
+                parsed.map(|m| (m, c))
+            }
+        };
+        if let Some((c, place)) = choice {
+            if c.reason.is_none() && c.model.is_none() && c.arm.is_none() && c.at.is_none() {
+                return Err(error_at(
+                    file,
+                    place,
+                    "[choice] is empty: give reason = \"...\" (why the chosen curve), or model = \"ph\" or \"aft\" with arm (an arm's curve from a joint model)",
+                ));
+            }
+            if let (Some(a), None) = (&c.arm, &c.model) {
+                return Err(bad(
+                    a.span(),
+                    "[choice] arm takes an arm's curve from a joint model; add model = \"ph\" or \"aft\" (the arm of a separate fit is [fit] arm)".into(),
+                ));
+            }
+        }
         let (choose, choose_place) = match &fit.choose {
             None => (Choice::BestAic, Place { line: 1, column: 1 }),
             Some(c) if c.get_ref().trim() == "best-aic" => (Choice::BestAic, at(c.span())),
             Some(c) => {
                 let family = families::by_name(c.get_ref())
                     .map_err(|e| bad(c.span(), format!("[fit] choose: {e} (or \"best-aic\")")))?;
-                if !families.iter().any(|f| f.name() == family.name()) {
+                // Joint models are fitted for every family with a joint form, whatever
+                // `[fit] families` lists.
+                if model.is_none() && !families.iter().any(|f| f.name() == family.name()) {
                     return Err(bad(
                         c.span(),
                         format!(
@@ -828,6 +939,69 @@ impl Analysis {
         let (arm, arm_place) = match &fit.arm {
             Some(a) => (Some(a.get_ref().clone()), at(a.span())),
             None => (None, choose_place),
+        };
+        let joint = match model {
+            None => None,
+            Some((model, c)) => {
+                let model_span = c.model.as_ref().map(Spanned::span).unwrap_or_default();
+                let model_place = at(model_span.clone());
+                if raw.effects.is_none() {
+                    return Err(bad(
+                        model_span,
+                        "[choice] model takes the chosen curve from a joint model across arms; add [effects] (with [data] arm_column) so the joint models are fitted".into(),
+                    ));
+                }
+                if let Choice::Family(f) = choose {
+                    let supported = crate::effects::joint::by_name(f.name())
+                        .is_some_and(|j| j.models().contains(&model));
+                    if !supported {
+                        let with: Vec<&str> = crate::effects::joint::all()
+                            .into_iter()
+                            .filter(|(_, m)| *m == model)
+                            .map(|(j, _)| j.family().name())
+                            .collect();
+                        return Err(bad(
+                            model_span,
+                            format!(
+                                "[choice] model = \"{0}\": there is no joint {1} {0} model ([fit] choose = \"{1}\"); joint {0} models: {2}",
+                                model.name(),
+                                f.name(),
+                                with.join(", ")
+                            ),
+                        ));
+                    }
+                }
+                let (joint_arm, joint_arm_place, arm_key) = match (&c.arm, &arm) {
+                    (Some(a), Some(fit_arm)) if a.get_ref() != fit_arm => {
+                        return Err(bad(
+                            a.span(),
+                            format!(
+                                "[choice] arm \"{}\" differs from [fit] arm \"{fit_arm}\": the tunnel table is for one arm (leave out [fit] arm)",
+                                a.get_ref()
+                            ),
+                        ))
+                    }
+                    (Some(a), _) => (Some(a.get_ref().clone()), at(a.span()), "[choice] arm"),
+                    (None, Some(fit_arm)) => (Some(fit_arm.clone()), arm_place, "[fit] arm"),
+                    (None, None) => (None, model_place, "[choice] arm"),
+                };
+                let (at_value, at_place) = match &c.at {
+                    Some(v) => (
+                        Some(at_text(v.get_ref()).map_err(|m| bad(v.span(), m))?),
+                        at(v.span()),
+                    ),
+                    None => (None, model_place),
+                };
+                Some(JointChoice {
+                    model,
+                    model_place,
+                    arm: joint_arm,
+                    arm_place: joint_arm_place,
+                    arm_key,
+                    at: at_value,
+                    at_place,
+                })
+            }
         };
         if arm.is_some() && data.arm_column.is_none() {
             return Err(error_at(
@@ -1002,13 +1176,17 @@ impl Analysis {
             text,
             file,
         )?;
-        let reason = match &raw.choice {
+        let reason = match raw
+            .choice
+            .as_ref()
+            .and_then(|c| Some((c, c.get_ref().reason.as_ref()?)))
+        {
             None => None,
-            Some(c) => {
-                let r = c.get_ref().reason.get_ref().trim();
+            Some((c, reason)) => {
+                let r = reason.get_ref().trim();
                 if r.is_empty() {
                     return Err(bad(
-                        c.get_ref().reason.span(),
+                        reason.span(),
                         "[choice] reason is empty; say in a sentence why this family was chosen"
                             .into(),
                     ));
@@ -1068,6 +1246,7 @@ impl Analysis {
             payoffs,
             plausibility,
             reason,
+            joint,
         })
     }
 
@@ -1154,6 +1333,47 @@ count = 24
             .unwrap_err()
             .to_string();
         assert!(msg.contains("not among the fitted families"), "{msg}");
+    }
+
+    #[test]
+    fn choice_reads_a_joint_model_with_the_curve_options_rules() {
+        let joint = GOOD.replace("\"weibull\", \"lognormal\"", "\"weibull\"")
+            + "[effects]\ncovariates = [\"age\", \"stage\"]\n[choice]\nmodel = \"AFT\"\nat = { stage = \"II\", age = 60.5 }\n";
+        let a = Analysis::parse("a.toml", &joint, Path::new(".")).unwrap();
+        let j = a.joint.unwrap();
+        assert_eq!(j.model, crate::effects::joint::Model::Aft);
+        // The arm of [fit] when [choice] names none; `at` as `--at` takes it.
+        assert_eq!(j.arm.as_deref(), Some("b"));
+        assert_eq!(j.at.as_deref(), Some("age=60.5,stage=II"));
+        assert!(a.reason.is_none());
+        let err = |text: String| {
+            Analysis::parse("a.toml", &text, Path::new("."))
+                .unwrap_err()
+                .to_string()
+        };
+        let e = err(joint.replace("model = \"AFT\"\n", ""));
+        assert!(
+            e.contains(
+                "[choice] at fixes the covariates of a joint model; add model = \"ph\" or \"aft\""
+            ),
+            "{e}"
+        );
+        let e = err(joint.replace("\"AFT\"", "\"pH model\""));
+        assert!(e.contains("[choice] model ph model: unknown model"), "{e}");
+        let e = err(joint.replace("at = {", "arm = \"a\"\nat = {"));
+        assert!(e.contains("differs from [fit] arm \"b\""), "{e}");
+        let e = err(joint.replace("age = 60.5", "age = true"));
+        assert!(e.contains("[choice] at: age = true is neither"), "{e}");
+        let e = err(joint.replace("[effects]\ncovariates = [\"age\", \"stage\"]\n", ""));
+        assert!(e.contains("add [effects]"), "{e}");
+        let e = err(joint.replace("choose = \"best-aic\"", "choose = \"gompertz\""));
+        assert!(e.contains("there is no joint gompertz aft model"), "{e}");
+        // A joint model need not be among the separate fits' families.
+        let loglogistic = joint.replace("choose = \"best-aic\"", "choose = \"loglogistic\"");
+        assert!(Analysis::parse("a.toml", &loglogistic, Path::new(".")).is_ok());
+        let e = err(format!("{GOOD}[choice]\n"));
+        assert!(e.contains("[choice] is empty"), "{e}");
+        assert_eq!(e.lines().count(), 1);
     }
 
     const ADJUST: &str = r#"

@@ -69,11 +69,12 @@ impl FitData {
         total: Vec<f64>,
         km_points: Option<Vec<(f64, f64)>>,
     ) -> FitData {
-        let ln_time = time.iter().map(|t| t.ln()).collect();
+        let ln_time: Vec<f64> = time.par_iter().map(|t| t.ln()).collect();
         let n_subjects = total.iter().sum();
         let n_events = events.iter().sum();
         let total_time = time.iter().zip(&total).map(|(t, n)| t * n).sum();
-        let km_points = km_points.unwrap_or_else(|| km_points_for_starts(&time, &events, &total));
+        let km_points =
+            km_points.unwrap_or_else(|| km_points_for_starts(&ln_time, &events, &total));
         FitData {
             time,
             ln_time,
@@ -163,15 +164,15 @@ const MAX_KM_POINTS: usize = 2_000;
 
 /// Kaplan–Meier (ln t, S) at event times with 0 < S < 1, thinned evenly to at most
 /// [`MAX_KM_POINTS`]; only the product-limit estimate is needed here, not its interval.
-fn km_points_for_starts(time: &[f64], events: &[f64], total: &[f64]) -> Vec<(f64, f64)> {
+fn km_points_for_starts(ln_time: &[f64], events: &[f64], total: &[f64]) -> Vec<(f64, f64)> {
     let mut at_risk: f64 = total.iter().sum();
     let mut survival = 1.0;
     let mut points = Vec::new();
-    for i in 0..time.len() {
+    for i in 0..ln_time.len() {
         if events[i] > 0.0 {
             survival *= 1.0 - events[i] / at_risk;
             if survival > 0.0 && survival < 1.0 {
-                points.push((time[i].ln(), survival));
+                points.push((ln_time[i], survival));
             }
         }
         at_risk -= total[i];
@@ -222,6 +223,33 @@ pub fn sum_terms<const K: usize>(
         }
     }
     (ll, grad)
+}
+
+/// Log-likelihood with its gradient and Hessian on the estimation scale from one pass over the
+/// data ([`Family::loglik_grad_hessian`]). The Hessian is exact in its leading `exact` rows and
+/// columns; the other entries are not computed (differenced from the gradient instead).
+#[derive(Debug, Clone)]
+pub struct SecondOrder {
+    /// Log-likelihood.
+    pub loglik: f64,
+    /// Gradient.
+    pub grad: Vec<f64>,
+    /// Hessian, valid in its leading `exact` × `exact` block.
+    pub hessian: Vec<Vec<f64>>,
+    /// Number of leading parameters with analytic second derivatives.
+    pub exact: usize,
+}
+
+impl SecondOrder {
+    /// A two-parameter family's sums `[g0, g1, h00, h01, h11]` as a full second-order point.
+    pub fn two(loglik: f64, s: [f64; 5]) -> SecondOrder {
+        SecondOrder {
+            loglik,
+            grad: vec![s[0], s[1]],
+            hessian: vec![vec![s[2], s[3]], vec![s[3], s[4]]],
+            exact: 2,
+        }
+    }
 }
 
 /// Covariance of the estimates on the estimation scale, as written to fit files.
@@ -352,38 +380,8 @@ impl Gradient for Objective<'_> {
     }
 }
 
-/// A log-likelihood on the estimation scale with its analytic gradient: what the shared Newton
-/// iterations, the differenced information and the large-data path work on. One family on
-/// collapsed records here; a joint model across arms in [`crate::effects::joint`].
-pub(crate) trait Likelihood: Sync {
-    /// Log-likelihood and gradient at `theta`.
-    fn loglik_grad(&self, theta: &[f64]) -> (f64, Vec<f64>);
-    /// Number of subjects (scales the gradient tolerance and the subsample's curvature).
-    fn n_subjects(&self) -> f64;
-}
-
-/// One family on collapsed records.
-struct OneSample<'a> {
-    family: &'a dyn Family,
-    data: &'a FitData,
-}
-
-impl Likelihood for OneSample<'_> {
-    fn loglik_grad(&self, theta: &[f64]) -> (f64, Vec<f64>) {
-        self.family.loglik_grad(theta, self.data)
-    }
-    fn n_subjects(&self) -> f64 {
-        self.data.n_subjects
-    }
-}
-
 /// Hessian of the log-likelihood by central differences of the analytic gradient, symmetrised.
 pub fn hessian(family: &dyn Family, theta: &[f64], data: &FitData) -> Vec<Vec<f64>> {
-    hessian_of(&OneSample { family, data }, theta)
-}
-
-/// [`hessian`] of any [`Likelihood`].
-pub(crate) fn hessian_of(lik: &dyn Likelihood, theta: &[f64]) -> Vec<Vec<f64>> {
     let k = theta.len();
     let mut h = vec![vec![0.0; k]; k];
     for j in 0..k {
@@ -392,8 +390,8 @@ pub(crate) fn hessian_of(lik: &dyn Likelihood, theta: &[f64]) -> Vec<Vec<f64>> {
         let mut down = theta.to_vec();
         up[j] += step;
         down[j] -= step;
-        let (_, gu) = lik.loglik_grad(&up);
-        let (_, gd) = lik.loglik_grad(&down);
+        let (_, gu) = family.loglik_grad(&up, data);
+        let (_, gd) = family.loglik_grad(&down, data);
         for i in 0..k {
             h[i][j] = (gu[i] - gd[i]) / (2.0 * step);
         }
@@ -408,15 +406,67 @@ pub(crate) fn hessian_of(lik: &dyn Likelihood, theta: &[f64]) -> Vec<Vec<f64>> {
     h
 }
 
-/// Observed information (minus the Hessian) at `theta`.
+/// Observed information (minus the Hessian) at `theta`: analytic where the family has all
+/// second derivatives, else by central differences of the gradient.
 fn information(family: &dyn Family, theta: &[f64], data: &FitData) -> Vec<Vec<f64>> {
-    information_of(&OneSample { family, data }, theta)
+    let point = evaluate(family, data, theta.to_vec());
+    information_at(family, data, &point, None)
 }
 
-/// [`information`] of any [`Likelihood`].
-pub(crate) fn information_of(lik: &dyn Likelihood, theta: &[f64]) -> Vec<Vec<f64>> {
-    hessian_of(lik, theta)
-        .into_iter()
+/// Observed information at an evaluated point: its analytic block where it has one, the other
+/// columns by differences of the gradient (forward with `steps`, else central).
+fn information_at(
+    family: &dyn Family,
+    data: &FitData,
+    point: &Point,
+    steps: Option<&[f64]>,
+) -> Vec<Vec<f64>> {
+    let k = point.theta.len();
+    let exact = point.curvature.as_ref().map_or(0, |c| c.exact.min(k));
+    let mut h = match &point.curvature {
+        Some(c) => c.hessian.clone(),
+        None => vec![vec![0.0; k]; k],
+    };
+    for j in exact..k {
+        let column: Vec<f64> = match steps {
+            Some(steps) => {
+                let mut up = point.theta.clone();
+                up[j] += steps[j];
+                let (_, grad) = family.loglik_grad(&up, data);
+                (0..k)
+                    .map(|i| (grad[i] - point.grad[i]) / steps[j])
+                    .collect()
+            }
+            None => {
+                let step = 1e-5 * point.theta[j].abs().max(1.0);
+                let mut up = point.theta.clone();
+                let mut down = point.theta.clone();
+                up[j] += step;
+                down[j] -= step;
+                let (_, gu) = family.loglik_grad(&up, data);
+                let (_, gd) = family.loglik_grad(&down, data);
+                (0..k).map(|i| (gu[i] - gd[i]) / (2.0 * step)).collect()
+            }
+        };
+        for i in 0..k {
+            h[i][j] = column[i];
+        }
+    }
+    // The differenced columns give the analytic rows' cross terms; their own block is symmetrised.
+    for i in 0..k {
+        for j in 0..i {
+            if i >= exact && j >= exact {
+                let avg = 0.5 * (h[i][j] + h[j][i]);
+                h[i][j] = avg;
+                h[j][i] = avg;
+            } else if i >= exact {
+                h[i][j] = h[j][i];
+            } else {
+                h[j][i] = h[i][j];
+            }
+        }
+    }
+    h.into_iter()
         .map(|row| row.into_iter().map(|x| -x).collect())
         .collect()
 }
@@ -435,19 +485,68 @@ pub(crate) struct Point {
     pub(crate) loglik: f64,
     /// Its gradient.
     pub(crate) grad: Vec<f64>,
+    /// Analytic second derivatives from the same pass, where the family has them.
+    pub(crate) curvature: Option<SecondOrder>,
+}
+
+/// A log-likelihood on the estimation scale, for the shared Newton iterations and the
+/// large-data path: one family on collapsed records here ([`OneSample`]), a joint model
+/// across arms in [`crate::effects::joint`].
+pub(crate) trait Likelihood: Sync {
+    /// Log-likelihood, gradient (and analytic curvature where there is one) at `theta`.
+    fn evaluate(&self, theta: Vec<f64>) -> Point;
+    /// Observed information at an evaluated point (differences forward with `steps`, else
+    /// central, where it has no analytic curvature).
+    fn information_at(&self, point: &Point, steps: Option<&[f64]>) -> Vec<Vec<f64>>;
+    /// Number of subjects (scales the gradient tolerance and the subsample's curvature).
+    fn n_subjects(&self) -> f64;
+}
+
+/// One family on collapsed records.
+struct OneSample<'a> {
+    family: &'a dyn Family,
+    data: &'a FitData,
+}
+
+impl Likelihood for OneSample<'_> {
+    fn evaluate(&self, theta: Vec<f64>) -> Point {
+        evaluate(self.family, self.data, theta)
+    }
+    fn information_at(&self, point: &Point, steps: Option<&[f64]>) -> Vec<Vec<f64>> {
+        information_at(self.family, self.data, point, steps)
+    }
+    fn n_subjects(&self) -> f64 {
+        self.data.n_subjects
+    }
+}
+
+impl Point {
+    /// The full analytic Hessian, when the family gives every second derivative.
+    fn full_hessian(&self) -> Option<&[Vec<f64>]> {
+        self.curvature
+            .as_ref()
+            .filter(|c| c.exact >= self.theta.len())
+            .map(|c| c.hessian.as_slice())
+    }
 }
 
 fn evaluate(family: &dyn Family, data: &FitData, theta: Vec<f64>) -> Point {
-    evaluate_at(&OneSample { family, data }, theta)
-}
-
-/// A [`Point`] of any [`Likelihood`].
-pub(crate) fn evaluate_at(lik: &dyn Likelihood, theta: Vec<f64>) -> Point {
-    let (loglik, grad) = lik.loglik_grad(&theta);
-    Point {
-        theta,
-        loglik,
-        grad,
+    match family.loglik_grad_hessian(&theta, data) {
+        Some(second) => Point {
+            theta,
+            loglik: second.loglik,
+            grad: second.grad.clone(),
+            curvature: Some(second),
+        },
+        None => {
+            let (loglik, grad) = family.loglik_grad(&theta, data);
+            Point {
+                theta,
+                loglik,
+                grad,
+                curvature: None,
+            }
+        }
     }
 }
 
@@ -539,7 +638,7 @@ pub(crate) fn newton_of(
         }
         let covariance = match &secant {
             Some(c) => c.clone(),
-            None => match invert_positive_definite(&information_of(lik, &point.theta)) {
+            None => match invert_positive_definite(&lik.information_at(&point, None)) {
                 Some(c) => c,
                 None => break,
             },
@@ -571,7 +670,7 @@ pub(crate) fn newton_of(
                 .zip(&step)
                 .map(|(t, s)| t + scale * s)
                 .collect();
-            let trial = evaluate_at(lik, theta);
+            let trial = lik.evaluate(theta);
             let gains = trial.loglik > point.loglik
                 || (near_floor
                     && trial.loglik >= point.loglik - 1e-13 * point.loglik.abs()
@@ -682,35 +781,43 @@ fn maximise_large(family: &dyn Family, data: &FitData) -> Option<(Point, Option<
     // estimate and gives the curvature used on the full data.
     let coarse = maximise_from_starts(family, &data.subsample(COARSE_SIZE))?;
     let sub = data.subsample(SUBSAMPLE_SIZE);
-    match warm_newton(
+    warm_newton(
         &OneSample { family, data },
         &OneSample { family, data: &sub },
         coarse.theta,
-    ) {
-        Some((best, steps)) => Some((best, Some(steps))),
-        None => maximise_from_starts(family, data).map(|p| (p, None)),
-    }
+    )
+    .or_else(|| maximise_from_starts(family, data).map(|p| (p, None)))
 }
 
 /// The large-data step shared by the separate and the joint fits: Newton from `start` on the
-/// subsample `sub`, then Newton on the `full` likelihood with the subsample's information
-/// scaled to the full size as curvature, refined by secant updates (one pass over the data
-/// per step instead of 2k + 1). Returns the maximum and difference steps for
-/// [`information_forward_of`]; `None` when the subsample gives no usable curvature or the
-/// start no finite full-data log-likelihood (the caller then searches the full data).
+/// subsample `sub`, then Newton on the `full` likelihood: exact steps (one pass each) where the
+/// likelihood has analytic curvature, else with the subsample's information scaled to the
+/// full size, refined by secant updates (one pass per step instead of 2k + 1). Returns the
+/// maximum and, on the secant path, difference steps for the covariance; `None` when the
+/// subsample gives no usable curvature or the start no finite full-data log-likelihood (the
+/// caller then searches the full data).
 pub(crate) fn warm_newton(
     full: &dyn Likelihood,
     sub: &dyn Likelihood,
     start: Vec<f64>,
-) -> Option<(Point, Vec<f64>)> {
-    let sub_best = newton_of(sub, evaluate_at(sub, start), None);
+) -> Option<(Point, Option<Vec<f64>>)> {
+    let sub_best = newton_of(sub, sub.evaluate(start), None);
+    if sub_best.full_hessian().is_some() {
+        // Analytic curvature: exact Newton steps on the full data, one pass each, and the
+        // covariance from the last.
+        let start = full.evaluate(sub_best.theta);
+        if !start.loglik.is_finite() {
+            return None;
+        }
+        return Some((newton_of(full, start, None), None));
+    }
     let ratio = full.n_subjects() / sub.n_subjects();
-    let sub_covariance = invert_positive_definite(&information_of(sub, &sub_best.theta))?;
+    let sub_covariance = invert_positive_definite(&sub.information_at(&sub_best, None))?;
     let covariance: Vec<Vec<f64>> = sub_covariance
         .into_iter()
         .map(|row| row.into_iter().map(|x| x / ratio).collect())
         .collect();
-    let start = evaluate_at(full, sub_best.theta);
+    let start = full.evaluate(sub_best.theta);
     if !start.loglik.is_finite() {
         return None;
     }
@@ -720,45 +827,7 @@ pub(crate) fn warm_newton(
     let steps = (0..covariance.len())
         .map(|j| 1e-3 * covariance[j][j].sqrt())
         .collect();
-    Some((best, steps))
-}
-
-/// Observed information at an evaluated point by forward differences of the gradient with
-/// the given steps: k passes over the data instead of the 2k of central differences, for
-/// large data where the steps can be scaled to the standard errors.
-fn information_forward(
-    family: &dyn Family,
-    data: &FitData,
-    point: &Point,
-    steps: &[f64],
-) -> Vec<Vec<f64>> {
-    information_forward_of(&OneSample { family, data }, point, steps)
-}
-
-/// [`information_forward`] of any [`Likelihood`].
-pub(crate) fn information_forward_of(
-    lik: &dyn Likelihood,
-    point: &Point,
-    steps: &[f64],
-) -> Vec<Vec<f64>> {
-    let k = point.theta.len();
-    let mut h = vec![vec![0.0; k]; k];
-    for j in 0..k {
-        let mut up = point.theta.clone();
-        up[j] += steps[j];
-        let (_, grad) = lik.loglik_grad(&up);
-        for i in 0..k {
-            h[i][j] = -(grad[i] - point.grad[i]) / steps[j];
-        }
-    }
-    for i in 0..k {
-        for j in 0..i {
-            let avg = 0.5 * (h[i][j] + h[j][i]);
-            h[i][j] = avg;
-            h[j][i] = avg;
-        }
-    }
-    h
+    Some((best, Some(steps)))
 }
 
 /// Fits one family to collapsed data; never panics, reports failure in the result.
@@ -819,14 +888,12 @@ fn report_fit(
         return empty_fit(family, arm, Some(why.into()));
     };
     let mut fit = empty_fit(family, arm, None);
-    let info = match &forward_steps {
-        Some(steps) => information_forward(family, data, &best, steps),
-        None => information(family, &best.theta, data),
-    };
+    let info = information_at(family, data, &best, forward_steps.as_deref());
     let Point {
         theta,
         loglik: ll,
         grad,
+        ..
     } = best;
     let params = family.to_natural(&theta);
     for (name, value) in family.param_names().iter().zip(&params) {
@@ -1272,11 +1339,13 @@ mod tests {
             theta: vec![1.0, 2.0, 3.0],
             loglik: -10.0,
             grad: vec![0.5, -0.4, 0.9],
+            curvature: None,
         };
         let to = Point {
             theta: vec![1.2, 1.9, 3.05],
             loglik: -9.0,
             grad: vec![0.1, -0.3, 0.6],
+            curvature: None,
         };
         secant_update(&mut c, &from, &to);
         let s = [0.2, -0.1, 0.05];
@@ -1333,6 +1402,59 @@ mod tests {
         for (name, theta) in points {
             let family = families::by_name(name).unwrap();
             assert_gradient_matches_differences(family, &theta, &data, 1e-6);
+        }
+    }
+
+    #[test]
+    fn analytic_hessians_match_differences_of_the_gradient() {
+        // Each family's analytic second derivatives (the whole Hessian, or the generalized
+        // gamma's (mu, ln σ) block) against central differences of its analytic gradient,
+        // which the gradient test above ties to the log-likelihood; points in both tails of
+        // every curve, the Gompertz on both sides of its series switch (|shape·t| = 0.2) and
+        // the generalized gamma on both sides of its uniform-expansion switch (|q| = 0.01).
+        let data = FitData::from_records(&records(&[
+            (0.05, true),
+            (0.5, true),
+            (1.2, false),
+            (2.0, true),
+            (3.3, true),
+            (4.1, false),
+            (7.5, true),
+            (9.0, false),
+            (30.0, false),
+        ]));
+        let points: [(&str, Vec<f64>); 11] = [
+            ("weibull", vec![0.2, 1.1]),
+            ("weibull", vec![-0.7, 2.5]),
+            ("lognormal", vec![1.0, -0.2]),
+            ("lognormal", vec![-1.0, -0.9]),
+            ("loglogistic", vec![0.3, 1.2]),
+            ("gompertz", vec![0.05, -2.0]),
+            ("gompertz", vec![-0.3, -1.0]),
+            ("generalized-gamma", vec![1.2, -0.1, 0.8]),
+            ("generalized-gamma", vec![1.0, 0.2, -0.6]),
+            ("generalized-gamma", vec![1.1, -0.3, 0.004]),
+            ("generalized-gamma", vec![1.1, -0.3, 2.5]),
+        ];
+        for (name, theta) in points {
+            let family = families::by_name(name).unwrap();
+            let second = family.loglik_grad_hessian(&theta, &data).unwrap();
+            let (ll, grad) = family.loglik_grad(&theta, &data);
+            assert!(
+                (second.loglik - ll).abs() <= 1e-12 * ll.abs(),
+                "{name} loglik"
+            );
+            assert_eq!(second.grad, grad, "{name} gradient");
+            let central = hessian(family, &theta, &data);
+            for i in 0..second.exact {
+                for j in 0..second.exact {
+                    let (a, b) = (second.hessian[i][j], central[i][j]);
+                    assert!(
+                        (a - b).abs() <= 1e-6 * b.abs().max(1.0),
+                        "{name} at {theta:?} [{i}][{j}]: {a} vs {b}"
+                    );
+                }
+            }
         }
     }
 

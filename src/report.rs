@@ -6,7 +6,8 @@
 //! Tables are rendered from the same export documents as the CSV/JSON files, so the numbers
 //! shown are the exported numbers (at 6 significant digits).
 
-use crate::cmd::run::compute::RunResult;
+use crate::cmd::curve_args::Base;
+use crate::cmd::run::compute::{Chosen, JointChosen, RunResult};
 use crate::error::Result;
 use crate::export::{Cell, Table};
 use crate::format::sig;
@@ -396,74 +397,7 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     h.push_str(&plausibility_section(result, figures));
 
     // Chosen curve.
-    let c = &result.chosen;
-    let family = result.curve.family;
-    h.push_str("<section id=\"chosen\">\n<h2>Chosen curve</h2>\n");
-    h.push_str(&guide("The curve every later table is built from, as fitted (adjustments come on top of it); its covariance is what the uncertainty draws sample from."));
-    h.push_str("<dl>\n");
-    let mut facts = vec![("family", family.name().to_string())];
-    if let Some(arm) = &c.arm {
-        facts.push(("arm", arm.clone()));
-    }
-    facts.push(("chosen by", result.chosen_by.clone()));
-    if let Some(reason) = &result.reason {
-        facts.push(("why", reason.clone()));
-    }
-    facts.extend([
-        ("parameter time unit", unit.name().to_string()),
-        (
-            "log-likelihood",
-            c.loglik.map(|v| sig(v, DIGITS)).unwrap_or_default(),
-        ),
-        ("AIC", c.aic.map(|v| sig(v, DIGITS)).unwrap_or_default()),
-    ]);
-    for (k, v) in facts {
-        h.push_str(&format!("<dt>{}</dt><dd>{}</dd>\n", escape(k), escape(&v)));
-    }
-    h.push_str("</dl>\n");
-    let rows: Vec<Vec<String>> = family
-        .param_names()
-        .iter()
-        .zip(&result.curve.params)
-        .zip(family.param_units())
-        .map(|((n, v), kind)| {
-            let (lo, hi) = c
-                .intervals
-                .get(*n)
-                .map(|[l, u]| (sig(*l, DIGITS), sig(*u, DIGITS)))
-                .unwrap_or_default();
-            vec![
-                n.to_string(),
-                sig(*v, DIGITS),
-                lo,
-                hi,
-                kind.label(result.curve.unit),
-            ]
-        })
-        .collect();
-    h.push_str(&text_table(
-        "table-chosen",
-        &["parameter", "estimate", "95% lower", "95% upper", "unit"],
-        &rows,
-        &[false, true, true, true, false],
-    ));
-    if let Some(cov) = &c.covariance {
-        let rows: Vec<Vec<String>> = cov
-            .names
-            .iter()
-            .zip(&cov.matrix)
-            .map(|(n, row)| {
-                let mut r = vec![n.clone()];
-                r.extend(row.iter().map(|x| sig(*x, 4)));
-                r
-            })
-            .collect();
-        let mut header = vec!["covariance (estimation scale)"];
-        header.extend(cov.names.iter().map(String::as_str));
-        let numeric: Vec<bool> = (0..header.len()).map(|i| i > 0).collect();
-        h.push_str(&text_table("table-covariance", &header, &rows, &numeric));
-    }
-    h.push_str("</section>\n");
+    h.push_str(&chosen_section(result, unit));
 
     // Adjustments: the curve carried forward after the adjustments.
     h.push_str("<section id=\"adjustments\">\n<h2>Adjustments</h2>\n");
@@ -481,7 +415,7 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
             for w in &adjusted.warnings {
                 h.push_str(&format!("<p class=\"warning\">Warning: {}</p>\n", escape(w)));
             }
-            let stem = format!("population{}", crate::plot::file_stem(c.arm.as_deref()));
+            let stem = format!("population{}", crate::plot::file_stem(result.chosen.arm()));
             if figures.iter().any(|(n, _)| *n == format!("{stem}.svg")) {
                 h.push_str(&format!(
                     "<p>The adjusted curve is drawn in black beside the unadjusted fits and general-population survival in <a href=\"#fig-{}\">the population plot</a> of the plausibility section.</p>\n",
@@ -580,8 +514,12 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     h.push_str(&guide("The spread between the 2.5% and 97.5% columns is parameter uncertainty only: it does not cover the choice of family or of the extrapolation."));
     match (a.draws, result.draws_document()) {
         (Some(d), Some(doc)) => {
+            let what = match &result.chosen {
+                Chosen::Separate(_) => "of the chosen fit (multivariate normal on the estimation scale, from the fit's estimates and covariance",
+                Chosen::Joint(_) => "of all the joint model's parameters together: reference curve, arm effects and covariate coefficients (multivariate normal on the estimation scale, from the model's estimates and covariance, so the effect's uncertainty and its correlation with the reference curve are carried",
+            };
             h.push_str(&format!(
-                "<p>{} parameter draws of the chosen fit (multivariate normal on the estimation scale, from the fit's estimates and covariance; seed {}), each taken through the same adjustments to a tunnel table. p_exit per tunnel: the point estimate, the mean of the draws and their 2.5% and 97.5% percentiles (also in <code>draws_summary.*</code>).</p>\n",
+                "<p>{} parameter draws {what}; seed {}), each taken through the same adjustments to a tunnel table. p_exit per tunnel: the point estimate, the mean of the draws and their 2.5% and 97.5% percentiles (also in <code>draws_summary.*</code>).</p>\n",
                 d.count, d.seed
             ));
             h.push_str(&html_table(
@@ -654,6 +592,177 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
     Ok(h)
 }
 
+/// The chosen curve: a separate fit's family, parameters with intervals and covariance, or an
+/// arm's curve from a joint model ([`joint_chosen_section`]).
+fn chosen_section(result: &RunResult, unit: crate::units::TimeUnit) -> String {
+    let (c, curve) = match (&result.chosen, &result.curve) {
+        (Chosen::Separate(c), Base::Parametric(curve)) => (c, curve),
+        (Chosen::Joint(j), Base::Joint(source)) => return joint_chosen_section(result, j, source),
+        _ => return String::new(),
+    };
+    let mut h = String::new();
+    let family = curve.family;
+    h.push_str("<section id=\"chosen\">\n<h2>Chosen curve</h2>\n");
+    h.push_str(&guide("The curve every later table is built from, as fitted (adjustments come on top of it); its covariance is what the uncertainty draws sample from."));
+    h.push_str("<dl>\n");
+    let mut facts = vec![("family", family.name().to_string())];
+    if let Some(arm) = &c.arm {
+        facts.push(("arm", arm.clone()));
+    }
+    facts.push(("chosen by", result.chosen_by.clone()));
+    if let Some(reason) = &result.reason {
+        facts.push(("why", reason.clone()));
+    }
+    facts.extend([
+        ("parameter time unit", unit.name().to_string()),
+        (
+            "log-likelihood",
+            c.loglik.map(|v| sig(v, DIGITS)).unwrap_or_default(),
+        ),
+        ("AIC", c.aic.map(|v| sig(v, DIGITS)).unwrap_or_default()),
+    ]);
+    for (k, v) in facts {
+        h.push_str(&format!("<dt>{}</dt><dd>{}</dd>\n", escape(k), escape(&v)));
+    }
+    h.push_str("</dl>\n");
+    let rows: Vec<Vec<String>> = family
+        .param_names()
+        .iter()
+        .zip(&curve.params)
+        .zip(family.param_units())
+        .map(|((n, v), kind)| {
+            let (lo, hi) = c
+                .intervals
+                .get(*n)
+                .map(|[l, u]| (sig(*l, DIGITS), sig(*u, DIGITS)))
+                .unwrap_or_default();
+            vec![
+                n.to_string(),
+                sig(*v, DIGITS),
+                lo,
+                hi,
+                kind.label(curve.unit),
+            ]
+        })
+        .collect();
+    h.push_str(&text_table(
+        "table-chosen",
+        &["parameter", "estimate", "95% lower", "95% upper", "unit"],
+        &rows,
+        &[false, true, true, true, false],
+    ));
+    if let Some(cov) = &c.covariance {
+        let rows: Vec<Vec<String>> = cov
+            .names
+            .iter()
+            .zip(&cov.matrix)
+            .map(|(n, row)| {
+                let mut r = vec![n.clone()];
+                r.extend(row.iter().map(|x| sig(*x, 4)));
+                r
+            })
+            .collect();
+        let mut header = vec!["covariance (estimation scale)"];
+        header.extend(cov.names.iter().map(String::as_str));
+        let numeric: Vec<bool> = (0..header.len()).map(|i| i > 0).collect();
+        h.push_str(&text_table("table-covariance", &header, &rows, &numeric));
+    }
+    h.push_str("</section>\n");
+    h
+}
+
+/// The chosen curve from a joint model across arms: the model, the arm, the covariate setting,
+/// why it was chosen, the whole model's fit (its AIC is compared with the other joint models
+/// only), its estimates on the estimation scale with Wald intervals, and the covariance of all
+/// its parameters (what the draws sample from).
+fn joint_chosen_section(
+    result: &RunResult,
+    chosen: &JointChosen,
+    source: &crate::effects::curve::JointSource,
+) -> String {
+    let m = &chosen.summary;
+    let line = |key: &str| {
+        source
+            .metadata
+            .iter()
+            .find(|(k, _)| k == key)
+            .map(|(_, v)| v.clone())
+    };
+    let mut h = String::from("<section id=\"chosen\">\n<h2>Chosen curve</h2>\n");
+    h.push_str(&guide("The curve every later table is built from: one arm's curve from a model fitted to all arms at once (adjustments come on top of it); the covariance of all the model's parameters together is what the uncertainty draws sample from."));
+    let setting = match (line("covariates_at"), line("covariates")) {
+        (Some(at), _) => format!("fixed at {at}"),
+        (None, Some(how)) => how,
+        (None, None) => "none in the model".to_string(),
+    };
+    let mut facts = vec![
+        (
+            "joint model",
+            line("joint_model").unwrap_or_else(|| format!("{} {}", m.family, m.model)),
+        ),
+        ("arm", chosen.arm.clone()),
+        ("covariates", setting),
+        ("chosen by", result.chosen_by.clone()),
+    ];
+    if let Some(reason) = &result.reason {
+        facts.push(("why", reason.clone()));
+    }
+    facts.extend([
+        ("parameter time unit", source.curve.unit.name().to_string()),
+        ("log-likelihood (all arms)", sig(m.loglik, DIGITS)),
+        ("AIC (all arms)", sig(m.aic, DIGITS)),
+    ]);
+    h.push_str("<dl>\n");
+    for (k, v) in facts {
+        h.push_str(&format!("<dt>{}</dt><dd>{}</dd>\n", escape(k), escape(&v)));
+    }
+    h.push_str("</dl>\n");
+    h.push_str("<p>The AIC is that of the whole model over every arm: it is compared with the other joint models (a reason is needed in <code>[choice] reason</code> when a lower one exists), not with the separate fits, whose AIC is per arm; the likelihood-ratio test against the separate fits is in the effects section.</p>\n");
+    // Wald intervals on the estimation scale, where the draws are normal (z = 1.959964).
+    let rows: Vec<Vec<String>> = source
+        .names
+        .iter()
+        .zip(&source.curve.theta)
+        .enumerate()
+        .map(|(i, (n, v))| {
+            let se = source
+                .covariance
+                .get(i)
+                .and_then(|r| r.get(i))
+                .map_or(f64::NAN, |x| x.sqrt());
+            vec![
+                n.clone(),
+                sig(*v, DIGITS),
+                sig(v - 1.959963984540054 * se, DIGITS),
+                sig(v + 1.959963984540054 * se, DIGITS),
+                "estimation scale".to_string(),
+            ]
+        })
+        .collect();
+    h.push_str(&text_table(
+        "table-chosen",
+        &["parameter", "estimate", "95% lower", "95% upper", "scale"],
+        &rows,
+        &[false, true, true, true, false],
+    ));
+    let rows: Vec<Vec<String>> = source
+        .names
+        .iter()
+        .zip(&source.covariance)
+        .map(|(n, row)| {
+            let mut r = vec![n.clone()];
+            r.extend(row.iter().map(|x| sig(*x, 4)));
+            r
+        })
+        .collect();
+    let mut header = vec!["covariance (estimation scale)"];
+    header.extend(source.names.iter().map(String::as_str));
+    let numeric: Vec<bool> = (0..header.len()).map(|i| i > 0).collect();
+    h.push_str(&text_table("table-covariance", &header, &rows, &numeric));
+    h.push_str("</section>\n");
+    h
+}
+
 /// The question the analysis answers: the population (title), the arm the tunnel table is
 /// for, where the data come from, the general population compared with, the curve chosen.
 fn question_section(result: &RunResult) -> String {
@@ -670,8 +779,8 @@ fn question_section(result: &RunResult) -> String {
         "arm modelled",
         result
             .chosen
-            .arm
-            .clone()
+            .arm()
+            .map(str::to_string)
             .unwrap_or_else(|| "the only arm of the data".into()),
     ));
     let source = match &a.rebuild {
@@ -701,7 +810,12 @@ fn question_section(result: &RunResult) -> String {
             ),
         ));
     }
-    let mut chosen = format!("{} ({})", result.curve.family.name(), result.chosen_by);
+    // A joint model's curve with its arm and covariate setting.
+    let label = match &result.curve {
+        Base::Joint(j) => j.curve.label.clone(),
+        Base::Parametric(_) => result.curve_label(),
+    };
+    let mut chosen = format!("{label} ({})", result.chosen_by);
     if let Some(reason) = &result.reason {
         chosen.push_str(&format!(": {reason}"));
     }

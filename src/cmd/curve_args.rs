@@ -12,8 +12,10 @@ use crate::adjust::{
     AdjustedCurve, Adjuster, Adjustments, BackgroundMode, BackgroundSettings, Waning,
 };
 use crate::cmd::fit::parse_durations;
+use crate::curve::Curve;
 use crate::curve::ParametricCurve;
 use crate::effects::curve::JointSource;
+use crate::effects::joint::Model;
 use crate::error::{Error, Result};
 use crate::export::number_text;
 use crate::families::{self, Family, FamilyOptions};
@@ -183,6 +185,35 @@ impl Base {
         }
     }
 
+    /// The adjusted curve of one draw `p`: natural parameters of a family, or all the joint
+    /// model's parameters on the estimation scale (the arm's curve at the draw). Every path
+    /// that draws (`draws`, `run`) builds its curves here, as the point estimate is built.
+    pub fn adjust_draw(
+        &self,
+        adjuster: &Adjuster,
+        p: &[f64],
+    ) -> std::result::Result<AdjustedCurve, String> {
+        match self {
+            Base::Parametric(c) => adjuster.adjust_params(c.family, p, c.unit),
+            Base::Joint(j) => adjuster
+                .adjust_curve(Box::new(j.curve.with_theta(p)), j.family)
+                .map_err(|e| e.to_string()),
+        }
+    }
+
+    /// Names of the drawn parameters, in the order [`Base::adjust_draw`] takes them.
+    pub fn draw_names(&self) -> Vec<String> {
+        match self {
+            Base::Parametric(c) => c
+                .family
+                .param_names()
+                .iter()
+                .map(|s| s.to_string())
+                .collect(),
+            Base::Joint(j) => j.names.clone(),
+        }
+    }
+
     /// Parameter names, values and unit labels for listings: natural parameters of a family,
     /// the estimation-scale parameters of a joint model.
     pub fn parameter_rows(&self) -> Vec<(String, f64, String)> {
@@ -202,6 +233,55 @@ impl Base {
                 .map(|(n, v)| (n.clone(), *v, "estimation scale".to_string()))
                 .collect(),
         }
+    }
+}
+
+/// The curve before adjustments is a curve (the chosen curve of `run`, unadjusted).
+impl Curve for Base {
+    fn log_survival(&self, t: f64) -> f64 {
+        match self {
+            Base::Parametric(p) => p.log_survival(t),
+            Base::Joint(j) => j.curve.log_survival(t),
+        }
+    }
+    fn hazard(&self, t: f64) -> f64 {
+        match self {
+            Base::Parametric(p) => p.hazard(t),
+            Base::Joint(j) => j.curve.hazard(t),
+        }
+    }
+    fn time_unit(&self) -> TimeUnit {
+        self.unit()
+    }
+    fn describe(&self) -> String {
+        match self {
+            Base::Parametric(p) => p.describe(),
+            Base::Joint(j) => j.curve.describe(),
+        }
+    }
+    fn restricted_mean(&self, horizon: f64) -> f64 {
+        match self {
+            Base::Parametric(p) => p.restricted_mean(horizon),
+            Base::Joint(j) => j.curve.restricted_mean(horizon),
+        }
+    }
+    fn piecewise_hazard(&self, until: f64) -> Option<crate::curve::PiecewiseHazard> {
+        match self {
+            Base::Parametric(p) => p.piecewise_hazard(until),
+            Base::Joint(j) => j.curve.piecewise_hazard(until),
+        }
+    }
+}
+
+/// `--model` and `--at` as given: the joint model kind, or none; `--at` without `--model` is
+/// refused. The rule the curve options and `run`'s `[choice]` keys share.
+pub fn joint_model(model: Option<&str>, at: Option<&str>) -> Result<Option<Model>> {
+    match model {
+        Some(m) => Ok(Some(crate::effects::curve::parse_model(m)?)),
+        None if at.is_some() => Err(Error::Usage(
+            "--at fixes the covariates of a joint model; add --model ph|aft".into(),
+        )),
+        None => Ok(None),
     }
 }
 
@@ -404,15 +484,7 @@ impl CurveArgs {
         let name = path.display().to_string();
         let bytes =
             std::fs::read(path).map_err(|e| Error::input(&name, format!("cannot read: {e}")))?;
-        let model = match &self.model {
-            Some(m) => Some(crate::effects::curve::parse_model(m)?),
-            None if self.at.is_some() => {
-                return Err(Error::Usage(
-                    "--at fixes the covariates of a joint model; add --model ph|aft".into(),
-                ))
-            }
-            None => None,
-        };
+        let model = joint_model(self.model.as_deref(), self.at.as_deref())?;
         let file = FitFile::load(path)?;
         let mut metadata = vec![
             ("source".into(), "fit file".into()),
@@ -635,7 +707,6 @@ impl CurveArgs {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::curve::Curve;
 
     fn published(family: &str, params: &[&str], unit: Option<&str>) -> CurveArgs {
         CurveArgs {

@@ -412,10 +412,7 @@ fn draw_parameters(
                 "--bootstrap refits one family to one arm; with --model the draws come from the joint model's covariance (leave out --bootstrap)".into(),
             ));
         }
-        let what = format!("the joint {} model", family.name());
-        let sampler =
-            Sampler::from_covariance(family, &what, &joint.curve.theta, &joint.covariance)
-                .map_err(|e| Error::input(&fit_name, e))?;
+        let sampler = joint.sampler().map_err(|e| Error::input(&fit_name, e))?;
         let metadata = vec![
             (
                 "method".to_string(),
@@ -556,24 +553,11 @@ pub fn run(args: DrawsArgs) -> Result<()> {
     // Every draw goes through the adjuster that made the point estimate's curve.
     let base = &built.base;
     let adjuster = &built.adjuster;
+    // A draw of all the joint model's parameters is the arm's curve at the draw.
     let build = move |p: &[f64]| -> std::result::Result<Box<dyn Curve>, String> {
-        Ok(Box::new(match base {
-            Base::Parametric(c) => adjuster.adjust_params(c.family, p, c.unit)?,
-            // A draw of all the joint model's parameters is the arm's curve at the draw.
-            Base::Joint(j) => adjuster
-                .adjust_curve(Box::new(j.curve.with_theta(p)), j.family)
-                .map_err(|e| e.to_string())?,
-        }))
+        Ok(Box::new(base.adjust_draw(adjuster, p)?))
     };
-    let parameter_names: Vec<String> = match base {
-        Base::Parametric(c) => c
-            .family
-            .param_names()
-            .iter()
-            .map(|s| s.to_string())
-            .collect(),
-        Base::Joint(j) => j.names.clone(),
-    };
+    let parameter_names = base.draw_names();
 
     let label = if args.bootstrap { "refits" } else { "draws" };
     let run = LongRun::start(n as u64, label, args.quiet)?;

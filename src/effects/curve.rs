@@ -183,6 +183,20 @@ pub struct JointSource {
     pub warnings: Vec<String>,
 }
 
+impl JointSource {
+    /// The sampler of all the model's parameters together (reference curve, effects and
+    /// covariate coefficients) on the estimation scale: what every path draws from.
+    pub fn sampler(&self) -> std::result::Result<crate::draws::Sampler, String> {
+        let what = format!("the joint {} model", self.family.name());
+        crate::draws::Sampler::from_covariance(
+            self.family,
+            &what,
+            &self.curve.theta,
+            &self.covariance,
+        )
+    }
+}
+
 /// `--model` as the joint model kind.
 pub fn parse_model(text: &str) -> Result<Model> {
     match text.trim().to_ascii_lowercase().as_str() {

@@ -3,11 +3,13 @@
 //! draws, payoffs). Nothing here renders or writes.
 
 use crate::adjust::{lifetable, AdjustedCurve, Adjuster};
-use crate::analysis::{Analysis, Choice, Count, CurveSource, NamedFile};
+use crate::analysis::{Analysis, Choice, Count, CurveSource, JointChoice, NamedFile};
+use crate::cmd::curve_args::Base;
 use crate::cmd::rebuild::{rebuild_inputs, InputNames, RebuildInputs, RebuildOutcome};
 use crate::curve::{Curve, ParametricCurve};
 use crate::discretise::{count_until, tunnel_table, TunnelTable};
 use crate::draws::{Sampler, SummaryBuilder, SummaryRow};
+use crate::effects::report::JointSummary;
 use crate::error::{Error, Result};
 use crate::fit::{fit_dataset, FamilyFit, FitFile};
 use crate::horizon::{
@@ -27,8 +29,8 @@ pub struct RunResult {
     pub data: Dataset,
     /// Every fit, as written to `fit.json`.
     pub fits: FitFile,
-    /// The fit carried forward.
-    pub chosen: FamilyFit,
+    /// The fit carried forward: a separate fit of one arm, or a joint model across arms.
+    pub chosen: Chosen,
     /// Why that fit (e.g. "smallest AIC among converged fits").
     pub chosen_by: String,
     /// `[choice] reason` of the analysis file, when given (required when the chosen family is
@@ -37,8 +39,9 @@ pub struct RunResult {
     /// The plausibility settings every fit was annotated with (landmarks, means, targets,
     /// general population); the population plot reads its life table from here.
     pub plausibility: crate::plausibility::Settings,
-    /// The chosen curve in the data's time unit.
-    pub curve: ParametricCurve,
+    /// The chosen curve in the data's time unit: a family's curve, or an arm's curve from a
+    /// joint model (the curve options' own type, so every path builds it alike).
+    pub curve: Base,
     /// The chosen curve with the `[adjust]` adjustments, when any were asked for; the
     /// tunnel table and the checks then use this curve.
     pub adjusted: Option<Arc<AdjustedCurve>>,
@@ -68,6 +71,80 @@ pub struct RunResult {
     /// The payoffs of `[payoffs]`, when given.
     pub payoffs: Option<RunPayoffs>,
 }
+
+/// The fit a run carries forward.
+#[derive(Clone)]
+pub enum Chosen {
+    /// A separate fit of one arm (`[fit] choose`).
+    Separate(Box<FamilyFit>),
+    /// A joint model across arms (`[choice] model`), for one arm.
+    Joint(Box<JointChosen>),
+}
+
+/// A joint model chosen by `[choice] model`: its entry in `fit.json` and the arm taken from it.
+#[derive(Clone)]
+pub struct JointChosen {
+    /// The joint model as written to `fit.json` (estimates, log-likelihood, AIC, covariance).
+    pub summary: JointSummary,
+    /// The arm whose curve is carried forward.
+    pub arm: String,
+}
+
+impl Chosen {
+    /// The arm the tunnel table is for (`None` for data without arms).
+    pub fn arm(&self) -> Option<&str> {
+        match self {
+            Chosen::Separate(f) => f.arm.as_deref(),
+            Chosen::Joint(j) => Some(&j.arm),
+        }
+    }
+
+    /// The family's name (of the reference curve, for a joint model).
+    pub fn family(&self) -> &str {
+        match self {
+            Chosen::Separate(f) => &f.family,
+            Chosen::Joint(j) => &j.summary.family,
+        }
+    }
+
+    /// Log-likelihood (of the whole joint model, over every arm, for a joint model).
+    pub fn loglik(&self) -> Option<f64> {
+        match self {
+            Chosen::Separate(f) => f.loglik,
+            Chosen::Joint(j) => Some(j.summary.loglik),
+        }
+    }
+
+    /// AIC (of the whole joint model, for a joint model).
+    pub fn aic(&self) -> Option<f64> {
+        match self {
+            Chosen::Separate(f) => f.aic,
+            Chosen::Joint(j) => Some(j.summary.aic),
+        }
+    }
+
+    /// Covariance on the estimation scale (of all the joint model's parameters, for a joint
+    /// model): what the draws sample from.
+    pub fn covariance(&self) -> Option<&crate::fit::Covariance> {
+        match self {
+            Chosen::Separate(f) => f.covariance.as_ref(),
+            Chosen::Joint(j) => Some(&j.summary.covariance),
+        }
+    }
+
+    /// The separate fit, unless a joint model was chosen.
+    pub fn separate(&self) -> Option<&FamilyFit> {
+        match self {
+            Chosen::Separate(f) => Some(f),
+            Chosen::Joint(_) => None,
+        }
+    }
+}
+
+/// Two joint models whose AICs differ by less than this are equally good: the Weibull and the
+/// exponential are each fitted as PH and as AFT, the same model twice, and their AICs agree
+/// only to the optimiser's precision.
+pub const JOINT_AIC_TIE: f64 = 1e-6;
 
 /// What `[payoffs]` adds to a run: the schedule, the per-tunnel columns (also appended to the
 /// tunnel table), the method table and truncation columns to the horizon.
@@ -173,33 +250,6 @@ pub fn compute(
         zero_time: None,
     };
     let data = input::parse(&analysis.data_name, data_bytes, &options)?;
-    let arms: Vec<Option<&str>> = data.arms.iter().map(|a| a.arm.as_deref()).collect();
-    let arm = match (&analysis.arm, arms.as_slice()) {
-        (Some(a), _) => {
-            if !arms.contains(&Some(a.as_str())) {
-                let names: Vec<&str> = arms.iter().flatten().copied().collect();
-                return Err(analysis.error_at(
-                    analysis.arm_place,
-                    format!(
-                        "[fit] arm: the data have no arm \"{a}\" (arms: {})",
-                        names.join(", ")
-                    ),
-                ));
-            }
-            Some(a.clone())
-        }
-        (None, [only]) => only.map(str::to_string),
-        (None, _) => {
-            let names: Vec<&str> = arms.iter().flatten().copied().collect();
-            return Err(analysis.error_at(
-                analysis.choose_place,
-                format!(
-                    "the data have several arms ({}); say which one the tunnel table is for with [fit] arm",
-                    names.join(", ")
-                ),
-            ));
-        }
-    };
     let mut fits = fit_dataset(&data, &analysis.families, analysis.time_unit, None);
     if let (Some(effects), Some(arm_col)) = (&analysis.effects, &analysis.arm_column) {
         let columns = (&*analysis.time_column, &*analysis.event_column, &**arm_col);
@@ -213,80 +263,11 @@ pub fn compute(
     }
     let plausibility = plausibility_settings(&analysis, &data, lifetable_bytes)?;
     crate::plausibility::annotate(&mut fits, &plausibility);
-    let in_arm = |f: &&FamilyFit| f.arm == arm;
-    let (chosen, chosen_by) = match analysis.choose {
-        Choice::BestAic => {
-            let best = fits
-                .fits
-                .iter()
-                .filter(in_arm)
-                .filter(|f| f.converged)
-                .min_by(|a, b| {
-                    a.aic
-                        .unwrap_or(f64::INFINITY)
-                        .total_cmp(&b.aic.unwrap_or(f64::INFINITY))
-                })
-                .ok_or_else(|| {
-                    analysis.error_at(
-                        analysis.choose_place,
-                        "no family converged, so none can be chosen",
-                    )
-                })?;
-            (
-                best.clone(),
-                "smallest AIC among converged fits".to_string(),
-            )
-        }
-        Choice::Family(family) => {
-            let fit = fits
-                .fits
-                .iter()
-                .filter(in_arm)
-                .find(|f| f.family == family.name())
-                .ok_or_else(|| {
-                    Error::Computation(format!("the {} fit is missing", family.name()))
-                })?;
-            if !fit.converged {
-                return Err(analysis.error_at(
-                    analysis.choose_place,
-                    format!(
-                        "[fit] choose: the {} fit failed ({}); choose another family or \"best-aic\"",
-                        family.name(),
-                        fit.message.as_deref().unwrap_or("no reason recorded")
-                    ),
-                ));
-            }
-            (fit.clone(), "named in the analysis file".to_string())
-        }
-    };
-    let lowest = fits
-        .fits
-        .iter()
-        .filter(in_arm)
-        .filter(|f| f.converged)
-        .filter_map(|f| f.aic.map(|aic| (f, aic)))
-        .min_by(|a, b| a.1.total_cmp(&b.1));
     let reason = analysis.reason.as_ref().map(|r| r.text.clone());
-    if let (Some((best, best_aic)), Some(aic), None) = (lowest, chosen.aic, &reason) {
-        if aic > best_aic {
-            return Err(analysis.error_at(
-                analysis.choose_place,
-                format!(
-                    "[fit] choose: {} is not the lowest AIC{} ({} is, by {}); say why it is chosen with [choice] reason = \"...\"",
-                    chosen.family,
-                    chosen.arm.as_deref().map(|a| format!(" in arm {a}")).unwrap_or_default(),
-                    best.family,
-                    crate::format::fixed(aic - best_aic, 2)
-                ),
-            ));
-        }
-    }
-    let family = chosen.family().map_err(Error::Computation)?;
-    let params = chosen
-        .param_vector(family)
-        .ok_or_else(|| Error::Computation(format!("the {} fit lacks parameters", family.name())))?;
-    let curve = ParametricCurve::new(family, params, analysis.time_unit)
-        .map_err(|e| Error::Computation(format!("the {} fit: {e}", family.name())))?;
+    let (chosen, chosen_by, curve) = match &analysis.joint {
+        None => choose_separate(&analysis, &data, &fits, reason.is_some())?,
+        Some(joint) => choose_joint(&analysis, joint, &fits, reason.is_some())?,
+    };
 
     // The one way from the chosen curve to the adjusted curve, also taken by every draw.
     // The table is named as the analysis file writes it (relative to that file), as the other
@@ -311,7 +292,7 @@ pub fn compute(
         }
     };
     let adjuster = Adjuster::new(settings.clone(), table)?;
-    let table_curve = Arc::new(adjuster.adjust(curve.clone())?);
+    let table_curve = Arc::new(curve.adjust(&adjuster)?);
     let adjusted = (!adjuster.is_empty()).then(|| table_curve.clone());
 
     let cycle = analysis.cycle;
@@ -390,7 +371,7 @@ pub fn compute(
         Count::Auto => (suggested, "auto: the suggested count".to_string()),
         Count::Fixed(n) => (n, "fixed in the analysis file".to_string()),
     };
-    let last = horizon_cycles.max(count) as f64 * cycle.in_unit(curve.unit);
+    let last = horizon_cycles.max(count) as f64 * cycle.in_unit(curve.unit());
     table_curve
         .check_horizon(last)
         .map_err(|e| analysis.error_at(analysis.adjust_place, format!("[adjust] {e}")))?;
@@ -404,14 +385,30 @@ pub fn compute(
     let draws = match analysis.draws {
         None => None,
         Some(settings) => {
-            let sampler = Sampler::from_fit(family, &chosen).map_err(|e| {
-                Error::Computation(format!("[draws]: the {} fit: {e}", family.name()))
-            })?;
-            let params = sampler.draw_natural(settings.count, settings.seed);
-            let unit = curve.unit;
-            let adjuster = &adjuster;
+            // As `draws` draws: a family's parameters from its fit, or all the joint model's
+            // parameters together from the joint covariance.
+            let params = match (&curve, &chosen) {
+                (Base::Joint(j), _) => j
+                    .sampler()
+                    .map_err(|e| Error::Computation(format!("[draws]: {e}")))?
+                    .draw(settings.count, settings.seed),
+                (Base::Parametric(p), Chosen::Separate(fit)) => {
+                    let family = p.family;
+                    Sampler::from_fit(family, fit)
+                        .map_err(|e| {
+                            Error::Computation(format!("[draws]: the {} fit: {e}", family.name()))
+                        })?
+                        .draw_natural(settings.count, settings.seed)
+                }
+                (Base::Parametric(_), Chosen::Joint(_)) => {
+                    return Err(Error::Computation(
+                        "a joint model's curve was expected".into(),
+                    ))
+                }
+            };
+            let (base, adjuster) = (&curve, &adjuster);
             let build = move |p: &[f64]| -> std::result::Result<Box<dyn Curve>, String> {
-                Ok(Box::new(adjuster.adjust_params(family, p, unit)?))
+                Ok(Box::new(base.adjust_draw(adjuster, p)?))
             };
             let mut summary = SummaryBuilder::new(tunnels.clone(), params.len());
             crate::draws::tables_in_chunks(
@@ -490,6 +487,225 @@ pub fn compute(
         rebuild: None,
         payoffs,
     })
+}
+
+/// The separate fit of `[fit] choose` in the arm of `[fit] arm` (the only arm when there is one),
+/// with the `[choice] reason` rule: a family other than the lowest AIC of its arm needs a reason.
+fn choose_separate(
+    analysis: &Analysis,
+    data: &Dataset,
+    fits: &FitFile,
+    has_reason: bool,
+) -> Result<(Chosen, String, Base)> {
+    let arms: Vec<Option<&str>> = data.arms.iter().map(|a| a.arm.as_deref()).collect();
+    let arm = match (&analysis.arm, arms.as_slice()) {
+        (Some(a), _) => {
+            if !arms.contains(&Some(a.as_str())) {
+                let names: Vec<&str> = arms.iter().flatten().copied().collect();
+                return Err(analysis.error_at(
+                    analysis.arm_place,
+                    format!(
+                        "[fit] arm: the data have no arm \"{a}\" (arms: {})",
+                        names.join(", ")
+                    ),
+                ));
+            }
+            Some(a.clone())
+        }
+        (None, [only]) => only.map(str::to_string),
+        (None, _) => {
+            let names: Vec<&str> = arms.iter().flatten().copied().collect();
+            return Err(analysis.error_at(
+                analysis.choose_place,
+                format!(
+                    "the data have several arms ({}); say which one the tunnel table is for with [fit] arm",
+                    names.join(", ")
+                ),
+            ));
+        }
+    };
+    let in_arm = |f: &&FamilyFit| f.arm == arm;
+    let (chosen, chosen_by) = match analysis.choose {
+        Choice::BestAic => {
+            let best = fits
+                .fits
+                .iter()
+                .filter(in_arm)
+                .filter(|f| f.converged)
+                .min_by(|a, b| {
+                    a.aic
+                        .unwrap_or(f64::INFINITY)
+                        .total_cmp(&b.aic.unwrap_or(f64::INFINITY))
+                })
+                .ok_or_else(|| {
+                    analysis.error_at(
+                        analysis.choose_place,
+                        "no family converged, so none can be chosen",
+                    )
+                })?;
+            (
+                best.clone(),
+                "smallest AIC among converged fits".to_string(),
+            )
+        }
+        Choice::Family(family) => {
+            let fit = fits
+                .fits
+                .iter()
+                .filter(in_arm)
+                .find(|f| f.family == family.name())
+                .ok_or_else(|| {
+                    Error::Computation(format!("the {} fit is missing", family.name()))
+                })?;
+            if !fit.converged {
+                return Err(analysis.error_at(
+                    analysis.choose_place,
+                    format!(
+                        "[fit] choose: the {} fit failed ({}); choose another family or \"best-aic\"",
+                        family.name(),
+                        fit.message.as_deref().unwrap_or("no reason recorded")
+                    ),
+                ));
+            }
+            (fit.clone(), "named in the analysis file".to_string())
+        }
+    };
+    let lowest = fits
+        .fits
+        .iter()
+        .filter(in_arm)
+        .filter(|f| f.converged)
+        .filter_map(|f| f.aic.map(|aic| (f, aic)))
+        .min_by(|a, b| a.1.total_cmp(&b.1));
+    if let (Some((best, best_aic)), Some(aic), false) = (lowest, chosen.aic, has_reason) {
+        if aic > best_aic {
+            return Err(analysis.error_at(
+                analysis.choose_place,
+                format!(
+                    "[fit] choose: {} is not the lowest AIC{} ({} is, by {}); say why it is chosen with [choice] reason = \"...\"",
+                    chosen.family,
+                    chosen.arm.as_deref().map(|a| format!(" in arm {a}")).unwrap_or_default(),
+                    best.family,
+                    crate::format::fixed(aic - best_aic, 2)
+                ),
+            ));
+        }
+    }
+    let family = chosen.family().map_err(Error::Computation)?;
+    let params = chosen
+        .param_vector(family)
+        .ok_or_else(|| Error::Computation(format!("the {} fit lacks parameters", family.name())))?;
+    let curve = ParametricCurve::new(family, params, analysis.time_unit)
+        .map_err(|e| Error::Computation(format!("the {} fit: {e}", family.name())))?;
+    Ok((
+        Chosen::Separate(Box::new(chosen)),
+        chosen_by,
+        Base::Parametric(curve),
+    ))
+}
+
+/// The joint model of `[choice] model` (family from `[fit] choose`, or the lowest AIC among the
+/// converged joint models of that kind) and the arm's curve from it, taken by the curve
+/// options' own code ([`crate::effects::curve::select`]); their messages are reworded for the
+/// analysis file's keys. `[choice] reason` is needed when the model is not the lowest AIC among
+/// all the joint models (PH and AFT alike; ties within [`JOINT_AIC_TIE`]).
+fn choose_joint(
+    analysis: &Analysis,
+    joint: &JointChoice,
+    fits: &FitFile,
+    has_reason: bool,
+) -> Result<(Chosen, String, Base)> {
+    let model = joint.model.name();
+    let converged = || fits.effects.iter().filter(|m| m.converged);
+    let (family, chosen_by) = match analysis.choose {
+        Choice::Family(f) => (f, "named in the analysis file".to_string()),
+        Choice::BestAic => {
+            let best = converged()
+                .filter(|m| m.model == model)
+                .min_by(|a, b| a.aic.total_cmp(&b.aic))
+                .ok_or_else(|| {
+                    analysis.error_at(
+                        joint.model_place,
+                        format!("[choice] model: no joint {model} model converged, so none can be chosen"),
+                    )
+                })?;
+            let family = crate::families::by_name(&best.family).map_err(Error::Computation)?;
+            (
+                family,
+                format!("smallest AIC among converged joint {model} models"),
+            )
+        }
+    };
+    let source = crate::effects::curve::select(
+        fits,
+        &analysis.file,
+        family,
+        joint.model,
+        joint.arm.as_deref(),
+        joint.at.as_deref(),
+        false,
+    )
+    .map_err(|e| {
+        let message = match e {
+            Error::Usage(m) | Error::Input { message: m, .. } => m,
+            other => other.to_string(),
+        };
+        let place = if message.starts_with("--arm") {
+            joint.arm_place
+        } else if message.starts_with("--at") {
+            joint.at_place
+        } else {
+            joint.model_place
+        };
+        let message = message
+            .replace("the fit file has no", "the run fitted no")
+            .replace(
+                "; choose another or add --allow-unconverged",
+                "; choose another family or model",
+            );
+        let mut message = crate::analysis::choice_message(&message);
+        if message.starts_with("[choice] arm ") {
+            message = message.replacen("[choice] arm", joint.arm_key, 1);
+        }
+        analysis.error_at(place, message)
+    })?;
+    let summary = fits
+        .effects
+        .iter()
+        .find(|m| m.family == family.name() && m.model == model)
+        .ok_or_else(|| {
+            Error::Computation(format!(
+                "the joint {} {model} model is missing",
+                family.name()
+            ))
+        })?
+        .clone();
+    let lowest = converged().min_by(|a, b| a.aic.total_cmp(&b.aic));
+    if let (Some(best), false) = (lowest, has_reason) {
+        if summary.aic > best.aic + JOINT_AIC_TIE {
+            return Err(analysis.error_at(
+                analysis.choose_place,
+                format!(
+                    "[fit] choose: the joint {} {model} model is not the lowest AIC among the joint models (the joint {} {} model is, by {}); say why it is chosen with [choice] reason = \"...\"",
+                    family.name(),
+                    best.family,
+                    best.model,
+                    crate::format::fixed(summary.aic - best.aic, 2)
+                ),
+            ));
+        }
+    }
+    let arm = source
+        .metadata
+        .iter()
+        .find(|(k, _)| k == "arm")
+        .map(|(_, v)| v.clone())
+        .unwrap_or_default();
+    Ok((
+        Chosen::Joint(Box::new(JointChosen { summary, arm })),
+        chosen_by,
+        Base::Joint(Box::new(source)),
+    ))
 }
 
 /// The plausibility settings of `[plausibility]` (and `[adjust]`'s life table), with the

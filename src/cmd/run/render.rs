@@ -1,8 +1,9 @@
 //! Rendering a computed analysis: the documents (tables with their metadata), plots, the
 //! data package and the report, as file bytes by name. Nothing here computes a fit or writes a file.
 
-use super::compute::{file_name, RunResult, REBUILD_CAUTION};
+use super::compute::{file_name, Chosen, RunResult, REBUILD_CAUTION};
 use crate::analysis::REBUILT_FILE;
+use crate::cmd::curve_args::Base;
 use crate::cmd::rebuild::overlay_plot;
 use crate::curve::Curve;
 use crate::error::Result;
@@ -17,7 +18,7 @@ impl RunResult {
     /// Metadata heading every table file: tool, data, curve, settings, caution.
     pub fn metadata(&self) -> Vec<(String, String)> {
         let a = &self.analysis;
-        let family = self.curve.family;
+        let family = self.curve.family();
         let mut m = vec![
             ("tool_version".to_string(), crate::VERSION.to_string()),
             ("analysis_file".into(), file_name(&a.file)),
@@ -30,8 +31,20 @@ impl RunResult {
                 m.push(("rebuilt_from_at_risk".into(), r.name.clone()));
             }
         }
-        if let Some(arm) = &self.chosen.arm {
-            m.push(("arm".into(), arm.clone()));
+        // A joint model's lines as the curve options write them (`joint_model`, `arm`, the
+        // covariate setting, `joint_estimates`); a separate fit's arm and parameters.
+        let joint_lines = match &self.curve {
+            Base::Joint(j) => j.metadata.clone(),
+            Base::Parametric(_) => Vec::new(),
+        };
+        let (estimates, setting): (Vec<_>, Vec<_>) = joint_lines
+            .into_iter()
+            .partition(|(k, _)| k == "joint_estimates");
+        m.extend(setting);
+        if let Chosen::Separate(fit) = &self.chosen {
+            if let Some(arm) = &fit.arm {
+                m.push(("arm".into(), arm.clone()));
+            }
         }
         m.extend([
             ("family".into(), family.name().to_string()),
@@ -40,16 +53,24 @@ impl RunResult {
         if let Some(reason) = &self.reason {
             m.push(("choice_reason".into(), reason.clone()));
         }
-        m.extend([
-            (
+        m.extend(estimates);
+        if let Base::Parametric(p) = &self.curve {
+            m.push((
                 "parameters".into(),
-                crate::cmd::curve_args::parameter_text(family, &self.curve.params),
-            ),
-            ("parameter_time_unit".into(), self.curve.unit.name().into()),
-            (
+                crate::cmd::curve_args::parameter_text(family, &p.params),
+            ));
+        }
+        m.push((
+            "parameter_time_unit".into(),
+            self.curve.unit().name().into(),
+        ));
+        if let Base::Parametric(p) = &self.curve {
+            m.push((
                 "parameter_units".into(),
-                crate::families::parameter_units_text(family, self.curve.unit),
-            ),
+                crate::families::parameter_units_text(family, p.unit),
+            ));
+        }
+        m.extend([
             (
                 "cycle".into(),
                 format!(
@@ -103,6 +124,18 @@ impl RunResult {
             .unwrap_or(metadata.len());
         metadata.splice(at..at, self.floor_report(count));
         metadata
+    }
+
+    /// Short name of the chosen curve for titles and labels: the family, or e.g. "weibull ph
+    /// joint model, arm B".
+    pub fn curve_label(&self) -> String {
+        match &self.chosen {
+            Chosen::Separate(fit) => fit.family.clone(),
+            Chosen::Joint(j) => format!(
+                "{} {} joint model, arm {}",
+                j.summary.family, j.summary.model, j.arm
+            ),
+        }
     }
 
     /// The curve the tunnel table is computed from: the adjusted curve, else the fitted one.
@@ -589,22 +622,26 @@ pub fn render_files(result: &RunResult, created: Option<u64>) -> Result<Vec<(Str
         .fold(0.0, f64::max);
     let horizon = (result.horizon_cycles as f64 * result.analysis.cycle.in_unit(unit)).max(longest);
     let mut figures = plot::fit_figures(&result.data, &result.fits, horizon)?;
-    let adjusted_label = format!("{}, adjusted", result.curve.family.name());
-    let extra: Vec<(String, &dyn Curve)> = match &result.adjusted {
-        Some(a) => vec![(adjusted_label, a.as_ref() as &dyn Curve)],
-        None => Vec::new(),
-    };
+    let mut extra: Vec<(String, &dyn Curve)> = Vec::new();
+    // A joint model's arm curve is none of the separate fits drawn already: draw it too.
+    if let Base::Joint(_) = &result.curve {
+        extra.push((result.curve_label(), &result.curve as &dyn Curve));
+    }
+    if let Some(a) = &result.adjusted {
+        let label = format!("{}, adjusted", result.curve_label());
+        extra.push((label, a.as_ref() as &dyn Curve));
+    }
     figures.extend(plot::population_figures(
         &result.fits,
         &result.plausibility,
         crate::plausibility::comparison::default_display_unit(&result.fits),
-        result.chosen.arm.as_deref(),
+        result.chosen.arm(),
         &extra,
     )?);
     let tunnel_plot = TunnelPlot {
         title: format!(
             "Tunnel table: {}{}",
-            result.curve.family.name(),
+            result.curve_label(),
             if result.adjusted.is_some() {
                 " with adjustments"
             } else {
@@ -612,7 +649,7 @@ pub fn render_files(result: &RunResult, created: Option<u64>) -> Result<Vec<(Str
             }
         ),
         table: &result.tunnels,
-        colour: plot::family_colour(result.curve.family.name()),
+        colour: plot::family_colour(result.curve.family().name()),
         markers: std::iter::once(TunnelMarker {
             label: "suggested count".into(),
             tunnel: result.suggested_count,
@@ -666,12 +703,12 @@ pub fn render_files(result: &RunResult, created: Option<u64>) -> Result<Vec<(Str
 /// Short summary printed after a run.
 pub fn summary(result: &RunResult, folder: &Path) -> String {
     let unit = result.tunnels.time_unit;
-    let arm = result
-        .chosen
-        .arm
-        .as_deref()
-        .map(|a| format!(", arm {a}"))
-        .unwrap_or_default();
+    // A joint curve's description names its arm already.
+    let arm = match &result.chosen {
+        Chosen::Separate(fit) => fit.arm.as_deref().map(|a| format!(", arm {a}")),
+        Chosen::Joint(_) => None,
+    }
+    .unwrap_or_default();
     let display = crate::plausibility::comparison::default_display_unit(&result.fits);
     let mut text = crate::plausibility::comparison::render(&result.fits, display);
     text.push_str(&format!(
