@@ -660,7 +660,7 @@ fn fit_large(
         || best
             .grad
             .iter()
-            .any(|g| !(g.abs() < GRADIENT_TOLERANCE * (1.0 + best.loglik.abs())))
+            .any(|g| !g.is_finite() || g.abs() >= GRADIENT_TOLERANCE * (1.0 + best.loglik.abs()))
     {
         return None;
     }
