@@ -1223,6 +1223,71 @@ mod tests {
         assert!(css.contains(".warning"), "warnings have a style");
     }
 
+    /// A tunnel table of cycles of `cycle` (in `unit`) for S(t) = exp(−rate·t).
+    fn exponential_table(unit: TimeUnit, cycle: f64, count: usize, rate: f64) -> TunnelTable {
+        let rows = (1..=count)
+            .map(|k| {
+                let (t0, t1) = ((k - 1) as f64 * cycle, k as f64 * cycle);
+                let (s0, s1) = ((-rate * t0).exp(), (-rate * t1).exp());
+                crate::discretise::TunnelRow {
+                    tunnel: k,
+                    t_start: t0,
+                    t_end: t1,
+                    surv_start: s0,
+                    surv_end: s1,
+                    p_exit: 1.0 - s1 / s0,
+                    p_next: s1 / s0,
+                }
+            })
+            .collect();
+        TunnelTable {
+            time_unit: unit,
+            cycle,
+            rows,
+            extra: Vec::new(),
+            curve: "exponential".into(),
+        }
+    }
+
+    #[test]
+    fn quarterly_cycles_make_four_tunnels_a_year_and_a_short_last_year() {
+        // 10 quarters: years 1 and 2 of 4 tunnels, year 3 of 2 ending at 2.5 years; with a
+        // constant hazard each whole year is left with probability 1 − exp(−12·rate).
+        let rate = 0.05;
+        let table = exponential_table(TimeUnit::Months, 3.0, 10, rate);
+        assert_eq!(listed_rows(&table), 8);
+        let years = yearly_summary(&table);
+        let counts: Vec<usize> = years.iter().map(|y| y.tunnels).collect();
+        assert_eq!(counts, [4, 4, 2]);
+        assert_eq!((years[2].from_years, years[2].to_years), (2.0, 2.5));
+        for y in &years[..2] {
+            let expected = -(-12.0 * rate).exp_m1();
+            assert!((y.p_leave - expected).abs() < 1e-12, "{y:?}");
+        }
+        assert!((years[2].p_leave + (-6.0 * rate).exp_m1()).abs() < 1e-12);
+    }
+
+    #[test]
+    fn weekly_cycles_follow_the_365_25_day_year() {
+        // A year is 365.25/7 = 52.18 weeks (interface contract): tunnels starting at weeks
+        // 0..=52 are in year 1 (53 of them), weeks 53..=104 in year 2; two years end at 104.36
+        // weeks, so 105 tunnels are listed.
+        let table = exponential_table(TimeUnit::Weeks, 1.0, 120, 0.01);
+        assert_eq!(listed_rows(&table), 105);
+        let counts: Vec<usize> = yearly_summary(&table).iter().map(|y| y.tunnels).collect();
+        assert_eq!(counts, [53, 52, 15]);
+    }
+
+    #[test]
+    fn twenty_four_months_is_two_years_despite_rounding() {
+        // 24 months converted through days may land a rounding error either side of 2 years;
+        // tunnel 25 (starting at month 24) is in year 3 and not listed.
+        let table = exponential_table(TimeUnit::Months, 1.0, 36, 0.02);
+        assert_eq!(listed_rows(&table), 24);
+        let counts: Vec<usize> = yearly_summary(&table).iter().map(|y| y.tunnels).collect();
+        assert_eq!(counts, [12, 12, 12]);
+    }
+
     #[test]
     fn escapes_markup() {
         assert_eq!(escape("a<b & \"c\""), "a&lt;b &amp; &quot;c&quot;");

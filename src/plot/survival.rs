@@ -180,3 +180,21 @@ impl Plot for SurvivalPlot<'_> {
         draw_legend(&legend, "Estimate and fits", &entries)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::risk_times;
+
+    #[test]
+    fn numbers_at_risk_sit_under_every_tick_and_between_ticks_within_follow_up() {
+        let ticks: Vec<f64> = (0..=10).map(|i| 2.0 * i as f64).collect();
+        // 33 pixels a year: midpoints (1, 3) land 33 pixels from their ticks; 5 is past 3.35.
+        let wide = risk_times(&ticks, 3.35, |t| (33.0 * t).round() as i32);
+        let mut expected = ticks.clone();
+        expected.extend([1.0, 3.0]);
+        expected.sort_by(f64::total_cmp);
+        assert_eq!(wide, expected);
+        // 25 pixels a year: midpoints would be 25 pixels from their ticks, too close.
+        assert_eq!(risk_times(&ticks, 3.35, |t| (25.0 * t) as i32), ticks);
+    }
+}
