@@ -170,11 +170,18 @@ fn with_time_units(table: &Table, unit: crate::units::TimeUnit) -> Table {
     table
 }
 
+/// A column heading, escaped, with a line-break opportunity after each underscore: the
+/// exported column names (`at_risk_max_abs_diff`) have no spaces, and unbroken they make a
+/// table wider than a printed page.
+fn heading(text: &str) -> String {
+    escape(text).replace('_', "_<wbr/>")
+}
+
 /// An export table as an HTML table with `id`, showing the rows selected by `keep`.
 fn html_table(id: &str, table: &Table, keep: impl Fn(usize) -> bool) -> String {
     let mut out = format!("<table id=\"{}\"><thead><tr>", escape(id));
     for c in &table.columns {
-        out.push_str(&format!("<th>{}</th>", escape(c)));
+        out.push_str(&format!("<th>{}</th>", heading(c)));
     }
     out.push_str("</tr></thead><tbody>");
     for (_, row) in table.rows.iter().enumerate().filter(|(i, _)| keep(*i)) {
@@ -196,7 +203,7 @@ fn html_table(id: &str, table: &Table, keep: impl Fn(usize) -> bool) -> String {
 fn text_table(id: &str, header: &[&str], rows: &[Vec<String>], numeric: &[bool]) -> String {
     let mut out = format!("<table id=\"{}\"><thead><tr>", escape(id));
     for h in header {
-        out.push_str(&format!("<th>{}</th>", escape(h)));
+        out.push_str(&format!("<th>{}</th>", heading(h)));
     }
     out.push_str("</tr></thead><tbody>");
     for row in rows {
@@ -1286,6 +1293,12 @@ mod tests {
         assert_eq!(listed_rows(&table), 24);
         let counts: Vec<usize> = yearly_summary(&table).iter().map(|y| y.tunnels).collect();
         assert_eq!(counts, [12, 12, 12]);
+    }
+
+    #[test]
+    fn column_headings_may_break_after_underscores() {
+        assert_eq!(heading("at_risk"), "at_<wbr/>risk");
+        assert_eq!(heading("S(1 y) <"), "S(1 y) &lt;");
     }
 
     #[test]
