@@ -7,6 +7,7 @@
 use crate::csv_read::{CsvReader, Settings};
 use crate::error::{Error, Result};
 use crate::format::shown;
+use rayon::prelude::*;
 use sha2::{Digest, Sha256};
 use std::path::Path;
 
@@ -349,8 +350,8 @@ pub fn read(
     }
     for arm in &mut arms {
         // Records equal in this order are identical, so an unstable sort gives the same result
-        // without a buffer.
-        arm.records.sort_unstable_by(|a, b| {
+        // without a buffer (and in parallel, whatever the number of threads).
+        arm.records.par_sort_unstable_by(|a, b| {
             a.time
                 .total_cmp(&b.time)
                 .then_with(|| b.event.cmp(&a.event))

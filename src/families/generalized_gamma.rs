@@ -14,7 +14,7 @@ use super::incomplete_gamma::{
     log_gamma_pq, log_gamma_side_derivative, stirlerr, Shape,
 };
 use super::{check_finite, check_positive, quantile_by_bisection, Family, ParamUnit};
-use crate::fit::{sum_terms, FitData};
+use crate::fit::{sum_terms, FitData, SecondOrder};
 use crate::numeric::{inverse_mills, log_normal_sf, normal_quantile, LN_SQRT_2PI};
 
 /// Three-parameter family containing the Weibull (q = 1), log-normal (q = 0) and gamma
@@ -160,61 +160,97 @@ impl Family for GeneralizedGamma {
         starts
     }
     fn loglik_grad(&self, theta: &[f64], data: &FitData) -> (f64, Vec<f64>) {
-        let (mu, ln_sigma, q) = (theta[0], theta[1], theta[2]);
-        let sigma = ln_sigma.exp();
-        let uniform = q.abs() < Q_UNIFORM;
-        // Shared by every record of the pass: the shape a = q⁻², its Stirling remainder and
-        // the derivatives in q (no ln Γ per record).
-        let a = 1.0 / (q * q);
-        let has_shape = q != 0.0 && a.is_finite();
-        let shape = has_shape.then(|| Shape::new(a));
-        let (a_term, da_term_dq) = if has_shape {
-            (stirlerr(a), a_term_derivative(q))
-        } else {
-            (0.0, 0.0)
-        };
-        let da_dq = if has_shape { -2.0 / (q * q * q) } else { 0.0 };
-        let (ll, g) = sum_terms::<3>(data, |_t, ln_t, d, n| {
-            let w = (ln_t - mu) / sigma;
-            let c = n - d;
-            // One exponential per record serves the density, its derivatives and the survival.
-            let y = q * w;
-            let em1 = y.exp_m1();
-            let phi2 = expm1_minus_x_over_x2_with(y, em1);
-            // ln f·σ·t = -ln √(2π) - stirlerr(q⁻²) - w²φ₂(qw), as `log_density_w`.
-            let log_f = -LN_SQRT_2PI - a_term - w * w * phi2;
-            let mut ll = 0.0;
-            let mut grad = [0.0; 3];
-            if d > 0.0 {
-                // d(w²φ₂)/dw = w·(e^(qw) - 1)/(qw); d(w²φ₂(qw))/dq = w³φ₂'(qw).
-                let dg_dw = w * expm1_over_x_with(y, em1);
-                ll += d * (log_f - ln_sigma - ln_t);
-                grad[0] += d * dg_dw / sigma;
-                grad[1] += d * (w * dg_dw - 1.0);
-                grad[2] +=
-                    d * (-da_term_dq - w * w * w * expm1_minus_x_over_x2_derivative(y, em1, phi2));
-            }
-            if c > 0.0 {
-                let (log_s, dlog_s_dq) = match (&shape, uniform) {
-                    (Some(shape), false) => {
-                        log_gamma_side_derivative(shape, y, em1, phi2, q > 0.0, da_dq, w)
-                    }
-                    _ => (
-                        log_survival_w(q, w, true),
-                        d_dq(|qq| log_survival_w(qq, w, true), q),
-                    ),
-                };
-                // ∂ln S/∂mu = t·h, ∂ln S/∂ln σ = σ·t·h·w, with ln(σ·t·h) = ln f·σ·t - ln S.
-                let sigma_t_h = (log_f - log_s).exp();
-                ll += c * log_s;
-                grad[0] += c * sigma_t_h / sigma;
-                grad[1] += c * sigma_t_h * w;
-                grad[2] += c * dlog_s_dq;
-            }
-            (ll, grad)
-        });
-        (ll, g.to_vec())
+        let (ll, s) = sums::<false>(theta, data);
+        (ll, s[..3].to_vec())
     }
+    fn loglik_grad_hessian(&self, theta: &[f64], data: &FitData) -> Option<SecondOrder> {
+        // The (mu, ln σ) block is analytic; the q row is left to differences of the gradient.
+        let (ll, s) = sums::<true>(theta, data);
+        let block = [
+            [s[3], s[4], f64::NAN],
+            [s[4], s[5], f64::NAN],
+            [f64::NAN; 3],
+        ];
+        Some(SecondOrder {
+            loglik: ll,
+            grad: s[..3].to_vec(),
+            hessian: block.iter().map(|row| row.to_vec()).collect(),
+            exact: 2,
+        })
+    }
+}
+
+/// Log-likelihood, gradient in (mu, ln σ, q) and, when `BLOCK`, the Hessian's (mu, ln σ) block
+/// [∂²/∂mu², ∂²/∂mu∂ln σ, ∂²/∂ln σ²] in one pass. With w = (ln t - mu)/σ, ∂w/∂mu = -1/σ and
+/// ∂w/∂ln σ = -w, so the block needs only second derivatives in w: of ln f, -g''(w) with
+/// g(w) = w²φ₂(qw), g'' = e^(qw); of ln S, -r·(r - g') with r = σ·t·h.
+fn sums<const BLOCK: bool>(theta: &[f64], data: &FitData) -> (f64, [f64; 6]) {
+    let (mu, ln_sigma, q) = (theta[0], theta[1], theta[2]);
+    let sigma = ln_sigma.exp();
+    let uniform = q.abs() < Q_UNIFORM;
+    // Shared by every record of the pass: the shape a = q⁻², its Stirling remainder and
+    // the derivatives in q (no ln Γ per record).
+    let a = 1.0 / (q * q);
+    let has_shape = q != 0.0 && a.is_finite();
+    let shape = has_shape.then(|| Shape::new(a));
+    let (a_term, da_term_dq) = if has_shape {
+        (stirlerr(a), a_term_derivative(q))
+    } else {
+        (0.0, 0.0)
+    };
+    let da_dq = if has_shape { -2.0 / (q * q * q) } else { 0.0 };
+    let sigma2 = sigma * sigma;
+    sum_terms::<6>(data, |_t, ln_t, d, n| {
+        let w = (ln_t - mu) / sigma;
+        let c = n - d;
+        // One exponential per record serves the density, its derivatives and the survival.
+        let y = q * w;
+        let em1 = y.exp_m1();
+        let phi2 = expm1_minus_x_over_x2_with(y, em1);
+        // ln f·σ·t = -ln √(2π) - stirlerr(q⁻²) - w²φ₂(qw), as `log_density_w`.
+        let log_f = -LN_SQRT_2PI - a_term - w * w * phi2;
+        // d(w²φ₂)/dw = w·(e^(qw) - 1)/(qw); d(w²φ₂(qw))/dq = w³φ₂'(qw).
+        let dg_dw = w * expm1_over_x_with(y, em1);
+        let mut ll = 0.0;
+        let mut out = [0.0; 6];
+        if d > 0.0 {
+            ll += d * (log_f - ln_sigma - ln_t);
+            out[0] += d * dg_dw / sigma;
+            out[1] += d * (w * dg_dw - 1.0);
+            out[2] +=
+                d * (-da_term_dq - w * w * w * expm1_minus_x_over_x2_derivative(y, em1, phi2));
+            if BLOCK {
+                let g2 = em1 + 1.0;
+                out[3] -= d * g2 / sigma2;
+                out[4] -= d * (w * g2 + dg_dw) / sigma;
+                out[5] -= d * w * (dg_dw + w * g2);
+            }
+        }
+        if c > 0.0 {
+            let (log_s, dlog_s_dq) = match (&shape, uniform) {
+                (Some(shape), false) => {
+                    log_gamma_side_derivative(shape, y, em1, phi2, q > 0.0, da_dq, w)
+                }
+                _ => (
+                    log_survival_w(q, w, true),
+                    d_dq(|qq| log_survival_w(qq, w, true), q),
+                ),
+            };
+            // ∂ln S/∂mu = t·h, ∂ln S/∂ln σ = σ·t·h·w, with ln(σ·t·h) = ln f·σ·t - ln S.
+            let sigma_t_h = (log_f - log_s).exp();
+            ll += c * log_s;
+            out[0] += c * sigma_t_h / sigma;
+            out[1] += c * sigma_t_h * w;
+            out[2] += c * dlog_s_dq;
+            if BLOCK {
+                let slope = sigma_t_h * (sigma_t_h - dg_dw);
+                out[3] -= c * slope / sigma2;
+                out[4] -= c * (w * slope + sigma_t_h) / sigma;
+                out[5] -= c * w * (w * slope + sigma_t_h);
+            }
+        }
+        (ll, out)
+    })
 }
 
 /// (e^y - 1)/y given `em1` = e^y - 1, as [`crate::numeric::expm1_over_x`].

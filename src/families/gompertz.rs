@@ -2,7 +2,7 @@
 //! estimated as `shape`, `ln_rate`. Negative shape: survival levels off at exp(rate/shape).
 
 use super::{check_finite, check_positive, Family, ParamUnit};
-use crate::fit::{sum_terms, FitData};
+use crate::fit::{sum_terms, FitData, SecondOrder};
 use crate::numeric::{expm1_over_x, ln1p_over_x};
 
 /// Exponentially changing hazard; proportional-hazards. Shape → 0 is the exponential.
@@ -103,6 +103,24 @@ impl Family for Gompertz {
         });
         (ll, g.to_vec())
     }
+    fn loglik_grad_hessian(&self, theta: &[f64], data: &FitData) -> Option<SecondOrder> {
+        let shape = theta[0];
+        let ln_rate = theta[1];
+        let rate = ln_rate.exp();
+        // H(t) = rate·t·r(shape·t) with r(x) = (e^x - 1)/x; ∂/∂shape brings t·r', then t²·r''.
+        let (ll, s) = sum_terms::<5>(data, |t, _ln_t, d, n| {
+            let x = shape * t;
+            let (ratio, ratio_derivative) = expm1_over_x_and_derivative(x);
+            let cum = rate * t * ratio;
+            let ll = d * (ln_rate + x) - n * cum;
+            let g_shape = d * t - n * rate * t * t * ratio_derivative;
+            let g_rate = d - n * cum;
+            let h_shape = -n * rate * t * t * t * expm1_over_x_second_derivative(x);
+            let h_cross = -n * rate * t * t * ratio_derivative;
+            (ll, [g_shape, g_rate, h_shape, h_cross, -n * cum])
+        });
+        Some(SecondOrder::two(ll, s))
+    }
 }
 
 /// Taylor coefficients 1/(k+1)! of (e^x - 1)/x, k = 0..13; with |x| < 0.1 the remainder is
@@ -134,6 +152,21 @@ fn expm1_over_x_and_derivative(x: f64) -> (f64, f64) {
     } else {
         let e = x.exp();
         ((e - 1.0) / x, (e * (x - 1.0) + 1.0) / (x * x))
+    }
+}
+
+/// Second derivative of (e^x - 1)/x: the series Σ k(k-1)·x^(k-2)/(k+1)! near 0, where the
+/// closed form (e^x·(x² - 2x + 2) - 2)/x³ cancels.
+fn expm1_over_x_second_derivative(x: f64) -> f64 {
+    if x.abs() < 0.2 {
+        let c = &EXPM1_OVER_X_SERIES;
+        let mut value = 13.0 * 12.0 * c[13];
+        for k in (2..13).rev() {
+            value = value * x + (k * (k - 1)) as f64 * c[k];
+        }
+        value
+    } else {
+        (x.exp() * (x * x - 2.0 * x + 2.0) - 2.0) / (x * x * x)
     }
 }
 

@@ -2,7 +2,7 @@
 //! Log-survival uses the log upper-tail form of the normal, never ln(1 - Φ).
 
 use super::{check_finite, check_positive, Family, ParamUnit};
-use crate::fit::{sum_terms, FitData};
+use crate::fit::{sum_terms, FitData, SecondOrder};
 use crate::numeric::{
     inverse_mills, log_normal_sf, normal_pdf, normal_quantile, normal_sf, LN_SQRT_2PI,
 };
@@ -96,6 +96,38 @@ impl Family for LogNormal {
             (ll, [g_mu, g_sigma])
         });
         (ll, g.to_vec())
+    }
+    fn loglik_grad_hessian(&self, theta: &[f64], data: &FitData) -> Option<SecondOrder> {
+        let (mu, ln_sigma) = (theta[0], theta[1]);
+        let sigma = ln_sigma.exp();
+        // z = (ln t - mu)/σ: ∂z/∂mu = -1/σ, ∂z/∂ln σ = -z; the inverse Mills ratio λ(z) has
+        // λ' = λ(λ - z).
+        let (ll, s) = sum_terms::<5>(data, |_t, ln_t, d, n| {
+            let z = (ln_t - mu) / sigma;
+            let c = n - d;
+            let mut out = [0.0; 5];
+            let mut ll = 0.0;
+            if d > 0.0 {
+                ll += d * (-0.5 * z * z - LN_SQRT_2PI - ln_sigma - ln_t);
+                out[0] += d * z / sigma;
+                out[1] += d * (z * z - 1.0);
+                out[2] -= d / (sigma * sigma);
+                out[3] -= 2.0 * d * z / sigma;
+                out[4] -= 2.0 * d * z * z;
+            }
+            if c > 0.0 {
+                let (log_q, lambda) = log_sf_and_inverse_mills(z);
+                let slope = lambda * (lambda - z);
+                ll += c * log_q;
+                out[0] += c * lambda / sigma;
+                out[1] += c * lambda * z;
+                out[2] -= c * slope / (sigma * sigma);
+                out[3] -= c * (slope * z + lambda) / sigma;
+                out[4] -= c * z * (slope * z + lambda);
+            }
+            (ll, out)
+        });
+        Some(SecondOrder::two(ll, s))
     }
 }
 

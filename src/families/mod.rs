@@ -11,7 +11,7 @@
 //! `&'static dyn Family` as the unit structs. The settings are written to the fit file so that
 //! [`crate::fit::FamilyFit::family`] rebuilds the exact curve later.
 
-use crate::fit::FitData;
+use crate::fit::{FitData, SecondOrder};
 use crate::units::TimeUnit;
 use serde::{Deserialize, Serialize};
 use std::sync::Mutex;
@@ -84,6 +84,13 @@ pub trait Family: Sync + Send {
 
     /// Log-likelihood at estimation-scale `theta` (full densities) and its gradient with respect to `theta`.
     fn loglik_grad(&self, theta: &[f64], data: &FitData) -> (f64, Vec<f64>);
+
+    /// Log-likelihood, gradient and Hessian (estimation scale) from one pass over the data,
+    /// for families with analytic second derivatives: Newton then costs one pass per step and
+    /// the covariance comes with the last one. `None` (the default): the Hessian is differenced.
+    fn loglik_grad_hessian(&self, _theta: &[f64], _data: &FitData) -> Option<SecondOrder> {
+        None
+    }
 
     /// Closed-form maximum-likelihood estimate where one exists (exponential).
     fn closed_form_mle(&self, _data: &FitData) -> Option<Vec<f64>> {

@@ -1,7 +1,7 @@
 //! Weibull family: S(t) = exp(-(t/scale)^shape); estimated as `ln_shape`, `ln_scale`.
 
 use super::{check_positive, Family, ParamUnit};
-use crate::fit::{sum_terms, FitData};
+use crate::fit::{sum_terms, FitData, SecondOrder};
 
 /// Monotone hazard (increasing for shape > 1); both proportional-hazards and accelerated-failure-time.
 pub struct Weibull;
@@ -84,6 +84,23 @@ impl Family for Weibull {
             (ll, [g_shape, g_scale])
         });
         (ll, g.to_vec())
+    }
+    fn loglik_grad_hessian(&self, theta: &[f64], data: &FitData) -> Option<SecondOrder> {
+        let shape = theta[0].exp();
+        let (ln_shape, ln_scale) = (theta[0], theta[1]);
+        // With u = shape·(ln t - ln scale): ∂u/∂ln shape = u, ∂u/∂ln scale = -shape.
+        let (ll, s) = sum_terms::<5>(data, |_t, ln_t, d, n| {
+            let u = shape * (ln_t - ln_scale);
+            let cum = u.exp();
+            let ll = d * (ln_shape + (shape - 1.0) * ln_t - shape * ln_scale) - n * cum;
+            let g_shape = d * (1.0 + u) - n * cum * u;
+            let g_scale = shape * (n * cum - d);
+            let h_shape = d * u - n * cum * u * (u + 1.0);
+            let h_cross = shape * (n * cum * (u + 1.0) - d);
+            let h_scale = -shape * shape * n * cum;
+            (ll, [g_shape, g_scale, h_shape, h_cross, h_scale])
+        });
+        Some(SecondOrder::two(ll, s))
     }
     fn restricted_mean(&self, p: &[f64], horizon: f64) -> f64 {
         // ∫₀^τ S = (scale/k)·γ(1/k, x) = scale·Γ(1+1/k)·P(1/k, x) with x = (τ/scale)^k, P the
