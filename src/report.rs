@@ -8,16 +8,111 @@
 
 use crate::cmd::curve_args::Base;
 use crate::cmd::run::compute::{Chosen, JointChosen, RunResult};
+use crate::discretise::TunnelTable;
 use crate::error::Result;
 use crate::export::{Cell, Table};
 use crate::format::sig;
 use crate::plot::Figure;
+use crate::units::TimeUnit;
 
 /// Significant digits of numbers in report tables.
 pub const DIGITS: usize = 6;
 
-/// Most tunnel rows shown in the report (the files hold them all).
-pub const MAX_TUNNEL_ROWS: usize = 240;
+/// Years since entry whose tunnel rows the report lists in full; later years appear only in
+/// the yearly summary (the files hold every row).
+pub const LISTED_YEARS: f64 = 2.0;
+
+/// Number of leading tunnel rows the report lists: those whose cycle starts before
+/// [`LISTED_YEARS`] years since entry. A start a rounding error below the limit (24 months
+/// converted through days) counts as at the limit.
+pub fn listed_rows(table: &TunnelTable) -> usize {
+    let limit = TimeUnit::Years.convert(LISTED_YEARS, table.time_unit);
+    table
+        .rows
+        .iter()
+        .take_while(|r| r.t_start < limit * (1.0 - 1e-9))
+        .count()
+}
+
+/// One year of time since entry in the report's yearly summary of a tunnel table.
+#[derive(Debug, Clone, PartialEq)]
+pub struct YearSummary {
+    /// 1-based year since entry.
+    pub year: usize,
+    /// Start of the year's first tunnel and end of its last, in years since entry (whole
+    /// years when the cycle divides a year; the last year may end early with the table).
+    pub from_years: f64,
+    pub to_years: f64,
+    /// Number of tunnels whose cycle starts in the year.
+    pub tunnels: usize,
+    /// Survival at `from_years` and at `to_years`.
+    pub surv_start: f64,
+    pub surv_end: f64,
+    /// Probability of leaving during the year given presence at its start:
+    /// 1 − S(end)/S(start), the product of the year's (1 − p_exit) taken from one.
+    pub p_leave: f64,
+}
+
+/// The tunnel table by year since entry: each tunnel belongs to the year its cycle starts in,
+/// one row per year up to the table's end.
+pub fn yearly_summary(table: &TunnelTable) -> Vec<YearSummary> {
+    let year = TimeUnit::Years.convert(1.0, table.time_unit);
+    let mut out: Vec<YearSummary> = Vec::new();
+    for r in &table.rows {
+        // The same rounding allowance as `listed_rows`: month 24 is year 3's first tunnel.
+        let index = (r.t_start / year + 1e-9).floor() as usize + 1;
+        match out.last_mut() {
+            Some(y) if y.year == index => {
+                y.to_years = r.t_end / year;
+                y.tunnels += 1;
+                y.surv_end = r.surv_end;
+            }
+            _ => out.push(YearSummary {
+                year: index,
+                from_years: r.t_start / year,
+                to_years: r.t_end / year,
+                tunnels: 1,
+                surv_start: r.surv_start,
+                surv_end: r.surv_end,
+                p_leave: 0.0,
+            }),
+        }
+    }
+    for y in &mut out {
+        y.p_leave = crate::discretise::exit_probability(y.surv_start.ln(), y.surv_end.ln());
+    }
+    out
+}
+
+/// Links to the exported files of the table `stem` beside the report, by relative name: the
+/// CSV file first when the analysis writes one, then the other formats it writes.
+fn table_files(result: &RunResult, stem: &str) -> String {
+    let mut formats: Vec<&str> = result.analysis.formats.iter().map(String::as_str).collect();
+    formats.sort_by_key(|f| *f != "csv");
+    let links: Vec<String> = formats
+        .iter()
+        .map(|ext| {
+            let name = escape(&format!("{stem}.{ext}"));
+            format!("<a class=\"file\" href=\"{name}\">{name}</a>")
+        })
+        .collect();
+    match links.split_first() {
+        Some((first, [])) => first.clone(),
+        Some((first, rest)) => format!("{first} (also {})", rest.join(", ")),
+        None => String::new(),
+    }
+}
+
+/// The sentence over a per-tunnel table cut at [`LISTED_YEARS`]: how many rows are listed and
+/// which files hold them all.
+fn listed_note(result: &RunResult, shown: usize, total: usize, stem: &str) -> String {
+    format!(
+        "<p>Listed: the {} starting in the first {} years since entry, of {total}; the full table is in {}.</p>\n",
+        crate::format::counted(shown, "tunnel"),
+        crate::format::readable(LISTED_YEARS),
+        table_files(result, stem)
+    )
+}
 
 /// Escapes text for HTML/XML content and attributes.
 pub fn escape(text: &str) -> String {
@@ -76,11 +171,18 @@ fn with_time_units(table: &Table, unit: crate::units::TimeUnit) -> Table {
     table
 }
 
+/// A column heading, escaped, with a line-break opportunity after each underscore: the
+/// exported column names (`at_risk_max_abs_diff`) have no spaces, and unbroken they make a
+/// table wider than a printed page.
+fn heading(text: &str) -> String {
+    escape(text).replace('_', "_<wbr/>")
+}
+
 /// An export table as an HTML table with `id`, showing the rows selected by `keep`.
 fn html_table(id: &str, table: &Table, keep: impl Fn(usize) -> bool) -> String {
     let mut out = format!("<table id=\"{}\"><thead><tr>", escape(id));
     for c in &table.columns {
-        out.push_str(&format!("<th>{}</th>", escape(c)));
+        out.push_str(&format!("<th>{}</th>", heading(c)));
     }
     out.push_str("</tr></thead><tbody>");
     for (_, row) in table.rows.iter().enumerate().filter(|(i, _)| keep(*i)) {
@@ -102,7 +204,7 @@ fn html_table(id: &str, table: &Table, keep: impl Fn(usize) -> bool) -> String {
 fn text_table(id: &str, header: &[&str], rows: &[Vec<String>], numeric: &[bool]) -> String {
     let mut out = format!("<table id=\"{}\"><thead><tr>", escape(id));
     for h in header {
-        out.push_str(&format!("<th>{}</th>", escape(h)));
+        out.push_str(&format!("<th>{}</th>", heading(h)));
     }
     out.push_str("</tr></thead><tbody>");
     for row in rows {
@@ -204,7 +306,23 @@ figcaption{{font-size:11px;color:{muted}}}
 .file{{font-family:'DejaVu Sans Mono',monospace;font-size:10.5px}}
 pre{{background:{tint};border:1px solid {rule};padding:6px 8px;font-size:10.5px;white-space:pre-wrap}}
 code{{font-family:'DejaVu Sans Mono',monospace}}
-@media print{{body{{max-width:none;padding:0}}section+section{{break-before:page}}h2{{break-after:avoid;border-top:none}}figure,table{{break-inside:avoid}}}}
+pre#comparison{{font-size:9.4px;line-height:1.3}}
+a.file{{text-decoration:underline dotted}}
+@page{{margin:12mm}}
+@media print{{
+body{{max-width:none;padding:0;font-size:11px}}
+*{{-webkit-print-color-adjust:exact;print-color-adjust:exact}}
+section+section{{break-before:page}}
+section#data,section#adjustments,section#within-cycle,section#reproducibility{{break-before:auto}}
+h2{{border-top:none;margin-top:0}}
+section#data h2,section#adjustments h2,section#within-cycle h2,section#reproducibility h2{{margin-top:18px;padding-top:5px;border-top:2px solid {ink}}}
+h2,h3,.guide{{break-after:avoid}}
+figure,table,dl,.caution{{break-inside:avoid}}
+thead{{display:table-header-group}}
+tr{{break-inside:avoid}}
+pre#comparison{{font-size:7px;line-height:1.25}}
+nav#contents a{{text-decoration:none}}
+}}
 "
     )
 }
@@ -438,17 +556,14 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
         escape(&result.count_rule),
         t.time_unit
     ));
-    if t.rows.len() > MAX_TUNNEL_ROWS {
-        h.push_str(&format!(
-            "<p>The first {MAX_TUNNEL_ROWS} rows are shown; the files <span class=\"file\">tunnels.*</span> hold all {}.</p>\n",
-            t.rows.len()
-        ));
-    }
+    let listed = listed_rows(t);
+    h.push_str(&listed_note(result, listed, t.rows.len(), "tunnels"));
     h.push_str(&html_table(
         "table-tunnels",
         &with_time_units(&doc.tables[0], t.time_unit),
-        |i| i < MAX_TUNNEL_ROWS,
+        |i| i < listed,
     ));
+    h.push_str(&yearly_section(t));
     h.push_str(&figure(figures, "tunnels.svg", "p_exit by tunnel state, with the suggested count and, when it is reached, the tunnel from which p_exit is stable."));
     h.push_str("</section>\n");
 
@@ -519,13 +634,21 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
                 Chosen::Joint(_) => "of all the joint model's parameters together: reference curve, arm effects and covariate coefficients (multivariate normal on the estimation scale, from the model's estimates and covariance, so the effect's uncertainty and its correlation with the reference curve are carried",
             };
             h.push_str(&format!(
-                "<p>{} parameter draws {what}; seed {}), each taken through the same adjustments to a tunnel table. p_exit per tunnel: the point estimate, the mean of the draws and their 2.5% and 97.5% percentiles (also in <code>draws_summary.*</code>).</p>\n",
+                "<p>{} parameter draws {what}; seed {}), each taken through the same adjustments to a tunnel table. p_exit per tunnel: the point estimate, the mean of the draws and their 2.5% and 97.5% percentiles.</p>\n",
                 d.count, d.seed
+            ));
+            let listed = listed_rows(&result.tunnels);
+            let total = doc.tables[0].rows.len();
+            h.push_str(&listed_note(
+                result,
+                listed.min(total),
+                total,
+                "draws_summary",
             ));
             h.push_str(&html_table(
                 "table-draws",
                 &with_time_units(&doc.tables[0], result.tunnels.time_unit),
-                |_| true,
+                |i| i < listed,
             ));
         }
         _ => {
@@ -857,6 +980,15 @@ fn plausibility_section(result: &RunResult, figures: &[Figure]) -> String {
         "<p>Survival at each landmark (years since entry) with its 95% interval ({how}); RMST: mean restricted to the arm's longest follow-up; mean: restricted to {} years; both in years. Also in <span class=\"file\">fit.json</span> (<code>landmarks</code>, <code>rmst_followup</code>, <code>mean_years</code>).</p>\n",
         crate::format::readable(record.mean_horizon_years)
     ));
+    if let Some(p) = &record.population {
+        h.push_str(&format!(
+            "<p>General population: life table <span class=\"file\">{}</span> (column {}, SHA-256 <code>{}</code>), age {} at entry. “Below population from” is the first time after the end of follow-up at which a fit's hazard is below the population's hazard at the same age (constant within each year of age at −ln(1 − qx)); past the table's last age its last hazard is held.</p>\n",
+            escape(&p.file),
+            escape(&p.column),
+            escape(&p.sha256),
+            crate::format::readable(p.start_age)
+        ));
+    }
     let has_targets = fits.fits.iter().any(|f| !f.targets.is_empty());
     let has_population = fits
         .fits
@@ -952,15 +1084,6 @@ fn plausibility_section(result: &RunResult, figures: &[Figure]) -> String {
             &[false, false, true, true, false],
         ));
     }
-    if let Some(p) = &record.population {
-        h.push_str(&format!(
-            "<p>General population: life table <span class=\"file\">{}</span> (column {}, SHA-256 <code>{}</code>), age {} at entry. “Below population from” is the first time after the end of follow-up at which a fit's hazard is below the population's hazard at the same age (constant within each year of age at −ln(1 − qx)); past the table's last age its last hazard is held.</p>\n",
-            escape(&p.file),
-            escape(&p.column),
-            escape(&p.sha256),
-            crate::format::readable(p.start_age)
-        ));
-    }
     h.push_str("</section>\n");
     h
 }
@@ -1004,7 +1127,7 @@ fn payoff_section(result: &RunResult, figures: &[Figure]) -> Option<String> {
         .rows
         .iter()
         .enumerate()
-        .take(MAX_TUNNEL_ROWS)
+        .take(listed_rows(t))
         .map(|(i, r)| {
             let mut row = vec![
                 r.tunnel.to_string(),
@@ -1017,9 +1140,12 @@ fn payoff_section(result: &RunResult, figures: &[Figure]) -> Option<String> {
         .collect();
     let header: Vec<&str> = columns.iter().map(String::as_str).collect();
     let numeric = vec![true; header.len()];
-    h.push_str(&format!(
-        "<p>Per tunnel state ({}; the same columns are in <span class=\"file\">tunnels.*</span>):</p>\n",
-        crate::format::counted(t.rows.len(), "tunnel state")
+    h.push_str("<p>Per tunnel state (the same columns are in the tunnel table's files):</p>\n");
+    h.push_str(&listed_note(
+        result,
+        listed_rows(t),
+        t.rows.len(),
+        "tunnels",
     ));
     h.push_str(&text_table(
         "table-payoff-tunnels",
@@ -1105,6 +1231,52 @@ fn rebuild_section(result: &RunResult, figures: &[Figure]) -> Option<String> {
     Some(h)
 }
 
+/// `x` at [`DIGITS`] significant digits without trailing zeros ("1", "5.16667").
+fn short_number(x: f64) -> String {
+    let text = sig(x, DIGITS);
+    if text.contains('.') && !text.contains('e') {
+        text.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        text
+    }
+}
+
+/// The yearly summary of the tunnel table (`table-tunnels-yearly`), with its heading and a
+/// line on how it is read.
+fn yearly_section(table: &TunnelTable) -> String {
+    let rows: Vec<Vec<String>> = yearly_summary(table)
+        .iter()
+        .map(|y| {
+            vec![
+                y.year.to_string(),
+                short_number(y.from_years),
+                short_number(y.to_years),
+                y.tunnels.to_string(),
+                sig(y.surv_start, DIGITS),
+                sig(y.surv_end, DIGITS),
+                sig(y.p_leave, DIGITS),
+            ]
+        })
+        .collect();
+    let mut h = String::from("<h3>By year since entry</h3>\n");
+    h.push_str("<p>Each tunnel counted in the year its cycle starts in. S(start) and S(end): survival at the start of the year's first tunnel and the end of its last; leaving during the year = 1 − S(end)/S(start), the product of the year's (1 − p_exit) taken from one.</p>\n");
+    h.push_str(&text_table(
+        "table-tunnels-yearly",
+        &[
+            "year",
+            "from (years)",
+            "to (years)",
+            "tunnels",
+            "S(start)",
+            "S(end)",
+            "leaving during the year",
+        ],
+        &rows,
+        &[true; 7],
+    ));
+    h
+}
+
 /// Counts shown in the report's truncation table: 1–12, about 25 spread out, the marked ones and the last.
 fn shown_counts(n: usize, keep: &[usize]) -> Vec<usize> {
     let step = (n / 25).max(1);
@@ -1170,6 +1342,77 @@ mod tests {
         }
         assert!(found >= 8, "{found} palette colours in the stylesheet");
         assert!(css.contains(".warning"), "warnings have a style");
+    }
+
+    /// A tunnel table of cycles of `cycle` (in `unit`) for S(t) = exp(−rate·t).
+    fn exponential_table(unit: TimeUnit, cycle: f64, count: usize, rate: f64) -> TunnelTable {
+        let rows = (1..=count)
+            .map(|k| {
+                let (t0, t1) = ((k - 1) as f64 * cycle, k as f64 * cycle);
+                let (s0, s1) = ((-rate * t0).exp(), (-rate * t1).exp());
+                crate::discretise::TunnelRow {
+                    tunnel: k,
+                    t_start: t0,
+                    t_end: t1,
+                    surv_start: s0,
+                    surv_end: s1,
+                    p_exit: 1.0 - s1 / s0,
+                    p_next: s1 / s0,
+                }
+            })
+            .collect();
+        TunnelTable {
+            time_unit: unit,
+            cycle,
+            rows,
+            extra: Vec::new(),
+            curve: "exponential".into(),
+        }
+    }
+
+    #[test]
+    fn quarterly_cycles_make_four_tunnels_a_year_and_a_short_last_year() {
+        // 10 quarters: years 1 and 2 of 4 tunnels, year 3 of 2 ending at 2.5 years; with a
+        // constant hazard each whole year is left with probability 1 − exp(−12·rate).
+        let rate = 0.05;
+        let table = exponential_table(TimeUnit::Months, 3.0, 10, rate);
+        assert_eq!(listed_rows(&table), 8);
+        let years = yearly_summary(&table);
+        let counts: Vec<usize> = years.iter().map(|y| y.tunnels).collect();
+        assert_eq!(counts, [4, 4, 2]);
+        assert_eq!((years[2].from_years, years[2].to_years), (2.0, 2.5));
+        for y in &years[..2] {
+            let expected = -(-12.0 * rate).exp_m1();
+            assert!((y.p_leave - expected).abs() < 1e-12, "{y:?}");
+        }
+        assert!((years[2].p_leave + (-6.0 * rate).exp_m1()).abs() < 1e-12);
+    }
+
+    #[test]
+    fn weekly_cycles_follow_the_365_25_day_year() {
+        // A year is 365.25/7 = 52.18 weeks (interface contract): tunnels starting at weeks
+        // 0..=52 are in year 1 (53 of them), weeks 53..=104 in year 2; two years end at 104.36
+        // weeks, so 105 tunnels are listed.
+        let table = exponential_table(TimeUnit::Weeks, 1.0, 120, 0.01);
+        assert_eq!(listed_rows(&table), 105);
+        let counts: Vec<usize> = yearly_summary(&table).iter().map(|y| y.tunnels).collect();
+        assert_eq!(counts, [53, 52, 15]);
+    }
+
+    #[test]
+    fn twenty_four_months_is_two_years_despite_rounding() {
+        // 24 months converted through days may land a rounding error either side of 2 years;
+        // tunnel 25 (starting at month 24) is in year 3 and not listed.
+        let table = exponential_table(TimeUnit::Months, 1.0, 36, 0.02);
+        assert_eq!(listed_rows(&table), 24);
+        let counts: Vec<usize> = yearly_summary(&table).iter().map(|y| y.tunnels).collect();
+        assert_eq!(counts, [12, 12, 12]);
+    }
+
+    #[test]
+    fn column_headings_may_break_after_underscores() {
+        assert_eq!(heading("at_risk"), "at_<wbr/>risk");
+        assert_eq!(heading("S(1 y) <"), "S(1 y) &lt;");
     }
 
     #[test]

@@ -57,6 +57,28 @@ fn step_path(
     path
 }
 
+/// Times of the numbers-at-risk row: every axis tick, and the midpoints between ticks up to
+/// `end` (the end of follow-up) when the midpoints land at least 30 pixels (`pixel`) from
+/// their ticks.
+fn risk_times(ticks: &[f64], end: f64, pixel: impl Fn(f64) -> i32) -> Vec<f64> {
+    let mut times = ticks.to_vec();
+    if let [first, second, ..] = ticks {
+        let half = (second - first) / 2.0;
+        if pixel(first + half) - pixel(*first) >= 30 {
+            times.extend(ticks.iter().map(|t| t + half).filter(|t| *t <= end));
+            times.sort_by(f64::total_cmp);
+        }
+    }
+    times
+}
+
+/// Number at risk at a tick: subjects whose time is at or after `t`. The plot's times are
+/// the data's times converted (months to years), so a time equal to a tick may land a
+/// rounding error below it; within 1e-9 relative it counts as at the tick.
+fn at_risk_at_tick(km: &KaplanMeier, t: f64) -> usize {
+    km.at_risk_at(t * (1.0 - 1e-9))
+}
+
 impl Plot for SurvivalPlot<'_> {
     fn size(&self) -> (u32, u32) {
         (960, 600)
@@ -120,12 +142,9 @@ impl Plot for SurvivalPlot<'_> {
         });
         chart.draw_series(marks).map_err(err)?;
 
-        // Numbers at risk at round times inside the observed range, spaced so the labels do
-        // not collide (at least 36 pixels apart), with their times on the row above.
-        let (x_start, _) = chart.backend_coord(&(0.0, 0.0));
-        let (x_end, _) = chart.backend_coord(&(end, 0.0));
-        let room = ((x_end - x_start).max(0) / 36).max(1) as usize;
-        let risk_ticks = nice_ticks(end, room.min(12));
+        // Numbers at risk under every axis tick (0 past the end of follow-up), and within
+        // follow-up also halfway between ticks where the labels stay at least 30 pixels apart.
+        let risk_ticks = risk_times(&ticks, end, |t| chart.backend_coord(&(t, 0.0)).0);
         let top_y = risk.get_base_pixel().1 + 4;
         let left = text_style(12);
         root.draw(&Text::new(
@@ -142,7 +161,7 @@ impl Plot for SurvivalPlot<'_> {
             root.draw(&Text::new(tick_label(t), (x, top_y), centred.clone()))
                 .map_err(err)?;
             root.draw(&Text::new(
-                self.km.at_risk_at(t).to_string(),
+                at_risk_at_tick(self.km, t).to_string(),
                 (x, top_y + 20),
                 centred.clone(),
             ))
@@ -159,5 +178,23 @@ impl Plot for SurvivalPlot<'_> {
             entries.push((label.clone(), Mark::Line(family_colour(label), 2)));
         }
         draw_legend(&legend, "Estimate and fits", &entries)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::risk_times;
+
+    #[test]
+    fn numbers_at_risk_sit_under_every_tick_and_between_ticks_within_follow_up() {
+        let ticks: Vec<f64> = (0..=10).map(|i| 2.0 * i as f64).collect();
+        // 33 pixels a year: midpoints (1, 3) land 33 pixels from their ticks; 5 is past 3.35.
+        let wide = risk_times(&ticks, 3.35, |t| (33.0 * t).round() as i32);
+        let mut expected = ticks.clone();
+        expected.extend([1.0, 3.0]);
+        expected.sort_by(f64::total_cmp);
+        assert_eq!(wide, expected);
+        // 25 pixels a year: midpoints would be 25 pixels from their ticks, too close.
+        assert_eq!(risk_times(&ticks, 3.35, |t| (25.0 * t) as i32), ticks);
     }
 }
