@@ -172,3 +172,61 @@ fn per_draw_on_and_off_give_the_same_summary() {
         std::fs::read(b.join("draws_summary.csv")).unwrap()
     );
 }
+
+/// A joint model's arm curve (Weibull PH on the Veterans' Administration lung cancer trial,
+/// Kalbfleisch and Prentice, 1980, the copy in `tests/reference/va_lung.csv`, standardised over
+/// arm test's Karnofsky scores, a further hazard ratio on top): the run's draws.csv is the same
+/// bytes as `draws --model ph --arm test` on the run's fit file (cross-path, as
+/// tests/run_joint.rs checks the summary).
+#[test]
+fn a_joint_choice_writes_the_same_per_draw_table_as_the_draws_command() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let data = format!("{}/tests/reference/va_lung.csv", env!("CARGO_MANIFEST_DIR"));
+    std::fs::copy(data, d.join("va.csv")).unwrap();
+    std::fs::write(
+        d.join("analysis.toml"),
+        "[data]\nfile = \"va.csv\"\ntime_unit = \"days\"\narm_column = \"arm\"\n\n\
+         [fit]\nfamilies = [\"weibull\"]\nchoose = \"weibull\"\n\n\
+         [tunnels]\ncycle = \"30 days\"\ncount = 6\nhorizon = \"3 years\"\n\n\
+         [output]\nformats = [\"json\"]\n\n\
+         [adjust]\nhazard_ratio = 0.8\n\n[draws]\ncount = 40\nseed = 11\n\n\
+         [effects]\ncovariates = [\"karnofsky\"]\n\n\
+         [choice]\nmodel = \"ph\"\narm = \"test\"\n\
+         reason = \"proportional hazards across arms, as the trial was analysed\"\n",
+    )
+    .unwrap();
+    tunnelcast(d)
+        .args(["run", "analysis.toml", "--out", "out"])
+        .assert()
+        .success();
+    tunnelcast(d)
+        .arg("draws")
+        .args([
+            "--fit",
+            "out/fit.json",
+            "--family",
+            "weibull",
+            "--model",
+            "ph",
+        ])
+        .args(["--arm", "test", "--hazard-ratio", "0.8"])
+        .args(["--cycle", "30 days", "--count", "6", "--draws", "40"])
+        .args([
+            "--seed", "11", "--layout", "long", "--quiet", "--out", "d.csv",
+        ])
+        .assert()
+        .success();
+    let run_bytes = std::fs::read(d.join("out/draws.csv")).unwrap();
+    assert!(run_bytes == std::fs::read(d.join("d.csv")).unwrap());
+    assert_eq!(read_csv_table(&d.join("out/draws.csv")).rows.len(), 40 * 6);
+    // Formats without CSV: draws.csv is still CSV, and the package lists it alone.
+    let package = read_package(&d.join("out"));
+    let paths: Vec<&str> = package["resources"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| r["path"].as_str().unwrap())
+        .collect();
+    assert_eq!(paths, ["draws.csv"]);
+}
