@@ -80,6 +80,7 @@ struct RawAdjust {
 struct RawDraws {
     count: Spanned<i64>,
     seed: Option<u64>,
+    per_draw: Option<bool>,
 }
 
 /// `[payoffs]`: a payoff schedule (costs, utilities by time since entry) and its discount rate.
@@ -261,6 +262,8 @@ pub struct DrawSettings {
     pub count: usize,
     /// Seed (required, so a re-run is identical).
     pub seed: u64,
+    /// Whether the per-draw tunnel table `draws.csv` is written (`per_draw`, default on).
+    pub per_draw: bool,
 }
 
 /// Largest `[draws] count` accepted (the run stays quick and the summary stable).
@@ -1130,6 +1133,7 @@ impl Analysis {
                 Some(DrawSettings {
                     count: count as usize,
                     seed,
+                    per_draw: r.per_draw.unwrap_or(true),
                 })
             }
         };
@@ -1406,7 +1410,14 @@ seed = 7
         assert_eq!(b.sex, Some(crate::adjust::lifetable::Sex::Male));
         assert_eq!(b.mode, crate::adjust::BackgroundMode::Add);
         assert_eq!(b.beyond, crate::adjust::background::BeyondTable::HoldLast);
-        assert_eq!(a.draws, Some(DrawSettings { count: 50, seed: 7 }));
+        assert_eq!(
+            a.draws,
+            Some(DrawSettings {
+                count: 50,
+                seed: 7,
+                per_draw: true
+            })
+        );
         let plain = Analysis::parse("a.toml", GOOD, Path::new("/x")).unwrap();
         assert!(plain.adjustments.is_empty() && plain.draws.is_none());
     }

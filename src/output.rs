@@ -436,6 +436,12 @@ impl StagedFolder {
         &self.target
     }
 
+    /// Where the file `name` (a plain name) is while the folder is staged, for files streamed
+    /// into it rather than written whole.
+    pub fn staging_path(&self, name: &str) -> PathBuf {
+        self.staging.join(name)
+    }
+
     /// Writes one file (a plain name, no folders) into the temporary folder.
     pub fn write(&self, name: &str, bytes: &[u8]) -> Result<()> {
         let path = self.staging.join(name);

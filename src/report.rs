@@ -650,6 +650,15 @@ pub fn render(result: &RunResult, figures: &[Figure], created: Option<u64>) -> R
                 &with_time_units(&doc.tables[0], result.tunnels.time_unit),
                 |i| i < listed,
             ));
+            if result.per_draw_file.is_some() {
+                let name = escape(crate::cmd::run::PER_DRAW_FILE);
+                h.push_str(&format!(
+                    "<p>Every draw's own tunnel table is in <a class=\"file\" href=\"{name}\">{name}</a> ({} draws × {} = {} rows, one per draw and tunnel: <code>draw</code>, then the columns of the tunnel table), for a model that runs the draws itself; it is not listed here.</p>\n",
+                    d.count,
+                    crate::format::counted(total, "tunnel"),
+                    d.count * total
+                ));
+            }
         }
         _ => {
             h.push_str("<p>None requested in this analysis, so no random numbers were used.</p>\n")

@@ -142,7 +142,7 @@ pub struct DrawsArgs {
 
 /// The payoff columns of each draw's table: the schedule and discount, and the way from a
 /// draw's parameters to its curve.
-struct DrawPayoffs<'a> {
+pub(crate) struct DrawPayoffs<'a> {
     schedule: &'a crate::payoff::Schedule,
     discount: crate::payoff::Discount,
     cycle: Duration,
@@ -721,7 +721,7 @@ const SETTLE_BYTES: usize = 64 << 20;
 /// [`Exporter::render`]: crate::export::Exporter::render
 /// [`Exporter::append_draw_rows`]: crate::export::Exporter::append_draw_rows
 #[allow(clippy::too_many_arguments)]
-fn write_streaming(
+pub(crate) fn write_streaming(
     target: &Target,
     point: &TunnelTable,
     metadata: &[(String, String)],

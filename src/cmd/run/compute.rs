@@ -46,7 +46,14 @@ pub struct RunResult {
     /// tunnel table and the checks then use this curve.
     pub adjusted: Option<Arc<AdjustedCurve>>,
     /// Summary of the `[draws]` parameter draws (mean and 2.5%/97.5% of p_exit per tunnel).
+    /// With `per_draw` on it is made while `draws.csv` is written (see [`PerDraw`]).
     pub draws: Option<Vec<SummaryRow>>,
+    /// The draws still to be written to `draws.csv` (and summarised in the same pass), when
+    /// `[draws] per_draw` is on; taken by the writer.
+    pub per_draw: Option<PerDraw>,
+    /// The descriptor of the written `draws.csv`, listed in `datapackage.json` and linked
+    /// from the report.
+    pub per_draw_file: Option<crate::export::descriptor::Resource>,
     /// The tunnel table.
     pub tunnels: TunnelTable,
     /// How the count was set.
@@ -70,6 +77,18 @@ pub struct RunResult {
     pub rebuild: Option<RebuildOutcome>,
     /// The payoffs of `[payoffs]`, when given.
     pub payoffs: Option<RunPayoffs>,
+}
+
+/// The parameter draws of `[draws]` with what turns each into a tunnel table, kept so that
+/// `draws.csv` is streamed to the output folder (as `tunnelcast draws --layout long` writes
+/// it) and summarised in one pass, instead of held in memory.
+pub struct PerDraw {
+    /// Natural parameters of every draw, in draw order.
+    pub params: Vec<Vec<f64>>,
+    /// The adjustments every draw goes through, as the point estimate did.
+    pub adjuster: Adjuster,
+    /// The point estimate's tunnel table before payoff columns (the draws carry none).
+    pub point: TunnelTable,
 }
 
 /// The fit a run carries forward.
@@ -382,6 +401,7 @@ pub fn compute(
         horizon_cycles,
         analysis.discount,
     );
+    let mut per_draw = None;
     let draws = match analysis.draws {
         None => None,
         Some(settings) => {
@@ -406,23 +426,32 @@ pub fn compute(
                     ))
                 }
             };
-            let (base, adjuster) = (&curve, &adjuster);
-            let build = move |p: &[f64]| -> std::result::Result<Box<dyn Curve>, String> {
-                Ok(Box::new(base.adjust_draw(adjuster, p)?))
-            };
-            let mut summary = SummaryBuilder::new(tunnels.clone(), params.len());
-            crate::draws::tables_in_chunks(
-                &params,
-                &build,
-                cycle,
-                count,
-                &crate::draws::Control::none(),
-                |_, tables| {
-                    tables.iter().for_each(|t| summary.add(t));
-                    Ok(())
-                },
-            )?;
-            Some(summary.finish())
+            if settings.per_draw {
+                per_draw = Some(PerDraw {
+                    params,
+                    adjuster: adjuster.clone(),
+                    point: tunnels.clone(),
+                });
+                None
+            } else {
+                let (base, adjuster) = (&curve, &adjuster);
+                let build = move |p: &[f64]| -> std::result::Result<Box<dyn Curve>, String> {
+                    Ok(Box::new(base.adjust_draw(adjuster, p)?))
+                };
+                let mut summary = SummaryBuilder::new(tunnels.clone(), params.len());
+                crate::draws::tables_in_chunks(
+                    &params,
+                    &build,
+                    cycle,
+                    count,
+                    &crate::draws::Control::none(),
+                    |_, tables| {
+                        tables.iter().for_each(|t| summary.add(t));
+                        Ok(())
+                    },
+                )?;
+                Some(summary.finish())
+            }
         }
     };
     let mut tunnels = tunnels;
@@ -475,6 +504,8 @@ pub fn compute(
         curve,
         adjusted,
         draws,
+        per_draw,
+        per_draw_file: None,
         tunnels,
         count_rule,
         horizon_cycles,

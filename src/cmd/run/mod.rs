@@ -15,8 +15,13 @@ pub use render::{render_files, summary};
 
 use crate::analysis::Analysis;
 use crate::cmd::rebuild::RebuildOutcome;
+use crate::curve::Curve;
+use crate::draws::SummaryBuilder;
 use crate::error::Result;
+use crate::export::tunnel::{draw_columns, Layout};
+use crate::export::{Document, Table, Target};
 use crate::output::{self, StagedFolder};
+use crate::progress::LongRun;
 use clap::Args;
 use std::path::{Path, PathBuf};
 
@@ -54,13 +59,85 @@ pub fn execute(
         eprintln!("warning: {w}");
     }
     result.rebuild = rebuilt;
-    let files = render_files(&result, output::source_date_epoch()?)?;
     let staged = StagedFolder::new(folder)?;
+    if let Some(per_draw) = result.per_draw.take() {
+        let (rows, resource) = write_per_draw(&result, &per_draw, &staged)?;
+        result.draws = Some(rows);
+        result.per_draw_file = Some(resource);
+    }
+    let files = render_files(&result, output::source_date_epoch()?)?;
     for (name, bytes) in &files {
         staged.write(name, bytes)?;
     }
     staged.finish()?;
     Ok(summary(&result, folder))
+}
+
+/// Name of the per-draw tunnel table in the output folder.
+pub const PER_DRAW_FILE: &str = "draws.csv";
+
+/// Streams the per-draw tunnel table [`PER_DRAW_FILE`] (and its descriptor) into the staged
+/// folder by the path `tunnelcast draws --layout long` writes CSV with, so both files are the
+/// same bytes; summarises p_exit in the same pass. Returns the summary and the descriptor.
+fn write_per_draw(
+    result: &RunResult,
+    per_draw: &compute::PerDraw,
+    staged: &StagedFolder,
+) -> Result<(
+    Vec<crate::draws::SummaryRow>,
+    crate::export::descriptor::Resource,
+)> {
+    let path = staged.staging_path(PER_DRAW_FILE);
+    let target = Target::new(&path, Some("csv"), false)?;
+    let point = &per_draw.point;
+    let count = point.rows.len();
+    let mut metadata = result.metadata_with_floor(count);
+    let caution = metadata.pop();
+    metadata.extend([
+        ("count".to_string(), count.to_string()),
+        ("layout".to_string(), Layout::Long.name().to_string()),
+        (
+            "per_draw".to_string(),
+            "one row per draw and tunnel: draw d's tunnel table, its parameters drawn as the \
+             summary's (payoffs are not drawn)"
+                .to_string(),
+        ),
+    ]);
+    metadata.extend(caution);
+    let (base, adjuster) = (&result.curve, &per_draw.adjuster);
+    let build = move |p: &[f64]| -> std::result::Result<Box<dyn Curve>, String> {
+        Ok(Box::new(base.adjust_draw(adjuster, p)?))
+    };
+    let run = LongRun::start(per_draw.params.len() as u64, "draws", false)?;
+    let summary = SummaryBuilder::new(point.clone(), per_draw.params.len());
+    let rows = crate::cmd::draws::write_streaming(
+        &target,
+        point,
+        &metadata,
+        &per_draw.params,
+        &build,
+        result.analysis.cycle,
+        summary,
+        &run,
+        None,
+    )?;
+    drop(run);
+    let bytes = std::fs::metadata(&path)
+        .map_err(|e| crate::error::Error::output(&path, format!("cannot read: {e}")))?
+        .len();
+    let document = Document {
+        metadata,
+        tables: vec![Table {
+            name: "draws".into(),
+            columns: draw_columns(point),
+            rows: Vec::new(),
+        }],
+    };
+    let resource = target
+        .exporter
+        .describe(&document, PER_DRAW_FILE, bytes)
+        .ok_or_else(|| crate::error::Error::Computation("CSV has no descriptor".into()))?;
+    Ok((rows, resource))
 }
 
 /// Runs `run`.

@@ -116,7 +116,7 @@ impl RunResult {
 
     /// [`RunResult::metadata`] with the floor lines over `count` cycles after the adjustment
     /// lines, as a table file of that many cycles records them.
-    fn metadata_with_floor(&self, count: usize) -> Vec<(String, String)> {
+    pub fn metadata_with_floor(&self, count: usize) -> Vec<(String, String)> {
         let mut metadata = self.metadata();
         let at = metadata
             .iter()
@@ -613,6 +613,8 @@ pub fn render_files(result: &RunResult, created: Option<u64>) -> Result<Vec<(Str
             files.push((name, bytes));
         }
     }
+    // `draws.csv` itself was streamed into the folder already; only its entry is listed.
+    resources.extend(result.per_draw_file.iter().cloned());
     let unit = result.analysis.time_unit;
     let longest = result
         .data
