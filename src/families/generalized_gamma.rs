@@ -199,30 +199,30 @@ fn sums<const BLOCK: bool>(theta: &[f64], data: &FitData) -> (f64, [f64; 6]) {
         (0.0, 0.0)
     };
     let da_dq = if has_shape { -2.0 / (q * q * q) } else { 0.0 };
-    let sigma2 = sigma * sigma;
+    let inv_sigma = 1.0 / sigma;
+    let inv_sigma2 = inv_sigma * inv_sigma;
     sum_terms::<6>(data, |_t, ln_t, d, n| {
-        let w = (ln_t - mu) / sigma;
+        let w = (ln_t - mu) * inv_sigma;
         let c = n - d;
         // One exponential per record serves the density, its derivatives and the survival.
         let y = q * w;
         let em1 = y.exp_m1();
-        let phi2 = expm1_minus_x_over_x2_with(y, em1);
+        let (phi2, expm1_over_y, dphi2) = phi_terms(y, em1);
         // ln f·σ·t = -ln √(2π) - stirlerr(q⁻²) - w²φ₂(qw), as `log_density_w`.
         let log_f = -LN_SQRT_2PI - a_term - w * w * phi2;
         // d(w²φ₂)/dw = w·(e^(qw) - 1)/(qw); d(w²φ₂(qw))/dq = w³φ₂'(qw).
-        let dg_dw = w * expm1_over_x_with(y, em1);
+        let dg_dw = w * expm1_over_y;
         let mut ll = 0.0;
         let mut out = [0.0; 6];
         if d > 0.0 {
             ll += d * (log_f - ln_sigma - ln_t);
-            out[0] += d * dg_dw / sigma;
+            out[0] += d * dg_dw * inv_sigma;
             out[1] += d * (w * dg_dw - 1.0);
-            out[2] +=
-                d * (-da_term_dq - w * w * w * expm1_minus_x_over_x2_derivative(y, em1, phi2));
+            out[2] += d * (-da_term_dq - w * w * w * dphi2);
             if BLOCK {
                 let g2 = em1 + 1.0;
-                out[3] -= d * g2 / sigma2;
-                out[4] -= d * (w * g2 + dg_dw) / sigma;
+                out[3] -= d * g2 * inv_sigma2;
+                out[4] -= d * (w * g2 + dg_dw) * inv_sigma;
                 out[5] -= d * w * (dg_dw + w * g2);
             }
         }
@@ -239,18 +239,33 @@ fn sums<const BLOCK: bool>(theta: &[f64], data: &FitData) -> (f64, [f64; 6]) {
             // ∂ln S/∂mu = t·h, ∂ln S/∂ln σ = σ·t·h·w, with ln(σ·t·h) = ln f·σ·t - ln S.
             let sigma_t_h = (log_f - log_s).exp();
             ll += c * log_s;
-            out[0] += c * sigma_t_h / sigma;
+            out[0] += c * sigma_t_h * inv_sigma;
             out[1] += c * sigma_t_h * w;
             out[2] += c * dlog_s_dq;
             if BLOCK {
                 let slope = sigma_t_h * (sigma_t_h - dg_dw);
-                out[3] -= c * slope / sigma2;
-                out[4] -= c * (w * slope + sigma_t_h) / sigma;
+                out[3] -= c * slope * inv_sigma2;
+                out[4] -= c * (w * slope + sigma_t_h) * inv_sigma;
                 out[5] -= c * w * (w * slope + sigma_t_h);
             }
         }
         (ll, out)
     })
+}
+
+/// φ₂(y) = (e^y - 1 - y)/y², (e^y - 1)/y and φ₂'(y) given `em1` = e^y - 1: one division
+/// away from 0, the series of the separate functions near it (|y| < 0.05, where they switch).
+fn phi_terms(y: f64, em1: f64) -> (f64, f64, f64) {
+    if y.abs() < 0.05 {
+        let phi2 = expm1_minus_x_over_x2_with(y, em1);
+        let derivative = expm1_minus_x_over_x2_derivative(y, em1, phi2);
+        (phi2, expm1_over_x_with(y, em1), derivative)
+    } else {
+        let r = 1.0 / y;
+        let ratio = em1 * r;
+        let phi2 = (ratio - 1.0) * r;
+        (phi2, ratio, (ratio - 2.0 * phi2) * r)
+    }
 }
 
 /// (e^y - 1)/y given `em1` = e^y - 1, as [`crate::numeric::expm1_over_x`].
