@@ -43,9 +43,9 @@ pub struct FitData {
 impl FitData {
     /// Collapses sorted, validated records (times > 0, at least one event).
     pub fn from_records(records: &[Record]) -> FitData {
-        let mut time: Vec<f64> = Vec::new();
-        let mut events: Vec<f64> = Vec::new();
-        let mut total: Vec<f64> = Vec::new();
+        let mut time: Vec<f64> = Vec::with_capacity(records.len());
+        let mut events: Vec<f64> = Vec::with_capacity(records.len());
+        let mut total: Vec<f64> = Vec::with_capacity(records.len());
         for r in records {
             if time.last() != Some(&r.time) {
                 time.push(r.time);
@@ -165,22 +165,32 @@ const MAX_KM_POINTS: usize = 2_000;
 /// Kaplan–Meier (ln t, S) at event times with 0 < S < 1, thinned evenly to at most
 /// [`MAX_KM_POINTS`]; only the product-limit estimate is needed here, not its interval.
 fn km_points_for_starts(ln_time: &[f64], events: &[f64], total: &[f64]) -> Vec<(f64, f64)> {
-    let mut at_risk: f64 = total.iter().sum();
-    let mut survival = 1.0;
-    let mut points = Vec::new();
-    for i in 0..ln_time.len() {
-        if events[i] > 0.0 {
-            survival *= 1.0 - events[i] / at_risk;
-            if survival > 0.0 && survival < 1.0 {
-                points.push((ln_time[i], survival));
+    // The product-limit points with 0 < S < 1, in time order, to `visit`.
+    let walk = |visit: &mut dyn FnMut(f64, f64)| {
+        let mut at_risk: f64 = total.iter().sum();
+        let mut survival = 1.0;
+        for i in 0..ln_time.len() {
+            if events[i] > 0.0 {
+                survival *= 1.0 - events[i] / at_risk;
+                if survival > 0.0 && survival < 1.0 {
+                    visit(ln_time[i], survival);
+                }
             }
+            at_risk -= total[i];
         }
-        at_risk -= total[i];
-    }
-    if points.len() > MAX_KM_POINTS {
-        let stride = points.len().div_ceil(MAX_KM_POINTS);
-        points = points.into_iter().step_by(stride).collect();
-    }
+    };
+    // Counted first, so that only every stride-th point is kept (no vector of them all).
+    let mut count = 0usize;
+    walk(&mut |_, _| count += 1);
+    let stride = count.div_ceil(MAX_KM_POINTS).max(1);
+    let mut points = Vec::with_capacity(count.min(MAX_KM_POINTS));
+    let mut seen = 0usize;
+    walk(&mut |x, s| {
+        if seen % stride == 0 {
+            points.push((x, s));
+        }
+        seen += 1;
+    });
     points
 }
 
