@@ -419,8 +419,14 @@ pub fn hessian(family: &dyn Family, theta: &[f64], data: &FitData) -> Vec<Vec<f6
 /// Observed information (minus the Hessian) at `theta`: analytic where the family has all
 /// second derivatives, else by central differences of the gradient.
 fn information(family: &dyn Family, theta: &[f64], data: &FitData) -> Vec<Vec<f64>> {
-    let point = evaluate(family, data, theta.to_vec());
-    information_at(family, data, &point, None)
+    match family.loglik_grad_hessian(theta, data) {
+        Some(second) => {
+            let point = Point::from_second(theta.to_vec(), second);
+            information_at(family, data, &point, None)
+        }
+        // Central differences need no evaluation at `theta` itself.
+        None => negated(hessian(family, theta, data)),
+    }
 }
 
 /// Observed information at an evaluated point: its analytic block where it has one, the other
@@ -476,6 +482,11 @@ fn information_at(
             }
         }
     }
+    negated(h)
+}
+
+/// The matrix with every entry negated (information from a Hessian).
+fn negated(h: Vec<Vec<f64>>) -> Vec<Vec<f64>> {
     h.into_iter()
         .map(|row| row.into_iter().map(|x| -x).collect())
         .collect()
@@ -531,6 +542,16 @@ impl Likelihood for OneSample<'_> {
 }
 
 impl Point {
+    /// The point at `theta` from a second-order evaluation there.
+    fn from_second(theta: Vec<f64>, second: SecondOrder) -> Point {
+        Point {
+            theta,
+            loglik: second.loglik,
+            grad: second.grad.clone(),
+            curvature: Some(second),
+        }
+    }
+
     /// The full analytic Hessian, when the family gives every second derivative.
     fn full_hessian(&self) -> Option<&[Vec<f64>]> {
         self.curvature
@@ -542,12 +563,7 @@ impl Point {
 
 fn evaluate(family: &dyn Family, data: &FitData, theta: Vec<f64>) -> Point {
     match family.loglik_grad_hessian(&theta, data) {
-        Some(second) => Point {
-            theta,
-            loglik: second.loglik,
-            grad: second.grad.clone(),
-            curvature: Some(second),
-        },
+        Some(second) => Point::from_second(theta, second),
         None => {
             let (loglik, grad) = family.loglik_grad(&theta, data);
             Point {

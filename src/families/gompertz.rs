@@ -89,38 +89,36 @@ impl Family for Gompertz {
         starts
     }
     fn loglik_grad(&self, theta: &[f64], data: &FitData) -> (f64, Vec<f64>) {
-        let shape = theta[0];
-        let ln_rate = theta[1];
-        let rate = ln_rate.exp();
-        let (ll, g) = sum_terms::<2>(data, |t, _ln_t, d, n| {
-            let x = shape * t;
-            let (ratio, ratio_derivative) = expm1_over_x_and_derivative(x);
-            let cum = rate * t * ratio;
-            let ll = d * (ln_rate + x) - n * cum;
-            let g_shape = d * t - n * rate * t * t * ratio_derivative;
-            let g_rate = d - n * cum;
-            (ll, [g_shape, g_rate])
-        });
-        (ll, g.to_vec())
+        let (ll, s) = sums::<false>(theta, data);
+        (ll, s[..2].to_vec())
     }
     fn loglik_grad_hessian(&self, theta: &[f64], data: &FitData) -> Option<SecondOrder> {
-        let shape = theta[0];
-        let ln_rate = theta[1];
-        let rate = ln_rate.exp();
-        // H(t) = rate·t·r(shape·t) with r(x) = (e^x - 1)/x; ∂/∂shape brings t·r', then t²·r''.
-        let (ll, s) = sum_terms::<5>(data, |t, _ln_t, d, n| {
-            let x = shape * t;
-            let (ratio, ratio_derivative) = expm1_over_x_and_derivative(x);
-            let cum = rate * t * ratio;
-            let ll = d * (ln_rate + x) - n * cum;
-            let g_shape = d * t - n * rate * t * t * ratio_derivative;
-            let g_rate = d - n * cum;
-            let h_shape = -n * rate * t * t * t * expm1_over_x_second_derivative(x);
-            let h_cross = -n * rate * t * t * ratio_derivative;
-            (ll, [g_shape, g_rate, h_shape, h_cross, -n * cum])
-        });
+        let (ll, s) = sums::<true>(theta, data);
         Some(SecondOrder::two(ll, s))
     }
+}
+
+/// Log-likelihood, gradient and, when `SECOND`, the Hessian [h00, h01, h11] on the estimation
+/// scale in one pass (zeros in its place otherwise), so both trait methods share one loop.
+fn sums<const SECOND: bool>(theta: &[f64], data: &FitData) -> (f64, [f64; 5]) {
+    let shape = theta[0];
+    let ln_rate = theta[1];
+    let rate = ln_rate.exp();
+    // H(t) = rate·t·r(shape·t) with r(x) = (e^x - 1)/x; ∂/∂shape brings t·r', then t²·r''.
+    sum_terms::<5>(data, |t, _ln_t, d, n| {
+        let x = shape * t;
+        let (ratio, ratio_derivative) = expm1_over_x_and_derivative(x);
+        let cum = rate * t * ratio;
+        let ll = d * (ln_rate + x) - n * cum;
+        let g_shape = d * t - n * rate * t * t * ratio_derivative;
+        let g_rate = d - n * cum;
+        if !SECOND {
+            return (ll, [g_shape, g_rate, 0.0, 0.0, 0.0]);
+        }
+        let h_shape = -n * rate * t * t * t * expm1_over_x_second_derivative(x);
+        let h_cross = -n * rate * t * t * ratio_derivative;
+        (ll, [g_shape, g_rate, h_shape, h_cross, -n * cum])
+    })
 }
 
 /// Taylor coefficients 1/(k+1)! of (e^x - 1)/x, k = 0..13; with |x| < 0.1 the remainder is

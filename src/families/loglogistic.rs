@@ -68,41 +68,40 @@ impl Family for LogLogistic {
         starts
     }
     fn loglik_grad(&self, theta: &[f64], data: &FitData) -> (f64, Vec<f64>) {
-        let ln_shape = theta[0];
-        let shape = ln_shape.exp();
-        let ln_scale = theta[1];
-        let (ll, g) = sum_terms::<2>(data, |_t, ln_t, d, n| {
-            let u = shape * (ln_t - ln_scale);
-            let (sp, sig) = softplus_and_logistic(u);
-            let ll = d * (ln_shape - ln_t + u - sp) - n * sp;
-            let g_shape = d * (1.0 + u * (1.0 - sig)) - n * sig * u;
-            let g_scale = shape * (n * sig - d * (1.0 - sig));
-            (ll, [g_shape, g_scale])
-        });
-        (ll, g.to_vec())
+        let (ll, s) = sums::<false>(theta, data);
+        (ll, s[..2].to_vec())
     }
     fn loglik_grad_hessian(&self, theta: &[f64], data: &FitData) -> Option<SecondOrder> {
-        let ln_shape = theta[0];
-        let shape = ln_shape.exp();
-        let ln_scale = theta[1];
-        // u = shape·(ln t - ln scale): ∂u/∂ln shape = u, ∂u/∂ln scale = -shape; the logistic
-        // σ(u) has σ' = σ(1 - σ).
-        let (ll, s) = sum_terms::<5>(data, |_t, ln_t, d, n| {
-            let u = shape * (ln_t - ln_scale);
-            let (sp, sig) = softplus_and_logistic(u);
-            let slope = sig * (1.0 - sig);
-            let ll = d * (ln_shape - ln_t + u - sp) - n * sp;
-            let g_shape = d * (1.0 + u * (1.0 - sig)) - n * sig * u;
-            let g_scale = shape * (n * sig - d * (1.0 - sig));
-            let event_part = 1.0 - sig - slope * u;
-            let total_part = sig + slope * u;
-            let h_shape = u * (d * event_part - n * total_part);
-            let h_cross = shape * (n * total_part - d * event_part);
-            let h_scale = -shape * shape * (n + d) * slope;
-            (ll, [g_shape, g_scale, h_shape, h_cross, h_scale])
-        });
+        let (ll, s) = sums::<true>(theta, data);
         Some(SecondOrder::two(ll, s))
     }
+}
+
+/// Log-likelihood, gradient and, when `SECOND`, the Hessian [h00, h01, h11] on the estimation
+/// scale in one pass (zeros in its place otherwise), so both trait methods share one loop.
+fn sums<const SECOND: bool>(theta: &[f64], data: &FitData) -> (f64, [f64; 5]) {
+    let ln_shape = theta[0];
+    let shape = ln_shape.exp();
+    let ln_scale = theta[1];
+    // u = shape·(ln t - ln scale): ∂u/∂ln shape = u, ∂u/∂ln scale = -shape; the logistic
+    // σ(u) has σ' = σ(1 - σ).
+    sum_terms::<5>(data, |_t, ln_t, d, n| {
+        let u = shape * (ln_t - ln_scale);
+        let (sp, sig) = softplus_and_logistic(u);
+        let ll = d * (ln_shape - ln_t + u - sp) - n * sp;
+        let g_shape = d * (1.0 + u * (1.0 - sig)) - n * sig * u;
+        let g_scale = shape * (n * sig - d * (1.0 - sig));
+        if !SECOND {
+            return (ll, [g_shape, g_scale, 0.0, 0.0, 0.0]);
+        }
+        let slope = sig * (1.0 - sig);
+        let event_part = 1.0 - sig - slope * u;
+        let total_part = sig + slope * u;
+        let h_shape = u * (d * event_part - n * total_part);
+        let h_cross = shape * (n * total_part - d * event_part);
+        let h_scale = -shape * shape * (n + d) * slope;
+        (ll, [g_shape, g_scale, h_shape, h_cross, h_scale])
+    })
 }
 
 /// softplus(u) = ln(1 + e^u) and its derivative, the logistic 1/(1 + e^-u), from one

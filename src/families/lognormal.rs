@@ -73,62 +73,51 @@ impl Family for LogNormal {
         starts
     }
     fn loglik_grad(&self, theta: &[f64], data: &FitData) -> (f64, Vec<f64>) {
-        let mu = theta[0];
-        let ln_sigma = theta[1];
-        let sigma = ln_sigma.exp();
-        let (ll, g) = sum_terms::<2>(data, |_t, ln_t, d, n| {
-            let z = (ln_t - mu) / sigma;
-            let c = n - d;
-            let mut ll = 0.0;
-            let mut g_mu = 0.0;
-            let mut g_sigma = 0.0;
-            if d > 0.0 {
-                ll += d * (-0.5 * z * z - LN_SQRT_2PI - ln_sigma - ln_t);
-                g_mu += d * z / sigma;
-                g_sigma += d * (z * z - 1.0);
-            }
-            if c > 0.0 {
-                let (log_q, lambda) = log_sf_and_inverse_mills(z);
-                ll += c * log_q;
-                g_mu += c * lambda / sigma;
-                g_sigma += c * lambda * z;
-            }
-            (ll, [g_mu, g_sigma])
-        });
-        (ll, g.to_vec())
+        let (ll, s) = sums::<false>(theta, data);
+        (ll, s[..2].to_vec())
     }
     fn loglik_grad_hessian(&self, theta: &[f64], data: &FitData) -> Option<SecondOrder> {
-        let (mu, ln_sigma) = (theta[0], theta[1]);
-        let sigma = ln_sigma.exp();
-        // z = (ln t - mu)/σ: ∂z/∂mu = -1/σ, ∂z/∂ln σ = -z; the inverse Mills ratio λ(z) has
-        // λ' = λ(λ - z).
-        let (ll, s) = sum_terms::<5>(data, |_t, ln_t, d, n| {
-            let z = (ln_t - mu) / sigma;
-            let c = n - d;
-            let mut out = [0.0; 5];
-            let mut ll = 0.0;
-            if d > 0.0 {
-                ll += d * (-0.5 * z * z - LN_SQRT_2PI - ln_sigma - ln_t);
-                out[0] += d * z / sigma;
-                out[1] += d * (z * z - 1.0);
+        let (ll, s) = sums::<true>(theta, data);
+        Some(SecondOrder::two(ll, s))
+    }
+}
+
+/// Log-likelihood, gradient and, when `SECOND`, the Hessian [h00, h01, h11] on the estimation
+/// scale in one pass (zeros in its place otherwise), so both trait methods share one loop.
+fn sums<const SECOND: bool>(theta: &[f64], data: &FitData) -> (f64, [f64; 5]) {
+    let (mu, ln_sigma) = (theta[0], theta[1]);
+    let sigma = ln_sigma.exp();
+    // z = (ln t - mu)/σ: ∂z/∂mu = -1/σ, ∂z/∂ln σ = -z; the inverse Mills ratio λ(z) has
+    // λ' = λ(λ - z).
+    sum_terms::<5>(data, |_t, ln_t, d, n| {
+        let z = (ln_t - mu) / sigma;
+        let c = n - d;
+        let mut out = [0.0; 5];
+        let mut ll = 0.0;
+        if d > 0.0 {
+            ll += d * (-0.5 * z * z - LN_SQRT_2PI - ln_sigma - ln_t);
+            out[0] += d * z / sigma;
+            out[1] += d * (z * z - 1.0);
+            if SECOND {
                 out[2] -= d / (sigma * sigma);
                 out[3] -= 2.0 * d * z / sigma;
                 out[4] -= 2.0 * d * z * z;
             }
-            if c > 0.0 {
-                let (log_q, lambda) = log_sf_and_inverse_mills(z);
+        }
+        if c > 0.0 {
+            let (log_q, lambda) = log_sf_and_inverse_mills(z);
+            ll += c * log_q;
+            out[0] += c * lambda / sigma;
+            out[1] += c * lambda * z;
+            if SECOND {
                 let slope = lambda * (lambda - z);
-                ll += c * log_q;
-                out[0] += c * lambda / sigma;
-                out[1] += c * lambda * z;
                 out[2] -= c * slope / (sigma * sigma);
                 out[3] -= c * (slope * z + lambda) / sigma;
                 out[4] -= c * z * (slope * z + lambda);
             }
-            (ll, out)
-        });
-        Some(SecondOrder::two(ll, s))
-    }
+        }
+        (ll, out)
+    })
 }
 
 /// ln Q(z) and the inverse Mills ratio φ(z)/Q(z) from one complementary error function in

@@ -72,34 +72,11 @@ impl Family for Weibull {
         starts
     }
     fn loglik_grad(&self, theta: &[f64], data: &FitData) -> (f64, Vec<f64>) {
-        let shape = theta[0].exp();
-        let ln_scale = theta[1];
-        let ln_shape = theta[0];
-        let (ll, g) = sum_terms::<2>(data, |_t, ln_t, d, n| {
-            let u = shape * (ln_t - ln_scale);
-            let cum = u.exp();
-            let ll = d * (ln_shape + (shape - 1.0) * ln_t - shape * ln_scale) - n * cum;
-            let g_shape = d * (1.0 + u) - n * cum * u;
-            let g_scale = shape * (n * cum - d);
-            (ll, [g_shape, g_scale])
-        });
-        (ll, g.to_vec())
+        let (ll, s) = sums::<false>(theta, data);
+        (ll, s[..2].to_vec())
     }
     fn loglik_grad_hessian(&self, theta: &[f64], data: &FitData) -> Option<SecondOrder> {
-        let shape = theta[0].exp();
-        let (ln_shape, ln_scale) = (theta[0], theta[1]);
-        // With u = shape·(ln t - ln scale): ∂u/∂ln shape = u, ∂u/∂ln scale = -shape.
-        let (ll, s) = sum_terms::<5>(data, |_t, ln_t, d, n| {
-            let u = shape * (ln_t - ln_scale);
-            let cum = u.exp();
-            let ll = d * (ln_shape + (shape - 1.0) * ln_t - shape * ln_scale) - n * cum;
-            let g_shape = d * (1.0 + u) - n * cum * u;
-            let g_scale = shape * (n * cum - d);
-            let h_shape = d * u - n * cum * u * (u + 1.0);
-            let h_cross = shape * (n * cum * (u + 1.0) - d);
-            let h_scale = -shape * shape * n * cum;
-            (ll, [g_shape, g_scale, h_shape, h_cross, h_scale])
-        });
+        let (ll, s) = sums::<true>(theta, data);
         Some(SecondOrder::two(ll, s))
     }
     fn restricted_mean(&self, p: &[f64], horizon: f64) -> f64 {
@@ -112,6 +89,28 @@ impl Family for Weibull {
         let x = (horizon / p[1]).powf(p[0]);
         p[1] * statrs::function::gamma::gamma(a) * statrs::function::gamma::gamma_lr(1.0 / p[0], x)
     }
+}
+
+/// Log-likelihood, gradient and, when `SECOND`, the Hessian [h00, h01, h11] on the estimation
+/// scale in one pass (zeros in its place otherwise), so both trait methods share one loop.
+fn sums<const SECOND: bool>(theta: &[f64], data: &FitData) -> (f64, [f64; 5]) {
+    let shape = theta[0].exp();
+    let (ln_shape, ln_scale) = (theta[0], theta[1]);
+    // With u = shape·(ln t - ln scale): ∂u/∂ln shape = u, ∂u/∂ln scale = -shape.
+    sum_terms::<5>(data, |_t, ln_t, d, n| {
+        let u = shape * (ln_t - ln_scale);
+        let cum = u.exp();
+        let ll = d * (ln_shape + (shape - 1.0) * ln_t - shape * ln_scale) - n * cum;
+        let g_shape = d * (1.0 + u) - n * cum * u;
+        let g_scale = shape * (n * cum - d);
+        if !SECOND {
+            return (ll, [g_shape, g_scale, 0.0, 0.0, 0.0]);
+        }
+        let h_shape = d * u - n * cum * u * (u + 1.0);
+        let h_cross = shape * (n * cum * (u + 1.0) - d);
+        let h_scale = -shape * shape * n * cum;
+        (ll, [g_shape, g_scale, h_shape, h_cross, h_scale])
+    })
 }
 
 #[cfg(test)]
