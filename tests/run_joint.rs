@@ -77,6 +77,23 @@ fn numbers(doc: &TableFile) -> Vec<Vec<f64>> {
         .collect()
 }
 
+/// The rows of the JSON array `h[key]` in the order of `columns`, a cell that is not a number
+/// (a method name, null) NaN as [`numbers`] reads the files; [`same`] then wants NaN on both
+/// sides. For comparing `horizon --json` with a run's table.
+fn json_rows(h: &Value, key: &str, columns: &[String]) -> Vec<Vec<f64>> {
+    h[key]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| {
+            columns
+                .iter()
+                .map(|k| r[k.as_str()].as_f64().unwrap_or(f64::NAN))
+                .collect()
+        })
+        .collect()
+}
+
 /// Two tables of numbers equal to 1e-12 (relative, absolute near 0), NaN cells alike.
 fn same(what: &str, a: &[Vec<f64>], b: &[Vec<f64>]) {
     assert_eq!(a.len(), b.len(), "{what}: rows");
@@ -250,27 +267,12 @@ fn a_joint_choice_writes_what_the_standalone_commands_write_from_its_fit_file() 
         h["suggested_count"].to_string()
     );
     let keys = ["count", "max_surv_gap", "ly_rel_error", "p_exit_last"];
-    let from_h: Vec<Vec<f64>> = h["truncation"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|r| keys.iter().map(|k| r[k].as_f64().unwrap()).collect())
-        .collect();
     assert_eq!(truncation.tables[0].columns, keys);
+    let from_h = json_rows(&h, "truncation", &truncation.tables[0].columns);
     same("truncation", &numbers(&truncation), &from_h);
     let within = read_table(&out.join("within_cycle.json"));
     let columns = within.tables[0].columns.clone();
-    let from_h: Vec<Vec<f64>> = h["within_cycle"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|r| {
-            columns
-                .iter()
-                .map(|k| r[k.as_str()].as_f64().unwrap_or(f64::NAN))
-                .collect()
-        })
-        .collect();
+    let from_h = json_rows(&h, "within_cycle", &columns);
     same("within_cycle", &numbers(&within), &from_h);
 
     // Draws: the same draws of all the joint parameters give the same summary.
@@ -626,31 +628,11 @@ fn background_mortality_and_payoffs_on_a_joint_curve_match_the_standalone_comman
     let truncation = read_table(&d.join("out/truncation.json"));
     let columns = truncation.tables[0].columns.clone();
     assert!(columns.iter().any(|c| c.starts_with("payoff_rel_error_")));
-    let from_h: Vec<Vec<f64>> = h["truncation"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|r| {
-            columns
-                .iter()
-                .map(|k| r[k.as_str()].as_f64().unwrap())
-                .collect()
-        })
-        .collect();
+    let from_h = json_rows(&h, "truncation", &columns);
     same("truncation", &numbers(&truncation), &from_h);
     let methods = read_table(&d.join("out/payoff_methods.json"));
     let columns = methods.tables[0].columns.clone();
-    let from_h: Vec<Vec<f64>> = h["payoffs"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|r| {
-            columns
-                .iter()
-                .map(|k| r[k.as_str()].as_f64().unwrap_or(f64::NAN))
-                .collect()
-        })
-        .collect();
+    let from_h = json_rows(&h, "payoffs", &columns);
     same("payoff methods", &numbers(&methods), &from_h);
 }
 
