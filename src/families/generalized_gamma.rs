@@ -11,7 +11,7 @@
 
 use super::incomplete_gamma::{
     expm1_minus_x_over_x2, expm1_minus_x_over_x2_derivative, expm1_minus_x_over_x2_with,
-    log_gamma_pq, log_gamma_side_derivative, stirlerr, Shape,
+    log_gamma_pq, log_gamma_side_derivative, log_gamma_side_second, stirlerr, Curve, Shape,
 };
 use super::{check_finite, check_positive, quantile_by_bisection, Family, ParamUnit};
 use crate::fit::{sum_terms, FitData, SecondOrder};
@@ -84,6 +84,19 @@ fn d_dq(f: impl Fn(f64) -> f64, q: f64) -> f64 {
     let d1 = (f(q + h) - f(q - h)) / (2.0 * h);
     let d2 = (f(q + h / 2.0) - f(q - h / 2.0)) / h;
     (4.0 * d2 - d1) / 3.0
+}
+
+/// First and second derivatives in q of `f`, whose value at q is `at_q`, by Richardson
+/// extrapolation of central differences from the four evaluations of [`d_dq`].
+fn d_dq_second(f: impl Fn(f64) -> f64, q: f64, at_q: f64) -> (f64, f64) {
+    let h = q_step(q);
+    let (up, down) = (f(q + h), f(q - h));
+    let (up_half, down_half) = (f(q + h / 2.0), f(q - h / 2.0));
+    let d1 = (up - down) / (2.0 * h);
+    let d1_half = (up_half - down_half) / h;
+    let s = (up - 2.0 * at_q + down) / (h * h);
+    let s_half = (up_half - 2.0 * at_q + down_half) / (h * h / 4.0);
+    ((4.0 * d1_half - d1) / 3.0, (4.0 * s_half - s) / 3.0)
 }
 
 impl Family for GeneralizedGamma {
@@ -164,27 +177,26 @@ impl Family for GeneralizedGamma {
         (ll, s[..3].to_vec())
     }
     fn loglik_grad_hessian(&self, theta: &[f64], data: &FitData) -> Option<SecondOrder> {
-        // The (mu, ln σ) block is analytic; the q row is left to differences of the gradient.
         let (ll, s) = sums::<true>(theta, data);
-        let block = [
-            [s[3], s[4], f64::NAN],
-            [s[4], s[5], f64::NAN],
-            [f64::NAN; 3],
-        ];
+        let hessian = [[s[3], s[4], s[6]], [s[4], s[5], s[7]], [s[6], s[7], s[8]]];
         Some(SecondOrder {
             loglik: ll,
             grad: s[..3].to_vec(),
-            hessian: block.iter().map(|row| row.to_vec()).collect(),
-            exact: 2,
+            hessian: hessian.iter().map(|row| row.to_vec()).collect(),
+            exact: 3,
         })
     }
 }
 
-/// Log-likelihood, gradient in (mu, ln σ, q) and, when `BLOCK`, the Hessian's (mu, ln σ) block
-/// [∂²/∂mu², ∂²/∂mu∂ln σ, ∂²/∂ln σ²] in one pass. With w = (ln t - mu)/σ, ∂w/∂mu = -1/σ and
-/// ∂w/∂ln σ = -w, so the block needs only second derivatives in w: of ln f, -g''(w) with
-/// g(w) = w²φ₂(qw), g'' = e^(qw); of ln S, -r·(r - g') with r = σ·t·h.
-fn sums<const BLOCK: bool>(theta: &[f64], data: &FitData) -> (f64, [f64; 6]) {
+/// Log-likelihood, gradient in (mu, ln σ, q) and, when `HESSIAN`, the Hessian
+/// [∂²/∂mu², ∂²/∂mu∂ln σ, ∂²/∂ln σ², ∂²/∂mu∂q, ∂²/∂ln σ∂q, ∂²/∂q²] in one pass. With
+/// w = (ln t - mu)/σ, ∂w/∂mu = -1/σ and ∂w/∂ln σ = -w, so the (mu, ln σ) block needs only
+/// second derivatives in w: of ln f, -g''(w) with g(w) = w²φ₂(qw), g'' = e^(qw); of ln S,
+/// -r·(r - g') with r = σ·t·h. The cross terms with q are those of ∂ln f/∂mu = g'/σ
+/// (∂g'/∂q = w²ψ(qw), ψ = d((e^y - 1)/y)/dy) and of ∂ln S/∂mu = r/σ, with
+/// ∂ln r/∂q = ∂ln(fσt)/∂q - ∂ln S/∂q; ∂²ln S/∂q² comes from the incomplete gamma's series or
+/// continued fraction differentiated twice along (a, y) = (q⁻², qw).
+fn sums<const HESSIAN: bool>(theta: &[f64], data: &FitData) -> (f64, [f64; 9]) {
     let (mu, ln_sigma, q) = (theta[0], theta[1], theta[2]);
     let sigma = ln_sigma.exp();
     let uniform = q.abs() < Q_UNIFORM;
@@ -198,10 +210,17 @@ fn sums<const BLOCK: bool>(theta: &[f64], data: &FitData) -> (f64, [f64; 6]) {
     } else {
         (0.0, 0.0)
     };
-    let da_dq = if has_shape { -2.0 / (q * q * q) } else { 0.0 };
+    // By its series in q² also at q = 0, where it is 1/6.
+    let d2a_term_dq2 = a_term_second_derivative(q);
+    // a = q⁻² along q, y = q·w along q (da, d2a; dy = w per record).
+    let (da_dq, d2a_dq2) = if has_shape {
+        (-2.0 / (q * q * q), 6.0 / (q * q * q * q))
+    } else {
+        (0.0, 0.0)
+    };
     let inv_sigma = 1.0 / sigma;
     let inv_sigma2 = inv_sigma * inv_sigma;
-    sum_terms::<6>(data, |_t, ln_t, d, n| {
+    sum_terms::<9>(data, |_t, ln_t, d, n| {
         let w = (ln_t - mu) * inv_sigma;
         let c = n - d;
         // One exponential per record serves the density, its derivatives and the survival.
@@ -212,29 +231,53 @@ fn sums<const BLOCK: bool>(theta: &[f64], data: &FitData) -> (f64, [f64; 6]) {
         let log_f = -LN_SQRT_2PI - a_term - w * w * phi2;
         // d(w²φ₂)/dw = w·(e^(qw) - 1)/(qw); d(w²φ₂(qw))/dq = w³φ₂'(qw).
         let dg_dw = w * expm1_over_y;
+        let w2 = w * w;
+        let w3 = w2 * w;
+        let dlog_f_dq = -da_term_dq - w3 * dphi2;
         let mut ll = 0.0;
-        let mut out = [0.0; 6];
+        let mut out = [0.0; 9];
         if d > 0.0 {
             ll += d * (log_f - ln_sigma - ln_t);
             out[0] += d * dg_dw * inv_sigma;
             out[1] += d * (w * dg_dw - 1.0);
-            out[2] += d * (-da_term_dq - w * w * w * dphi2);
-            if BLOCK {
+            out[2] += d * dlog_f_dq;
+            if HESSIAN {
                 let g2 = em1 + 1.0;
                 out[3] -= d * g2 * inv_sigma2;
                 out[4] -= d * (w * g2 + dg_dw) * inv_sigma;
                 out[5] -= d * w * (dg_dw + w * g2);
+                let (psi, d2phi2) = second_phi_terms(y, em1, expm1_over_y, dphi2);
+                out[6] += d * w2 * psi * inv_sigma;
+                out[7] += d * w3 * psi;
+                out[8] += d * (-d2a_term_dq2 - w2 * w2 * d2phi2);
             }
         }
         if c > 0.0 {
-            let (log_s, dlog_s_dq) = match (&shape, uniform) {
-                (Some(shape), false) => {
-                    log_gamma_side_derivative(shape, y, em1, phi2, q > 0.0, da_dq, w)
+            let (log_s, dlog_s_dq, d2log_s_dq2) = match (&shape, uniform, HESSIAN) {
+                (Some(shape), false, false) => {
+                    let (v, dv) = log_gamma_side_derivative(shape, y, em1, phi2, q > 0.0, da_dq, w);
+                    (v, dv, 0.0)
                 }
-                _ => (
+                (Some(shape), false, true) => {
+                    let curve = Curve {
+                        da: da_dq,
+                        dy: w,
+                        d2a: d2a_dq2,
+                        d2y: 0.0,
+                    };
+                    let [v, dv, d2v] = log_gamma_side_second(shape, y, em1, phi2, q > 0.0, &curve);
+                    (v, dv, d2v)
+                }
+                (_, _, false) => (
                     log_survival_w(q, w, true),
                     d_dq(|qq| log_survival_w(qq, w, true), q),
+                    0.0,
                 ),
+                (_, _, true) => {
+                    let v = log_survival_w(q, w, true);
+                    let (dv, d2v) = d_dq_second(|qq| log_survival_w(qq, w, true), q, v);
+                    (v, dv, d2v)
+                }
             };
             // ∂ln S/∂mu = t·h, ∂ln S/∂ln σ = σ·t·h·w, with ln(σ·t·h) = ln f·σ·t - ln S.
             let sigma_t_h = (log_f - log_s).exp();
@@ -242,11 +285,15 @@ fn sums<const BLOCK: bool>(theta: &[f64], data: &FitData) -> (f64, [f64; 6]) {
             out[0] += c * sigma_t_h * inv_sigma;
             out[1] += c * sigma_t_h * w;
             out[2] += c * dlog_s_dq;
-            if BLOCK {
+            if HESSIAN {
                 let slope = sigma_t_h * (sigma_t_h - dg_dw);
                 out[3] -= c * slope * inv_sigma2;
                 out[4] -= c * (w * slope + sigma_t_h) * inv_sigma;
                 out[5] -= c * w * (w * slope + sigma_t_h);
+                let cross = sigma_t_h * (dlog_f_dq - dlog_s_dq);
+                out[6] += c * cross * inv_sigma;
+                out[7] += c * cross * w;
+                out[8] += c * d2log_s_dq2;
             }
         }
         (ll, out)
@@ -265,6 +312,30 @@ fn phi_terms(y: f64, em1: f64) -> (f64, f64, f64) {
         let ratio = em1 * r;
         let phi2 = (ratio - 1.0) * r;
         (phi2, ratio, (ratio - 2.0 * phi2) * r)
+    }
+}
+
+/// ψ(y) = d((e^y - 1)/y)/dy = 3φ₂' + y·φ₂'' and φ₂''(y), given `em1` = e^y - 1, `ratio` =
+/// (e^y - 1)/y and `dphi2` = φ₂'(y) from [`phi_terms`]; by their series where that switches.
+fn second_phi_terms(y: f64, em1: f64, ratio: f64, dphi2: f64) -> (f64, f64) {
+    if y.abs() < 0.05 {
+        // ψ = Σ (k+1) y^k/(k+2)!, φ₂'' = Σ (k+1)(k+2) y^k/(k+4)!.
+        let mut psi = 0.0;
+        let mut d2phi2 = 0.0;
+        let mut power = 1.0;
+        let mut factorial = 2.0; // (k+2)!
+        for k in 0..12 {
+            let k = k as f64;
+            psi += (k + 1.0) * power / factorial;
+            d2phi2 += (k + 1.0) * (k + 2.0) * power / (factorial * (k + 3.0) * (k + 4.0));
+            power *= y;
+            factorial *= k + 3.0;
+        }
+        (psi, d2phi2)
+    } else {
+        let r = 1.0 / y;
+        let psi = (em1 + 1.0 - ratio) * r;
+        (psi, (psi - 3.0 * dphi2) * r)
     }
 }
 
@@ -290,6 +361,25 @@ fn a_term_derivative(q: f64) -> f64 {
         ds_dr * 2.0 * q
     } else {
         super::incomplete_gamma::stirlerr_derivative(a) * (-2.0 / (q * q * q))
+    }
+}
+
+/// d²/dq² of stirlerr(q⁻²), as [`a_term_derivative`].
+fn a_term_second_derivative(q: f64) -> f64 {
+    let a = 1.0 / (q * q);
+    if a >= 10.0 {
+        // With r = q²: d²/dq² = 4q²·d²s/dr² + 2·ds/dr.
+        let r = q * q;
+        let r2 = r * r;
+        let ds_dr = 1.0 / 12.0
+            - r2 * (3.0 / 360.0 - r2 * (5.0 / 1260.0 - r2 * (7.0 / 1680.0 - r2 * (9.0 / 1188.0))));
+        let d2s_dr2 =
+            -r * (6.0 / 360.0 - r2 * (20.0 / 1260.0 - r2 * (42.0 / 1680.0 - r2 * (72.0 / 1188.0))));
+        4.0 * r * d2s_dr2 + 2.0 * ds_dr
+    } else {
+        let da = -2.0 / (q * q * q);
+        super::incomplete_gamma::stirlerr_second_derivative(a) * da * da
+            + super::incomplete_gamma::stirlerr_derivative(a) * 6.0 * a * a
     }
 }
 

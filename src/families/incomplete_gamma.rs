@@ -79,18 +79,55 @@ pub fn stirlerr_derivative(a: f64) -> f64 {
     }
 }
 
+/// Second derivative of [`stirlerr`] in a: ψ₁(a) - 1/a - 1/(2a²), by the twice differentiated
+/// series for a ≥ 10.
+pub fn stirlerr_second_derivative(a: f64) -> f64 {
+    if a >= 10.0 {
+        let r = 1.0 / a;
+        let r2 = r * r;
+        // d²/da² of Σ c_k r^(2k+1) = r³ Σ (2k+1)(2k+2) c_k r^(2k).
+        r2 * r
+            * (2.0 / 12.0
+                - r2 * (12.0 / 360.0
+                    - r2 * (30.0 / 1260.0 - r2 * (56.0 / 1680.0 - r2 * (90.0 / 1188.0)))))
+    } else {
+        trigamma(a) - 1.0 / a - 0.5 / (a * a)
+    }
+}
+
+/// Trigamma function ψ₁(x) = d²ln Γ(x)/dx² for x > 0: the recurrence ψ₁(x) = ψ₁(x + 1) + 1/x²
+/// up to x ≥ 10, then the asymptotic series (Abramowitz and Stegun, 1964, 6.4.12).
+pub fn trigamma(x: f64) -> f64 {
+    let mut x = x;
+    let mut sum = 0.0;
+    while x < 10.0 {
+        sum += 1.0 / (x * x);
+        x += 1.0;
+    }
+    let r = 1.0 / x;
+    let r2 = r * r;
+    // 1/x + 1/(2x²) + Σ B_2k / x^(2k+1): B₂ = 1/6, B₄ = -1/30, B₆ = 1/42, B₈ = -1/30,
+    // B₁₀ = 5/66, B₁₂ = -691/2730, B₁₄ = 7/6.
+    let tail = 5.0 / 66.0 - r2 * (691.0 / 2730.0 - r2 * (7.0 / 6.0));
+    sum + r
+        + 0.5 * r2
+        + r * r2
+            * (1.0 / 6.0 - r2 * (1.0 / 30.0 - r2 * (1.0 / 42.0 - r2 * (1.0 / 30.0 - r2 * tail))))
+}
+
 /// Series terms whose reciprocals 1/(a + n) a [`Shape`] keeps, so that the first terms of
 /// every record's series cost no division.
 const RECIPROCALS: usize = 64;
 
 /// A shape a with what every record of a likelihood pass shares (ln a, the Stirling
-/// remainder and its derivative, the series' 1/(a + n)), so that each record costs no ln Γ.
+/// remainder and its derivatives, the series' 1/(a + n)), so that each record costs no ln Γ.
 #[derive(Debug, Clone)]
 pub struct Shape {
     a: f64,
     ln_a: f64,
     stirlerr: f64,
     stirlerr_derivative: f64,
+    stirlerr_second_derivative: f64,
     /// 1/(a + n) for n = 1 … RECIPROCALS (index n - 1).
     reciprocals: [f64; RECIPROCALS],
 }
@@ -103,6 +140,7 @@ impl Shape {
             ln_a: a.ln(),
             stirlerr: stirlerr(a),
             stirlerr_derivative: stirlerr_derivative(a),
+            stirlerr_second_derivative: stirlerr_second_derivative(a),
             reciprocals: std::array::from_fn(|i| 1.0 / (a + (i + 1) as f64)),
         }
     }
@@ -116,17 +154,33 @@ impl Shape {
     }
 }
 
-/// ln(1 - v) from ln v = `l` with its derivative from that of ln v, as in
+/// A curve (a(s), y(s)) through the point of evaluation: first and second derivatives of a and
+/// y in its parameter s.
+#[derive(Debug, Clone, Copy)]
+pub struct Curve {
+    /// da/ds.
+    pub da: f64,
+    /// dy/ds.
+    pub dy: f64,
+    /// d²a/ds².
+    pub d2a: f64,
+    /// d²y/ds².
+    pub d2y: f64,
+}
+
+/// ln(1 - v) from ln v = `l` with its first and second derivatives from those of ln v, as in
 /// [`log1m_exp`] (one or two transcendental functions).
-fn complement(l: f64, dl: f64) -> (f64, f64) {
+fn complement(l: f64, dl: f64, d2l: f64) -> [f64; 3] {
     let l = l.min(0.0);
-    if l > -std::f64::consts::LN_2 {
+    let (value, v, rest) = if l > -std::f64::consts::LN_2 {
         let rest = -l.exp_m1();
-        (rest.ln(), -(1.0 - rest) / rest * dl)
+        (rest.ln(), 1.0 - rest, rest)
     } else {
         let v = l.exp();
-        ((-v).ln_1p(), -v / (1.0 - v) * dl)
-    }
+        ((-v).ln_1p(), v, 1.0 - v)
+    };
+    let ratio = v / rest;
+    [value, -ratio * dl, -ratio * d2l - ratio / rest * dl * dl]
 }
 
 /// ln Q(a, x) (`upper`) or ln P(a, x) at x = a·e^y, with its derivative along a direction in
@@ -143,34 +197,86 @@ pub fn log_gamma_side_derivative(
     da: f64,
     dy: f64,
 ) -> (f64, f64) {
+    let curve = Curve {
+        da,
+        dy,
+        d2a: 0.0,
+        d2y: 0.0,
+    };
+    let [value, derivative, _] = log_gamma_side::<false>(shape, y, em1, phi2, upper, &curve);
+    (value, derivative)
+}
+
+/// [`log_gamma_side_derivative`] along a `curve`, with the second derivative in its parameter
+/// too: [value, first, second]. Costs a few multiplications per term more, no transcendental
+/// function.
+pub fn log_gamma_side_second(
+    shape: &Shape,
+    y: f64,
+    em1: f64,
+    phi2: f64,
+    upper: bool,
+    curve: &Curve,
+) -> [f64; 3] {
+    log_gamma_side::<true>(shape, y, em1, phi2, upper, curve)
+}
+
+/// The series or continued fraction of [`log_gamma_side_second`], with the second derivative
+/// carried only when `SECOND` (else it is returned as 0).
+fn log_gamma_side<const SECOND: bool>(
+    shape: &Shape,
+    y: f64,
+    em1: f64,
+    phi2: f64,
+    upper: bool,
+    curve: &Curve,
+) -> [f64; 3] {
     let a = shape.a;
     if y.is_nan() || !(a > 0.0 && a.is_finite()) {
-        return (f64::NAN, f64::NAN);
+        return [f64::NAN; 3];
     }
     if y == f64::NEG_INFINITY {
         return if upper {
-            (0.0, 0.0)
+            [0.0; 3]
         } else {
-            (f64::NEG_INFINITY, 0.0)
+            [f64::NEG_INFINITY, 0.0, 0.0]
         };
     }
     let x = a * (em1 + 1.0);
     if x == f64::INFINITY || y == f64::INFINITY {
         return if upper {
-            (f64::NEG_INFINITY, 0.0)
+            [f64::NEG_INFINITY, 0.0, 0.0]
         } else {
-            (0.0, 0.0)
+            [0.0; 3]
         };
     }
-    let pre = 0.5 * shape.ln_a - LN_SQRT_2PI - shape.stirlerr - a * y * y * phi2;
-    let dpre = (0.5 / a - shape.stirlerr_derivative - y * y * phi2) * da - a * em1 * dy;
+    let Curve { da, dy, d2a, d2y } = *curve;
+    // pre = ½ ln a - ln √(2π) - stirlerr(a) - a·h(y) with h = e^y - 1 - y = y²φ₂,
+    // h' = e^y - 1, h'' = e^y.
+    let h = y * y * phi2;
+    let pre = 0.5 * shape.ln_a - LN_SQRT_2PI - shape.stirlerr - a * h;
+    let pre_a = 0.5 / a - shape.stirlerr_derivative - h;
+    let dpre = pre_a * da - a * em1 * dy;
     let dlnx = da / a + dy;
+    let (d2pre, d2lnx) = if SECOND {
+        let pre_aa = -0.5 / (a * a) - shape.stirlerr_second_derivative;
+        let d2pre = pre_aa * da * da + pre_a * d2a
+            - 2.0 * em1 * da * dy
+            - a * (em1 + 1.0) * dy * dy
+            - a * em1 * d2y;
+        let da_a = da / a;
+        (d2pre, d2a / a - da_a * da_a + d2y)
+    } else {
+        (0.0, 0.0)
+    };
     if uses_series(a, x) {
-        // Series for P; each term's logarithmic derivative is carried along.
+        // Series for P; each term's logarithmic derivatives are carried along.
         let mut term = 1.0;
         let mut sum = 1.0;
         let mut dsum = 0.0;
+        let mut d2sum = 0.0;
         let mut dlnterm = 0.0;
+        let mut d2lnterm = 0.0;
         let mut n = 1;
         while (n as f64) < MAX_TERMS {
             let inv = shape.reciprocal(n);
@@ -178,17 +284,29 @@ pub fn log_gamma_side_derivative(
             dlnterm += dlnx - da * inv;
             sum += term;
             dsum += term * dlnterm;
+            if SECOND {
+                let da_inv = da * inv;
+                d2lnterm += d2lnx - d2a * inv + da_inv * da_inv;
+                d2sum += term * (d2lnterm + dlnterm * dlnterm);
+            }
             if term < sum * 1e-17 {
                 break;
             }
             n += 1;
         }
         let log_p = pre - shape.ln_a + sum.ln();
-        let dlog_p = dpre - da / a + dsum / sum;
-        if upper {
-            complement(log_p, dlog_p)
+        let dlog_sum = dsum / sum;
+        let dlog_p = dpre - da / a + dlog_sum;
+        let d2log_p = if SECOND {
+            let da_a = da / a;
+            d2pre - (d2a / a - da_a * da_a) + d2sum / sum - dlog_sum * dlog_sum
         } else {
-            (log_p, dlog_p)
+            0.0
+        };
+        if upper {
+            complement(log_p, dlog_p, d2log_p)
+        } else {
+            [log_p, dlog_p, d2log_p]
         }
     } else {
         // Lentz continued fraction for Q, with the logarithmic derivatives of its two
@@ -196,13 +314,21 @@ pub fn log_gamma_side_derivative(
         let tiny = 1e-300;
         let mut b = x + 1.0 - a;
         let db = x * dlnx - da;
+        let d2b = if SECOND {
+            x * (d2lnx + dlnx * dlnx) - d2a
+        } else {
+            0.0
+        };
         // c is carried as its reciprocal too: two divisions per step instead of four.
         let mut c;
         let mut inv_c = tiny;
         let mut dlnc = 0.0;
+        let mut d2lnc = 0.0;
         let mut d = 1.0 / b;
         let mut dlnd = -db * d;
+        let mut d2lnd = if SECOND { -d2b * d + dlnd * dlnd } else { 0.0 };
         let mut dlnh = dlnd;
+        let mut d2lnh = d2lnd;
         let mut h = d;
         let mut i = 1.0;
         while i < MAX_TERMS {
@@ -210,12 +336,22 @@ pub fn log_gamma_side_derivative(
             let dan = i * da;
             b += 2.0;
             let denominator_derivative = dan * d + an * dlnd * d + db;
+            let denominator_second = if SECOND {
+                i * d2a * d + 2.0 * dan * dlnd * d + an * (dlnd * dlnd + d2lnd) * d + d2b
+            } else {
+                0.0
+            };
             d = an * d + b;
             if d.abs() < tiny {
                 d = tiny;
             }
             c = b + an * inv_c;
             let dc = db + (dan - an * dlnc) * inv_c;
+            let d2c = if SECOND {
+                d2b + (i * d2a - 2.0 * dan * dlnc + an * (dlnc * dlnc - d2lnc)) * inv_c
+            } else {
+                0.0
+            };
             if c.abs() < tiny {
                 c = tiny;
             }
@@ -227,19 +363,29 @@ pub fn log_gamma_side_derivative(
             h *= delta;
             let step = dlnd + dlnc;
             dlnh += step;
+            let settled = if SECOND {
+                d2lnc = d2c * inv_c - dlnc * dlnc;
+                d2lnd = -denominator_second * d + dlnd * dlnd;
+                let step2 = d2lnd + d2lnc;
+                d2lnh += step2;
+                step2.abs() <= 1e-15 * (d2lnh.abs() + dlnh * dlnh)
+            } else {
+                true
+            };
             // The derivative must have settled too: at a = 1 the first partial numerator is 0,
             // which ends the value's fraction at once but not its derivative's.
-            if (delta - 1.0).abs() < 1e-16 && step.abs() <= 1e-15 * dlnh.abs() {
+            if (delta - 1.0).abs() < 1e-16 && step.abs() <= 1e-15 * dlnh.abs() && settled {
                 break;
             }
             i += 1.0;
         }
         let log_q = pre + h.ln();
         let dlog_q = dpre + dlnh;
+        let d2log_q = d2pre + d2lnh;
         if upper {
-            (log_q, dlog_q)
+            [log_q, dlog_q, d2log_q]
         } else {
-            complement(log_q, dlog_q)
+            complement(log_q, dlog_q, d2log_q)
         }
     }
 }
@@ -398,6 +544,95 @@ mod tests {
                     }
                 }
             }
+        }
+    }
+
+    #[test]
+    fn second_derivatives_along_a_curve_match_differences_of_the_first() {
+        // Along (a(s), y(s)) = (a + s·da + s²·d2a/2, y + s·dy + s²·d2y/2), the second derivative
+        // of ln P or ln Q must equal central differences of the first derivative (tied to the
+        // values by the test above) on both sides of the series / continued-fraction switch;
+        // the curve of the generalized gamma, a = q⁻², y = q·w, among them.
+        for &a in &[0.4f64, 1.0, 3.7, 25.0, 900.0, 1e4] {
+            for &y in &[-3.0, -0.6, -0.02, 0.0, 0.03, 0.4, 1.5, 4.0] {
+                let q = a.sqrt().recip();
+                let generalized_gamma = Curve {
+                    da: -2.0 * a * a.sqrt(),
+                    dy: y / q,
+                    d2a: 6.0 * a * a,
+                    d2y: 0.0,
+                };
+                for curve in [
+                    Curve {
+                        da: 1.0,
+                        dy: 0.0,
+                        d2a: 0.0,
+                        d2y: 0.0,
+                    },
+                    Curve {
+                        da: -0.3 * a,
+                        dy: 0.7,
+                        d2a: 0.2 * a,
+                        d2y: -0.5,
+                    },
+                    generalized_gamma,
+                ] {
+                    // Step in s small against a and against the curvature of the path.
+                    let h = 1e-3
+                        * (a / curve.da.abs())
+                            .min(1.0)
+                            .min(1.0 / curve.dy.abs().max(1e-9));
+                    for upper in [false, true] {
+                        let first = |s: f64| {
+                            let (aa, yy) = (
+                                a + s * curve.da + 0.5 * s * s * curve.d2a,
+                                y + s * curve.dy + 0.5 * s * s * curve.d2y,
+                            );
+                            let em1 = yy.exp_m1();
+                            let phi2 = expm1_minus_x_over_x2(yy);
+                            let (da, dy) = (curve.da + s * curve.d2a, curve.dy + s * curve.d2y);
+                            log_gamma_side_derivative(&Shape::new(aa), yy, em1, phi2, upper, da, dy)
+                        };
+                        let em1 = y.exp_m1();
+                        let phi2 = expm1_minus_x_over_x2(y);
+                        let [v, dv, d2v] =
+                            log_gamma_side_second(&Shape::new(a), y, em1, phi2, upper, &curve);
+                        let (v0, dv0) = first(0.0);
+                        if v0 < -700.0 {
+                            continue;
+                        }
+                        assert!((v - v0).abs() <= 1e-13 * v0.abs().max(1e-3), "value");
+                        assert!((dv - dv0).abs() <= 1e-12 * dv0.abs().max(1e-3), "first");
+                        // Five-point central difference (error of order h⁴).
+                        let numeric = (8.0 * (first(h).1 - first(-h).1)
+                            - (first(2.0 * h).1 - first(-2.0 * h).1))
+                            / (12.0 * h);
+                        assert!(
+                            (d2v - numeric).abs() <= 1e-5 * numeric.abs().max(1e-2),
+                            "a={a} y={y} upper={upper} {curve:?}: {d2v} vs {numeric}"
+                        );
+                    }
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn stirling_second_derivative_and_trigamma_match_differences_and_a_known_value() {
+        // ψ₁(1) = π²/6 (Abramowitz and Stegun, 1964, 6.4.2); the second derivative of the
+        // Stirling remainder against differences of its first on both sides of a = 10.
+        let pi2_6 = std::f64::consts::PI * std::f64::consts::PI / 6.0;
+        assert!((trigamma(1.0) - pi2_6).abs() < 1e-14);
+        // ψ₁(½) = π²/2 (same source, 6.4.4).
+        assert!((trigamma(0.5) - 3.0 * pi2_6).abs() < 1e-13);
+        for &a in &[0.3, 2.0, 9.99, 10.0, 57.0, 4e3] {
+            let h = 1e-4 * a;
+            let numeric = (stirlerr_derivative(a + h) - stirlerr_derivative(a - h)) / (2.0 * h);
+            let d2 = stirlerr_second_derivative(a);
+            assert!(
+                (d2 - numeric).abs() <= 1e-6 * numeric.abs(),
+                "{a}: {d2} vs {numeric}"
+            );
         }
     }
 
