@@ -226,7 +226,7 @@ fn sums<const HESSIAN: bool>(theta: &[f64], data: &FitData) -> (f64, [f64; 9]) {
         // One exponential per record serves the density, its derivatives and the survival.
         let y = q * w;
         let em1 = y.exp_m1();
-        let (phi2, expm1_over_y, dphi2) = phi_terms(y, em1);
+        let (phi2, expm1_over_y, dphi2, inv_y) = phi_terms(y, em1);
         // ln f·σ·t = -ln √(2π) - stirlerr(q⁻²) - w²φ₂(qw), as `log_density_w`.
         let log_f = -LN_SQRT_2PI - a_term - w * w * phi2;
         // d(w²φ₂)/dw = w·(e^(qw) - 1)/(qw); d(w²φ₂(qw))/dq = w³φ₂'(qw).
@@ -246,7 +246,7 @@ fn sums<const HESSIAN: bool>(theta: &[f64], data: &FitData) -> (f64, [f64; 9]) {
                 out[3] -= d * g2 * inv_sigma2;
                 out[4] -= d * (w * g2 + dg_dw) * inv_sigma;
                 out[5] -= d * w * (dg_dw + w * g2);
-                let (psi, d2phi2) = second_phi_terms(y, em1, expm1_over_y, dphi2);
+                let (psi, d2phi2) = second_phi_terms(y, inv_y, em1, expm1_over_y, dphi2);
                 out[6] += d * w2 * psi * inv_sigma;
                 out[7] += d * w3 * psi;
                 out[8] += d * (-d2a_term_dq2 - w2 * w2 * d2phi2);
@@ -300,24 +300,26 @@ fn sums<const HESSIAN: bool>(theta: &[f64], data: &FitData) -> (f64, [f64; 9]) {
     })
 }
 
-/// φ₂(y) = (e^y - 1 - y)/y², (e^y - 1)/y and φ₂'(y) given `em1` = e^y - 1: one division
-/// away from 0, the series of the separate functions near it (|y| < 0.05, where they switch).
-fn phi_terms(y: f64, em1: f64) -> (f64, f64, f64) {
+/// φ₂(y) = (e^y - 1 - y)/y², (e^y - 1)/y, φ₂'(y) and 1/y given `em1` = e^y - 1: one division
+/// away from 0, the series of the separate functions near it (|y| < 0.05, where they switch;
+/// 1/y is then not needed and returned as 0).
+fn phi_terms(y: f64, em1: f64) -> (f64, f64, f64, f64) {
     if y.abs() < 0.05 {
         let phi2 = expm1_minus_x_over_x2_with(y, em1);
         let derivative = expm1_minus_x_over_x2_derivative(y, em1, phi2);
-        (phi2, expm1_over_x_with(y, em1), derivative)
+        (phi2, expm1_over_x_with(y, em1), derivative, 0.0)
     } else {
         let r = 1.0 / y;
         let ratio = em1 * r;
         let phi2 = (ratio - 1.0) * r;
-        (phi2, ratio, (ratio - 2.0 * phi2) * r)
+        (phi2, ratio, (ratio - 2.0 * phi2) * r, r)
     }
 }
 
 /// ψ(y) = d((e^y - 1)/y)/dy = 3φ₂' + y·φ₂'' and φ₂''(y), given `em1` = e^y - 1, `ratio` =
-/// (e^y - 1)/y and `dphi2` = φ₂'(y) from [`phi_terms`]; by their series where that switches.
-fn second_phi_terms(y: f64, em1: f64, ratio: f64, dphi2: f64) -> (f64, f64) {
+/// (e^y - 1)/y, `dphi2` = φ₂'(y) and `inv_y` = 1/y from [`phi_terms`]; by their series where
+/// that switches.
+fn second_phi_terms(y: f64, inv_y: f64, em1: f64, ratio: f64, dphi2: f64) -> (f64, f64) {
     if y.abs() < 0.05 {
         // ψ = Σ (k+1) y^k/(k+2)!, φ₂'' = Σ (k+1)(k+2) y^k/(k+4)!.
         let mut psi = 0.0;
@@ -333,9 +335,8 @@ fn second_phi_terms(y: f64, em1: f64, ratio: f64, dphi2: f64) -> (f64, f64) {
         }
         (psi, d2phi2)
     } else {
-        let r = 1.0 / y;
-        let psi = (em1 + 1.0 - ratio) * r;
-        (psi, (psi - 3.0 * dphi2) * r)
+        let psi = (em1 + 1.0 - ratio) * inv_y;
+        (psi, (psi - 3.0 * dphi2) * inv_y)
     }
 }
 

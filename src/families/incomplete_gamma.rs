@@ -188,6 +188,7 @@ fn complement(l: f64, dl: f64, d2l: f64) -> [f64; 3] {
 /// continued fraction as [`log_gamma_pq`]). The caller passes `em1` = e^y - 1 and
 /// `phi2` = (e^y - 1 - y)/y², which it needs anyway, so a call costs one logarithm, plus one
 /// or two transcendental functions when the wanted side is the complement of the one computed.
+#[inline]
 pub fn log_gamma_side_derivative(
     shape: &Shape,
     y: f64,
@@ -210,6 +211,7 @@ pub fn log_gamma_side_derivative(
 /// [`log_gamma_side_derivative`] along a `curve`, with the second derivative in its parameter
 /// too: [value, first, second]. Costs a few multiplications per term more, no transcendental
 /// function.
+#[inline]
 pub fn log_gamma_side_second(
     shape: &Shape,
     y: f64,
@@ -222,7 +224,9 @@ pub fn log_gamma_side_second(
 }
 
 /// The series or continued fraction of [`log_gamma_side_second`], with the second derivative
-/// carried only when `SECOND` (else it is returned as 0).
+/// carried only when `SECOND` (else it is returned as 0). Inlined, so that what depends only
+/// on the shape and the curve's a-derivatives is computed once per pass.
+#[inline(always)]
 fn log_gamma_side<const SECOND: bool>(
     shape: &Shape,
     y: f64,
