@@ -516,6 +516,12 @@ pub(crate) struct Point {
 pub(crate) trait Likelihood: Sync {
     /// Log-likelihood, gradient (and analytic curvature where there is one) at `theta`.
     fn evaluate(&self, theta: Vec<f64>) -> Point;
+    /// Log-likelihood and gradient at `theta`, without curvature where leaving it out is
+    /// cheaper (the start of the large-data Newton steps, whose first step uses the
+    /// subsample's curvature).
+    fn evaluate_first_order(&self, theta: Vec<f64>) -> Point {
+        self.evaluate(theta)
+    }
     /// Observed information at an evaluated point (differences forward with `steps`, else
     /// central, where it has no analytic curvature).
     fn information_at(&self, point: &Point, steps: Option<&[f64]>) -> Vec<Vec<f64>>;
@@ -532,6 +538,15 @@ struct OneSample<'a> {
 impl Likelihood for OneSample<'_> {
     fn evaluate(&self, theta: Vec<f64>) -> Point {
         evaluate(self.family, self.data, theta)
+    }
+    fn evaluate_first_order(&self, theta: Vec<f64>) -> Point {
+        let (loglik, grad) = self.family.loglik_grad(&theta, self.data);
+        Point {
+            theta,
+            loglik,
+            grad,
+            curvature: None,
+        }
     }
     fn information_at(&self, point: &Point, steps: Option<&[f64]>) -> Vec<Vec<f64>> {
         information_at(self.family, self.data, point, steps)
@@ -630,7 +645,8 @@ const MAX_NEWTON: usize = 50;
 const NEWTON_GRADIENT_TOLERANCE: f64 = 1e-3 * GRADIENT_TOLERANCE;
 
 /// Newton iterations with step halving from a point near the optimum. The curvature is the
-/// differenced observed information at each iterate, or, when `fixed_covariance` is given,
+/// observed information at each iterate (analytic where the point carries its full Hessian,
+/// else differenced), or, at iterates without a full Hessian, when `fixed_covariance` is given,
 /// that inverse information refined after each accepted step by the BFGS secant update (one
 /// evaluation over the data per iteration, as used on large data with a subsample's
 /// curvature: the update corrects the subsample's curvature along the steps taken, so the
@@ -662,9 +678,11 @@ pub(crate) fn newton_of(
         if max_abs(&point.grad) / n_subjects < NEWTON_GRADIENT_TOLERANCE {
             break;
         }
-        let covariance = match &secant {
-            Some(c) => c.clone(),
-            None => match invert_positive_definite(&lik.information_at(&point, None)) {
+        // A point's own full analytic Hessian comes before the secant-refined covariance.
+        let exact = point.full_hessian().is_some();
+        let covariance = match (&secant, exact) {
+            (Some(c), false) => c.clone(),
+            _ => match invert_positive_definite(&lik.information_at(&point, None)) {
                 Some(c) => c,
                 None => break,
             },
@@ -721,7 +739,7 @@ pub(crate) fn newton_of(
                     .iter()
                     .zip(&trial.grad)
                     .fold(0.0f64, |m, (a, b)| m.max((a - b).abs()));
-                if let Some(c) = secant.as_mut() {
+                if let Some(c) = secant.as_mut().filter(|_| trial.full_hessian().is_none()) {
                     if change / n_subjects > SECANT_MIN_CHANGE {
                         secant_update(c, &point, &trial);
                     }
@@ -828,16 +846,25 @@ pub(crate) fn warm_newton(
     start: Vec<f64>,
 ) -> Option<(Point, Option<Vec<f64>>)> {
     let sub_best = newton_of(sub, sub.evaluate(start), None);
-    if sub_best.full_hessian().is_some() {
+    let ratio = full.n_subjects() / sub.n_subjects();
+    if let Some(hessian) = sub_best.full_hessian() {
         // Analytic curvature: exact Newton steps on the full data, one pass each, and the
-        // covariance from the last.
-        let start = full.evaluate(sub_best.theta);
+        // covariance from the last. The first step, from a start evaluated without curvature
+        // (a cheaper pass), takes the subsample's Hessian scaled to the full size.
+        let first = invert_positive_definite(&negated(hessian.to_vec())).map(|c| {
+            c.into_iter()
+                .map(|row| row.into_iter().map(|x| x / ratio).collect())
+                .collect::<Vec<Vec<f64>>>()
+        });
+        let start = match first {
+            Some(_) => full.evaluate_first_order(sub_best.theta),
+            None => full.evaluate(sub_best.theta),
+        };
         if !start.loglik.is_finite() {
             return None;
         }
-        return Some((newton_of(full, start, None), None));
+        return Some((newton_of(full, start, first.as_deref()), None));
     }
-    let ratio = full.n_subjects() / sub.n_subjects();
     let sub_covariance = invert_positive_definite(&sub.information_at(&sub_best, None))?;
     let covariance: Vec<Vec<f64>> = sub_covariance
         .into_iter()
