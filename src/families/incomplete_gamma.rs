@@ -144,14 +144,6 @@ impl Shape {
             reciprocals: std::array::from_fn(|i| 1.0 / (a + (i + 1) as f64)),
         }
     }
-
-    /// 1/(a + n) for the series term n ≥ 1.
-    fn reciprocal(&self, n: usize) -> f64 {
-        match self.reciprocals.get(n - 1) {
-            Some(&r) => r,
-            None => 1.0 / (self.a + n as f64),
-        }
-    }
 }
 
 /// A curve (a(s), y(s)) through the point of evaluation: first and second derivatives of a and
@@ -281,9 +273,8 @@ fn log_gamma_side<const SECOND: bool>(
         let mut d2sum = 0.0;
         let mut dlnterm = 0.0;
         let mut d2lnterm = 0.0;
-        let mut n = 1;
-        while (n as f64) < MAX_TERMS {
-            let inv = shape.reciprocal(n);
+        // Adds the term with 1/(a + n) = `inv`; true once the series has converged.
+        let mut add = |inv: f64| {
             term *= x * inv;
             dlnterm += dlnx - da * inv;
             sum += term;
@@ -293,9 +284,13 @@ fn log_gamma_side<const SECOND: bool>(
                 d2lnterm += d2lnx - d2a * inv + da_inv * da_inv;
                 d2sum += term * (d2lnterm + dlnterm * dlnterm);
             }
-            if term < sum * 1e-17 {
-                break;
-            }
+            term < sum * 1e-17
+        };
+        // The shape's reciprocals first (no division, no bounds check), then computed ones.
+        let mut converged = shape.reciprocals.iter().any(|&inv| add(inv));
+        let mut n = RECIPROCALS + 1;
+        while !converged && (n as f64) < MAX_TERMS {
+            converged = add(1.0 / (a + n as f64));
             n += 1;
         }
         let log_p = pre - shape.ln_a + sum.ln();
