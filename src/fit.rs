@@ -1280,13 +1280,12 @@ pub fn fit_dataset(
     let mut fits = Vec::new();
     let mut arms = Vec::new();
     for arm in &data.arms {
-        let km = KaplanMeier::from_records(&arm.records);
         arms.push(ArmSummary {
             arm: arm.arm.clone(),
             n: arm.records.len(),
             events: arm.events(),
             max_time: arm.max_time(),
-            km_median: km.median(),
+            km_median: KaplanMeier::median_of(&arm.records),
         });
         fits.extend(fit_arm(families, &arm.records, arm.arm.as_deref()));
     }
