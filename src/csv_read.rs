@@ -266,6 +266,34 @@ impl<'a> CsvReader<'a> {
         no_rows(&self.file)
     }
 
+    /// Fast path for blocks of plain rows: hands `row` each line's fields (split at the
+    /// delimiter, a CRLF's CR removed) with its physical line, in order. Returns `false` as
+    /// soon as a line needs the full rules of [`Self::next_row`] (a quote, a lone CR, a blank
+    /// line, comment lines, a field count other than the header's) or `row` returns `false`;
+    /// the caller then drops what it took and reads the block with `next_row`, which gives the
+    /// same rows and the errors. For a reader not yet read from.
+    pub fn plain_rows(&self, mut row: impl FnMut(&[&'a [u8]], u64) -> bool) -> bool {
+        if self.comments || self.reader.position().byte() != 0 || self.body.contains(&b'"') {
+            return false;
+        }
+        let body = &self.body[self.first..];
+        let width = self.headers.len();
+        let mut fields: Vec<&'a [u8]> = Vec::with_capacity(width);
+        for (line, text) in (self.base_line..).zip(body.split_inclusive(|&b| b == b'\n')) {
+            let text = text.strip_suffix(b"\n").unwrap_or(text);
+            let text = text.strip_suffix(b"\r").unwrap_or(text);
+            if text.is_empty() || text.contains(&b'\r') {
+                return false;
+            }
+            fields.clear();
+            fields.extend(text.split(|&b| b == self.delimiter));
+            if fields.len() != width || !row(&fields, line) {
+                return false;
+            }
+        }
+        true
+    }
+
     /// The next data row, skipping blank lines and rows whose fields are all empty (spreadsheets
     /// write `,,` for an empty row). Every row returned has at least as many fields as the
     /// header and no non-empty field beyond it: a row that does not is refused, since it means

@@ -41,23 +41,55 @@ pub struct FitData {
 }
 
 impl FitData {
-    /// Collapses sorted, validated records (times > 0, at least one event).
+    /// Collapses sorted, validated records (times > 0, at least one event). Large inputs are
+    /// collapsed in pieces in parallel, each piece cut where the time changes, so the result
+    /// is the one of a single pass.
     pub fn from_records(records: &[Record]) -> FitData {
-        let mut time: Vec<f64> = Vec::with_capacity(records.len());
-        let mut events: Vec<f64> = Vec::with_capacity(records.len());
-        let mut total: Vec<f64> = Vec::with_capacity(records.len());
-        for r in records {
-            if time.last() != Some(&r.time) {
-                time.push(r.time);
-                events.push(0.0);
-                total.push(0.0);
+        let pieces = if records.len() < 1 << 16 { 1 } else { 16 };
+        let mut bounds = vec![0];
+        for k in 1..pieces {
+            let mut b = (records.len() * k / pieces).max(bounds[k - 1]);
+            while b > 0 && b < records.len() && records[b].time == records[b - 1].time {
+                b += 1;
             }
-            let last = time.len() - 1;
-            total[last] += 1.0;
-            if r.event {
-                events[last] += 1.0;
-            }
+            bounds.push(b);
         }
+        bounds.push(records.len());
+        let pieces: Vec<&[Record]> = bounds.windows(2).map(|w| &records[w[0]..w[1]]).collect();
+        // Distinct times per piece: its first record's, and every change after it.
+        let counts: Vec<usize> = pieces
+            .par_iter()
+            .map(|p| {
+                usize::from(!p.is_empty()) + p.windows(2).filter(|w| w[0].time != w[1].time).count()
+            })
+            .collect();
+        let n = counts.iter().sum();
+        let (mut time, mut events, mut total) = (vec![0.0; n], vec![0.0; n], vec![0.0; n]);
+        let mut slots = Vec::with_capacity(pieces.len());
+        let (mut t, mut e, mut c) = (&mut time[..], &mut events[..], &mut total[..]);
+        for &k in &counts {
+            let (t0, t1) = std::mem::take(&mut t).split_at_mut(k);
+            let (e0, e1) = std::mem::take(&mut e).split_at_mut(k);
+            let (c0, c1) = std::mem::take(&mut c).split_at_mut(k);
+            slots.push((t0, e0, c0));
+            (t, e, c) = (t1, e1, c1);
+        }
+        pieces
+            .into_par_iter()
+            .zip(slots)
+            .for_each(|(piece, (time, events, total))| {
+                let mut last = usize::MAX;
+                for r in piece {
+                    if last == usize::MAX || time[last] != r.time {
+                        last = last.wrapping_add(1);
+                        time[last] = r.time;
+                    }
+                    total[last] += 1.0;
+                    if r.event {
+                        events[last] += 1.0;
+                    }
+                }
+            });
         Self::from_collapsed(time, events, total, None)
     }
 
@@ -69,12 +101,25 @@ impl FitData {
         total: Vec<f64>,
         km_points: Option<Vec<(f64, f64)>>,
     ) -> FitData {
-        let ln_time: Vec<f64> = time.par_iter().map(|t| t.ln()).collect();
-        let n_subjects = total.iter().sum();
-        let n_events = events.iter().sum();
-        let total_time = time.iter().zip(&total).map(|(t, n)| t * n).sum();
-        let km_points =
-            km_points.unwrap_or_else(|| km_points_for_starts(&ln_time, &events, &total));
+        // Sums in file order, as a plain sum of each column would give them.
+        let (mut n_subjects, mut n_events, mut total_time) = (0.0, 0.0, 0.0);
+        for i in 0..time.len() {
+            n_subjects += total[i];
+            n_events += events[i];
+            total_time += time[i] * total[i];
+        }
+        let (ln_time, walked) = rayon::join(
+            || time.par_iter().map(|t| t.ln()).collect::<Vec<f64>>(),
+            || {
+                km_points
+                    .is_none()
+                    .then(|| km_points_for_starts(&events, &total, n_subjects))
+            },
+        );
+        let km_points = match walked {
+            Some(points) => points.into_iter().map(|(i, s)| (ln_time[i], s)).collect(),
+            None => km_points.unwrap_or_default(),
+        };
         FitData {
             time,
             ln_time,
@@ -162,34 +207,39 @@ impl FitData {
 /// Most Kaplan–Meier points kept for starting values; more add time, not better starts.
 const MAX_KM_POINTS: usize = 2_000;
 
-/// Kaplan–Meier (ln t, S) at event times with 0 < S < 1, thinned evenly to at most
-/// [`MAX_KM_POINTS`]; only the product-limit estimate is needed here, not its interval.
-fn km_points_for_starts(ln_time: &[f64], events: &[f64], total: &[f64]) -> Vec<(f64, f64)> {
-    // The product-limit points with 0 < S < 1, in time order, to `visit`.
-    let walk = |visit: &mut dyn FnMut(f64, f64)| {
-        let mut at_risk: f64 = total.iter().sum();
+/// The product-limit points (ln t, S) with 0 < S < 1, at most about [`MAX_KM_POINTS`] of them
+/// (every stride-th); only the estimate is needed here, not its interval. The indices are
+/// kept first, so this can run beside the logarithms of the times.
+fn km_points_for_starts(events: &[f64], total: &[f64], n_subjects: f64) -> Vec<(usize, f64)> {
+    // `visit(i, S, keep)` at every time; the estimate is multiplied by a factor of exactly 1
+    // at times without events instead of branching there (event and censoring times
+    // alternate unpredictably in large data).
+    fn walk(events: &[f64], total: &[f64], n: f64, mut visit: impl FnMut(usize, f64, bool)) {
+        let mut at_risk = n;
         let mut survival = 1.0;
-        for i in 0..ln_time.len() {
-            if events[i] > 0.0 {
-                survival *= 1.0 - events[i] / at_risk;
-                if survival > 0.0 && survival < 1.0 {
-                    visit(ln_time[i], survival);
-                }
-            }
+        for i in 0..events.len() {
+            survival *= 1.0 - events[i] / at_risk;
+            visit(
+                i,
+                survival,
+                events[i] > 0.0 && survival > 0.0 && survival < 1.0,
+            );
             at_risk -= total[i];
         }
-    };
-    // Counted first, so that only every stride-th point is kept (no vector of them all).
+    }
     let mut count = 0usize;
-    walk(&mut |_, _| count += 1);
+    walk(events, total, n_subjects, |_, _, keep| {
+        count += usize::from(keep)
+    });
     let stride = count.div_ceil(MAX_KM_POINTS).max(1);
     let mut points = Vec::with_capacity(count.min(MAX_KM_POINTS));
-    let mut seen = 0usize;
-    walk(&mut |x, s| {
-        if seen % stride == 0 {
-            points.push((x, s));
+    let (mut seen, mut next) = (0usize, 0usize);
+    walk(events, total, n_subjects, |i, s, keep| {
+        if keep & (seen == next) {
+            points.push((i, s));
+            next += stride;
         }
-        seen += 1;
+        seen += usize::from(keep);
     });
     points
 }
@@ -1307,13 +1357,12 @@ pub fn fit_dataset(
     let mut fits = Vec::new();
     let mut arms = Vec::new();
     for arm in &data.arms {
-        let km = KaplanMeier::from_records(&arm.records);
         arms.push(ArmSummary {
             arm: arm.arm.clone(),
             n: arm.records.len(),
             events: arm.events(),
             max_time: arm.max_time(),
-            km_median: km.median(),
+            km_median: KaplanMeier::median_of(&arm.records),
         });
         fits.extend(fit_arm(families, &arm.records, arm.arm.as_deref()));
     }
@@ -1369,6 +1418,43 @@ pub(crate) fn assert_gradient_matches_differences(
 mod tests {
     use super::*;
     use crate::families;
+
+    #[test]
+    fn collapsing_in_pieces_counts_every_time_once() {
+        // Against counts kept in an ordered map (a reference written here): ties long enough
+        // to straddle the pieces' nominal cuts, a single time, and all-distinct times.
+        for (n, distinct) in [
+            (200_000usize, 7u64),
+            (200_000, 5_000),
+            (100_000, 1),
+            (70_000, u64::MAX),
+        ] {
+            let mut state = n as u64;
+            let mut next = || {
+                state ^= state << 13;
+                state ^= state >> 7;
+                state ^= state << 17;
+                state
+            };
+            let pairs: Vec<(f64, bool)> = (0..n)
+                .map(|_| (1.0 + (next() % distinct) as f64 / 8.0, next() % 3 == 0))
+                .collect();
+            let data = FitData::from_records(&records(&pairs));
+            let mut counts: std::collections::BTreeMap<u64, (f64, f64)> = Default::default();
+            for &(t, e) in &pairs {
+                let c = counts.entry(t.to_bits()).or_default();
+                c.0 += f64::from(u8::from(e));
+                c.1 += 1.0;
+            }
+            let time: Vec<f64> = counts.keys().map(|&b| f64::from_bits(b)).collect();
+            let events: Vec<f64> = counts.values().map(|c| c.0).collect();
+            let total: Vec<f64> = counts.values().map(|c| c.1).collect();
+            assert_eq!(data.time, time, "{n} {distinct}");
+            assert_eq!(data.events, events, "{n} {distinct}");
+            assert_eq!(data.total, total, "{n} {distinct}");
+            assert_eq!(data.n_subjects, n as f64);
+        }
+    }
 
     fn records(pairs: &[(f64, bool)]) -> Vec<Record> {
         let mut r: Vec<Record> = pairs

@@ -56,45 +56,69 @@ pub struct MedianEstimate {
 impl KaplanMeier {
     /// Estimates from records sorted by time (as a validated dataset holds them).
     pub fn from_records(records: &[Record]) -> KaplanMeier {
-        let n = records.len();
-        let mut steps = Vec::new();
-        let mut at_risk = n;
-        let mut survival = 1.0;
-        let mut greenwood = 0.0;
-        let mut i = 0;
-        while i < n {
-            let time = records[i].time;
-            let mut events = 0;
-            let mut censored = 0;
-            while i < n && records[i].time == time {
-                if records[i].event {
-                    events += 1;
-                } else {
-                    censored += 1;
+        let steps = Tallies::new(records)
+            .map(|t| {
+                let (lower, upper) = log_log_interval(t.survival, t.greenwood);
+                KmStep {
+                    time: t.time,
+                    at_risk: t.at_risk,
+                    events: t.events,
+                    censored: t.censored,
+                    survival: t.survival,
+                    std_err: t.survival * t.greenwood.sqrt(),
+                    lower,
+                    upper,
                 }
-                i += 1;
-            }
-            if events > 0 {
-                survival *= 1.0 - events as f64 / at_risk as f64;
-                if events < at_risk {
-                    greenwood += events as f64 / (at_risk as f64 * (at_risk - events) as f64);
-                }
-            }
-            let std_err = survival * greenwood.sqrt();
-            let (lower, upper) = log_log_interval(survival, greenwood);
-            steps.push(KmStep {
-                time,
-                at_risk,
-                events,
-                censored,
-                survival,
-                std_err,
-                lower,
-                upper,
-            });
-            at_risk -= events + censored;
+            })
+            .collect();
+        KaplanMeier {
+            steps,
+            n: records.len(),
         }
-        KaplanMeier { steps, n }
+    }
+
+    /// The median and its interval of [`Self::from_records`]`(records)`, without a step per
+    /// distinct time: limits are worked out at event times only, in parallel batches, and only
+    /// until each is found (the upper limit only where S ≤ 0.5, since it is never below S).
+    /// On a million records this is one pass of arithmetic instead of a million intervals.
+    pub fn median_of(records: &[Record]) -> MedianEstimate {
+        use rayon::prelude::*;
+        const BATCH: usize = 1 << 15;
+        let mut out = MedianEstimate {
+            median: None,
+            lower: None,
+            upper: None,
+        };
+        // Time, S and the Greenwood sum at event times.
+        let mut batch: Vec<(f64, f64, f64)> = Vec::with_capacity(BATCH);
+        let mut tallies = Tallies::new(records).peekable();
+        while tallies.peek().is_some() {
+            batch.clear();
+            batch.extend(
+                tallies
+                    .by_ref()
+                    .filter(|t| t.events > 0)
+                    .take(BATCH)
+                    .map(|t| (t.time, t.survival, t.greenwood)),
+            );
+            let first = |pick: &(dyn Fn(f64, f64) -> bool + Sync)| {
+                batch
+                    .par_iter()
+                    .find_first(|&&(_, s, g)| pick(s, g))
+                    .map(|b| b.0)
+            };
+            out.median = out.median.or_else(|| first(&|s, _| s <= 0.5));
+            out.lower = out
+                .lower
+                .or_else(|| first(&|s, g| log_log_interval(s, g).0 <= 0.5));
+            out.upper = out
+                .upper
+                .or_else(|| first(&|s, g| s <= 0.5 && log_log_interval(s, g).1 <= 0.5));
+            if out.upper.is_some() && out.lower.is_some() && out.median.is_some() {
+                break;
+            }
+        }
+        out
     }
 
     /// S(t): the estimate just after the last distinct time ≤ t (1 before the first).
@@ -126,6 +150,74 @@ impl KaplanMeier {
             lower: first(|s| s.lower),
             upper: first(|s| s.upper),
         }
+    }
+}
+
+/// Counts and running estimates at one distinct time.
+struct Tally {
+    time: f64,
+    at_risk: usize,
+    events: usize,
+    censored: usize,
+    /// S just after `time`.
+    survival: f64,
+    /// Greenwood sum Σ d/(n(n-d)) up to `time`.
+    greenwood: f64,
+}
+
+/// The distinct times of records sorted by time, with the product-limit estimate and the
+/// Greenwood sum carried along.
+struct Tallies<'a> {
+    records: &'a [Record],
+    i: usize,
+    at_risk: usize,
+    survival: f64,
+    greenwood: f64,
+}
+
+impl<'a> Tallies<'a> {
+    fn new(records: &'a [Record]) -> Self {
+        Tallies {
+            records,
+            i: 0,
+            at_risk: records.len(),
+            survival: 1.0,
+            greenwood: 0.0,
+        }
+    }
+}
+
+impl Iterator for Tallies<'_> {
+    type Item = Tally;
+
+    fn next(&mut self) -> Option<Tally> {
+        let records = self.records;
+        let time = records.get(self.i)?.time;
+        let (mut events, mut censored) = (0, 0);
+        while let Some(r) = records.get(self.i).filter(|r| r.time == time) {
+            if r.event {
+                events += 1;
+            } else {
+                censored += 1;
+            }
+            self.i += 1;
+        }
+        let at_risk = self.at_risk;
+        if events > 0 {
+            self.survival *= 1.0 - events as f64 / at_risk as f64;
+            if events < at_risk {
+                self.greenwood += events as f64 / (at_risk as f64 * (at_risk - events) as f64);
+            }
+        }
+        self.at_risk -= events + censored;
+        Some(Tally {
+            time,
+            at_risk,
+            events,
+            censored,
+            survival: self.survival,
+            greenwood: self.greenwood,
+        })
     }
 }
 
@@ -211,6 +303,45 @@ mod tests {
         assert_eq!(km.at_risk_at(36.0), 0);
         // Median: first time with S ≤ 0.5 is week 23 (textbook, from memory).
         assert_eq!(km.median().median, Some(23.0));
+        assert_eq!(KaplanMeier::median_of(&six_mp()), km.median());
+    }
+
+    #[test]
+    fn median_without_steps_equals_the_median_of_the_steps() {
+        // Seeded records (splitmix64, Steele, Lea and Flood 2014) with ties and heavy
+        // censoring, some never reaching S = 0.5 and some with more event times than a batch,
+        // so the limits cross in a later batch.
+        let mut state = 7u64;
+        let mut next = move || {
+            state = state.wrapping_add(0x9E37_79B9_7F4A_7C15);
+            let mut z = state;
+            z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+            z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+            z ^ (z >> 31)
+        };
+        for (n, distinct, event_percent) in [
+            (1, 1, 100),
+            (5, 3, 50),
+            (200, 40, 30),
+            (200, 1000, 10),
+            (3000, 50, 60),
+            (200_000, 1 << 40, 70),
+            (200_000, 1 << 40, 8),
+        ] {
+            let mut records: Vec<Record> = (0..n)
+                .map(|_| Record {
+                    time: 1.0 + (next() % distinct) as f64,
+                    event: next() % 100 < event_percent,
+                })
+                .collect();
+            records.sort_by(|a, b| a.time.total_cmp(&b.time).then(b.event.cmp(&a.event)));
+            let full = KaplanMeier::from_records(&records).median();
+            assert_eq!(
+                KaplanMeier::median_of(&records),
+                full,
+                "n {n} events {event_percent}%"
+            );
+        }
     }
 
     #[test]

@@ -39,9 +39,19 @@ struct Generated {
     row_lines: Vec<u64>,
 }
 
-/// Writes a time-to-event file of `rows` rows: columns id, time, note, event, arm (the note has
-/// commas, doubled quotes and line breaks inside quotes), `newline` between lines.
-fn generate(rng: &mut Rng, rows: usize, newline: &str, bom: bool, arms: usize) -> Generated {
+/// Writes a time-to-event file of `rows` rows: columns id, time, note, event, arm, `newline`
+/// between lines. When `quoted`, the note has commas, doubled quotes and line breaks inside
+/// quotes and some times are quoted; otherwise no field is quoted (the loader's fast path for
+/// plain rows), with now and then a value it leaves to the full reader: spaces around a time,
+/// an exponent, `1.0`/`0.0` events, an arm with a space inside or a non-ASCII letter.
+fn generate(
+    rng: &mut Rng,
+    rows: usize,
+    newline: &str,
+    bom: bool,
+    arms: usize,
+    quoted: bool,
+) -> Generated {
     let mut text = String::new();
     if bom {
         text.push('\u{feff}');
@@ -62,22 +72,32 @@ fn generate(rng: &mut Rng, rows: usize, newline: &str, bom: bool, arms: usize) -
             push_line(&mut text, &mut line, ",,,,");
         }
         let time = format!("{}.{:02}", 1 + rng.below(900), rng.below(100));
-        let time = if rng.chance(20) {
-            format!("\"{time}\"")
-        } else {
-            time
+        let time = match (quoted, rng.below(100)) {
+            (true, 0..20) => format!("\"{time}\""),
+            (false, 0..2) => format!(" {time}"),
+            (false, 2..4) => format!("{time}e0"),
+            _ => time,
         };
-        let event = if rng.chance(60) { "1" } else { "0" };
-        let note = match rng.below(6) {
-            0 => String::new(),
-            1 => "plain".to_string(),
-            2 => "\"a, b\"".to_string(),
-            3 => "\"said \"\"fine\"\"\"".to_string(),
+        let event = match (quoted, rng.chance(60), rng.chance(3)) {
+            (false, true, true) => "1.0",
+            (false, false, true) => "0.0",
+            (_, true, _) => "1",
+            (_, false, _) => "0",
+        };
+        let note = match (quoted, rng.below(6)) {
+            (_, 0) => String::new(),
+            (true, 2) => "\"a, b\"".to_string(),
+            (true, 3) => "\"said \"\"fine\"\"\"".to_string(),
             // A line break inside quotes (in the file's own line ending).
-            4 => format!("\"first{newline}second\""),
-            _ => "\"\"".to_string(),
+            (true, 4) => format!("\"first{newline}second\""),
+            (true, 5) => "\"\"".to_string(),
+            _ => "plain".to_string(),
         };
-        let arm = format!("arm{}", rng.below(arms as u64));
+        let arm = match (quoted, rng.below(100)) {
+            (false, 0) => "arm 0".to_string(),
+            (false, 1) => "armé".to_string(),
+            _ => format!("arm{}", rng.below(arms as u64)),
+        };
         row_lines.push(line);
         push_line(
             &mut text,
@@ -117,7 +137,7 @@ fn reference(bytes: &[u8], arm: bool) -> Vec<(Option<String>, Vec<Record>)> {
             continue;
         }
         let time: f64 = record[t].trim().parse().unwrap();
-        let event = record[e].trim() == "1";
+        let event = matches!(record[e].trim(), "1" | "1.0");
         let key = arm.then(|| record[a].trim().to_string());
         match out.iter_mut().find(|(k, _)| *k == key) {
             Some((_, records)) => records.push(Record { time, event }),
@@ -152,11 +172,11 @@ fn sha256(bytes: &[u8]) -> String {
 #[test]
 fn streamed_reading_equals_a_whole_file_reference_at_every_block_size() {
     let mut rng = Rng(20261204);
-    for case in 0..12 {
+    for case in 0..24 {
         let newline = ["\n", "\r\n", "\r"][case % 3];
         let bom = case % 2 == 1;
-        let rows = if case < 9 { 40 } else { 3000 };
-        let file = generate(&mut rng, rows, newline, bom, 1 + case % 4);
+        let rows = if case % 12 < 9 { 40 } else { 3000 };
+        let file = generate(&mut rng, rows, newline, bom, 1 + case % 4, case < 12);
         for arm in [false, true] {
             let expected = reference(&file.bytes, arm);
             for block in BLOCKS {
@@ -194,35 +214,37 @@ fn an_error_in_a_late_block_names_the_line_counted_in_the_file() {
         ),
         ("\r", "3,5", 2, "row has 6 fields but the header has 5"),
     ] {
-        let file = generate(&mut rng, 2000, newline, true, 2);
-        let text = String::from_utf8(file.bytes.clone()).unwrap();
-        // Replace one late row (row 1900) by a bad one, keeping its place and line count.
-        let target = 1900;
-        let line = file.row_lines[target];
-        let bad_row = match column {
-            2 => format!("S{target},{bad},,1,arm0"),
-            _ => format!("S{target},5.5,,{bad},arm0"),
-        };
-        let lines: Vec<&str> = text.split(newline).collect();
-        // The physical line `line` is item line-1 of the split (quoted breaks are lines too).
-        let mut replaced: Vec<String> = lines.iter().map(|l| l.to_string()).collect();
-        let old = &replaced[(line - 1) as usize];
-        let old_breaks = if old.ends_with("\"first") { 1 } else { 0 };
-        replaced[(line - 1) as usize] = bad_row;
-        if old_breaks == 1 {
-            // The old row went on to the next line (a quoted break): drop that part.
-            replaced.remove(line as usize);
-        }
-        let bytes = replaced.join(newline).into_bytes();
-        for block in [64, 1000, 1 << 20, 1 << 30] {
-            let err = input::read("late.csv", &bytes[..], &options(true), block)
-                .unwrap_err()
-                .to_string();
-            assert!(
-                err.starts_with(&format!("late.csv line {line} column {column} ")),
-                "block {block}: {err}"
-            );
-            assert!(err.contains(expect), "block {block}: {err}");
+        for quoted in [true, false] {
+            let file = generate(&mut rng, 2000, newline, true, 2, quoted);
+            let text = String::from_utf8(file.bytes.clone()).unwrap();
+            // Replace one late row (row 1900) by a bad one, keeping its place and line count.
+            let target = 1900;
+            let line = file.row_lines[target];
+            let bad_row = match column {
+                2 => format!("S{target},{bad},,1,arm0"),
+                _ => format!("S{target},5.5,,{bad},arm0"),
+            };
+            let lines: Vec<&str> = text.split(newline).collect();
+            // The physical line `line` is item line-1 of the split (quoted breaks are lines too).
+            let mut replaced: Vec<String> = lines.iter().map(|l| l.to_string()).collect();
+            let old = &replaced[(line - 1) as usize];
+            let old_breaks = if old.ends_with("\"first") { 1 } else { 0 };
+            replaced[(line - 1) as usize] = bad_row;
+            if old_breaks == 1 {
+                // The old row went on to the next line (a quoted break): drop that part.
+                replaced.remove(line as usize);
+            }
+            let bytes = replaced.join(newline).into_bytes();
+            for block in [64, 1000, 1 << 20, 1 << 30] {
+                let err = input::read("late.csv", &bytes[..], &options(true), block)
+                    .unwrap_err()
+                    .to_string();
+                assert!(
+                    err.starts_with(&format!("late.csv line {line} column {column} ")),
+                    "block {block}: {err}"
+                );
+                assert!(err.contains(expect), "block {block}: {err}");
+            }
         }
     }
 }
