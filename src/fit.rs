@@ -728,13 +728,17 @@ pub(crate) fn newton_of(
         if max_abs(&point.grad) / n_subjects < NEWTON_GRADIENT_TOLERANCE {
             break;
         }
-        // A point's own full analytic Hessian comes before the secant-refined covariance.
+        // A point's own full analytic Hessian comes before the secant-refined covariance,
+        // which still serves where that Hessian is not negative definite.
         let exact = point.full_hessian().is_some();
         let covariance = match (&secant, exact) {
             (Some(c), false) => c.clone(),
-            _ => match invert_positive_definite(&lik.information_at(&point, None)) {
+            (fallback, _) => match invert_positive_definite(&lik.information_at(&point, None)) {
                 Some(c) => c,
-                None => break,
+                None => match fallback {
+                    Some(c) => c.clone(),
+                    None => break,
+                },
             },
         };
         let step: Vec<f64> = covariance
@@ -1463,6 +1467,40 @@ mod tests {
             .collect();
         r.sort_by(|a, b| a.time.total_cmp(&b.time).then(b.event.cmp(&a.event)));
         r
+    }
+
+    /// ℓ(θ) = θ²/2 - θ⁴/4 with its exact Hessian 1 - 3θ²: a maximum at θ = 1 (ℓ'' = -2), but
+    /// a positive second derivative, so no Newton step, for |θ| < 1/√3 (calculus, by hand).
+    struct Quartic;
+
+    impl Likelihood for Quartic {
+        fn evaluate(&self, theta: Vec<f64>) -> Point {
+            let t = theta[0];
+            let second = SecondOrder {
+                loglik: t * t / 2.0 - t.powi(4) / 4.0,
+                grad: vec![t - t.powi(3)],
+                hessian: vec![vec![1.0 - 3.0 * t * t]],
+                exact: 1,
+            };
+            Point::from_second(theta, second)
+        }
+        fn information_at(&self, point: &Point, _steps: Option<&[f64]>) -> Vec<Vec<f64>> {
+            negated(point.curvature.as_ref().unwrap().hessian.clone())
+        }
+        fn n_subjects(&self) -> f64 {
+            1.0
+        }
+    }
+
+    #[test]
+    fn newton_falls_back_on_the_given_covariance_where_the_exact_hessian_is_not_negative() {
+        // From θ = 0.5 (ℓ'' = 0.25) the exact curvature gives no step; the given covariance
+        // (as the subsample's on large data) does, and exact steps then reach θ = 1.
+        let best = newton_of(&Quartic, Quartic.evaluate(vec![0.5]), Some(&[vec![0.5]]));
+        assert!((best.theta[0] - 1.0).abs() < 1e-9, "{:?}", best.theta);
+        // Without it Newton stops where it started.
+        let stuck = newton_of(&Quartic, Quartic.evaluate(vec![0.5]), None);
+        assert_eq!(stuck.theta, vec![0.5]);
     }
 
     #[test]
