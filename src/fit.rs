@@ -78,16 +78,20 @@ impl FitData {
             .into_par_iter()
             .zip(slots)
             .for_each(|(piece, (time, events, total))| {
-                let mut last = usize::MAX;
-                for r in piece {
-                    if last == usize::MAX || time[last] != r.time {
-                        last = last.wrapping_add(1);
-                        time[last] = r.time;
+                // Each slot written once, never read: a read of a fresh zeroed page before the
+                // write would fault twice (the shared zero page, then a copy).
+                let mut records = piece.iter().peekable();
+                let mut slot = 0;
+                while let Some(first) = records.next() {
+                    let (mut e, mut n) = (f64::from(u8::from(first.event)), 1.0);
+                    while let Some(r) = records.next_if(|r| r.time == first.time) {
+                        e += f64::from(u8::from(r.event));
+                        n += 1.0;
                     }
-                    total[last] += 1.0;
-                    if r.event {
-                        events[last] += 1.0;
-                    }
+                    time[slot] = first.time;
+                    events[slot] = e;
+                    total[slot] = n;
+                    slot += 1;
                 }
             });
         Self::from_collapsed(time, events, total, None)
