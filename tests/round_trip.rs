@@ -118,3 +118,61 @@ fn large_data_path_recovers_parameters_and_curvature() {
         }
     }
 }
+
+#[test]
+fn large_data_weibull_estimate_is_at_the_maximum_of_the_likelihood_equations() {
+    // The censored Weibull maximum-likelihood equations (Lawless, 2003, Statistical Models and
+    // Methods for Lifetime Data, section 5.2): the shape k solves
+    // Σ t^k ln t / Σ t^k − 1/k − (1/d) Σ_events ln t = 0 (increasing in k), and then
+    // scale = (Σ t^k / d)^(1/k). Solved here by bisection, independently of the fitter. The
+    // large-data path stops its Newton steps once a step would gain at most 1e-8 in
+    // log-likelihood, i.e. within √(2e-8) ≈ 1.4e-4 standard errors of the maximiser.
+    let family = families::by_name("weibull").unwrap();
+    let records = support::simulate(family, &[1.3, 400.0], 100_000, 1000.0, 31);
+    let data = FitData::from_records(&records);
+    let fit = fit_family(family, &data, None);
+    assert!(fit.converged, "{:?}", fit.message);
+    let ln_t: Vec<f64> = records.iter().map(|r| r.time.ln()).collect();
+    let top = ln_t.iter().cloned().fold(f64::MIN, f64::max);
+    let events = records.iter().filter(|r| r.event).count() as f64;
+    let mean_event_ln_t = records
+        .iter()
+        .zip(&ln_t)
+        .filter(|(r, _)| r.event)
+        .map(|(_, l)| l)
+        .sum::<f64>()
+        / events;
+    // Sums of t^k scaled by t_max^k (no overflow); the scaling cancels in the ratio.
+    let sums = |k: f64| {
+        ln_t.iter().fold((0.0, 0.0), |(s, sl), &l| {
+            let w = (k * (l - top)).exp();
+            (s + w, sl + w * l)
+        })
+    };
+    let equation = |k: f64| {
+        let (s, sl) = sums(k);
+        sl / s - 1.0 / k - mean_event_ln_t
+    };
+    let (mut lo, mut hi) = (0.5, 3.0);
+    assert!(equation(lo) < 0.0 && equation(hi) > 0.0);
+    for _ in 0..200 {
+        let mid = 0.5 * (lo + hi);
+        if equation(mid) < 0.0 {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    let k = 0.5 * (lo + hi);
+    let (s, _) = sums(k);
+    let ln_scale = top + (s / events).ln() / k;
+    let covariance = &fit.covariance.as_ref().unwrap().matrix;
+    for (i, reference) in [k.ln(), ln_scale].into_iter().enumerate() {
+        let se = covariance[i][i].sqrt();
+        assert!(
+            (fit.estimates[i] - reference).abs() <= 2e-4 * se,
+            "parameter {i}: {} vs {reference} (se {se})",
+            fit.estimates[i]
+        );
+    }
+}
