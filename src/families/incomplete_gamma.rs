@@ -367,7 +367,10 @@ fn log_gamma_side<const SECOND: bool>(
                 d2lnd = -denominator_second * d + dlnd * dlnd;
                 let step2 = d2lnd + d2lnc;
                 d2lnh += step2;
+                // Settled, or down to the rounding of its two parts, which cancel once the
+                // fraction has converged (a relative test alone can then run to the cap).
                 step2.abs() <= 1e-15 * (d2lnh.abs() + dlnh * dlnh)
+                    || step2.abs() <= 1e-14 * (d2lnd.abs() + d2lnc.abs())
             } else {
                 true
             };
