@@ -10,11 +10,12 @@ use std::path::Path;
 use std::process::{Command, Stdio};
 use std::time::{Duration, Instant};
 
-/// A file whose fit takes many seconds: 2,000,000 distinct times (nothing collapses).
+/// A file whose fit of every family below takes seconds: 3,000,000 distinct times (nothing
+/// collapses).
 fn write_large(path: &Path) {
     let mut out = std::io::BufWriter::new(std::fs::File::create(path).unwrap());
     writeln!(out, "time,event").unwrap();
-    for i in 0..2_000_000u64 {
+    for i in 0..3_000_000u64 {
         // Distinct, irregular times in (0, 1000) days; every fourth subject censored.
         let t = 1000.0 * ((i as f64 * 0.618_033_988_749_895).fract() * 0.999 + 0.0005);
         writeln!(out, "{t:.9},{}", u8::from(i % 4 != 0)).unwrap();
@@ -33,12 +34,20 @@ fn interrupted_fit_leaves_nothing(signal: &str, number: i32) {
             "days",
             "--json",
             "out.json",
+            // The default families alone take well under a second on a million records; the
+            // cure and spline families make the fit last long enough to be interrupted.
+            "--families",
+            "exponential,weibull,lognormal,loglogistic,gompertz,generalized-gamma,cure-weibull,\
+             cure-lognormal,cure-loglogistic,spline-ph-3,spline-po-3,spline-probit-3",
         ])
+        // One worker thread: the fit then lasts about as long on a machine with many cores.
+        .env("RAYON_NUM_THREADS", "1")
         .stdout(Stdio::null())
         .stderr(Stdio::piped())
         .spawn()
         .unwrap();
-    std::thread::sleep(Duration::from_millis(1500));
+    // Past the reading of the file, into the fit.
+    std::thread::sleep(Duration::from_millis(700));
     assert!(
         child.try_wait().unwrap().is_none(),
         "fit finished before the signal; the test needs a larger file"
