@@ -578,8 +578,15 @@ mod tests {
     }
 
     fn fitted(name: &str, data: &FitData) -> crate::fit::FamilyFit {
+        converged(name, data).1
+    }
+
+    /// The family `name` with knots placed on `data`, and its fit, asserted converged.
+    fn converged(name: &str, data: &FitData) -> (&'static dyn Family, crate::fit::FamilyFit) {
         let family = by_name(name).unwrap().for_data(data).unwrap().unwrap();
-        fit_family(family, data, None)
+        let fit = fit_family(family, data, None);
+        assert!(fit.converged, "{name}: {:?}", fit.message);
+        (family, fit)
     }
 
     #[test]
@@ -604,9 +611,7 @@ mod tests {
     fn gradient_matches_differences_on_every_scale() {
         let data = FitData::from_records(&records(150));
         for name in ["spline-ph-3", "spline-po-2", "spline-probit-1"] {
-            let family = by_name(name).unwrap().for_data(&data).unwrap().unwrap();
-            let fit = fit_family(family, &data, None);
-            assert!(fit.converged, "{name}: {:?}", fit.message);
+            let (family, fit) = converged(name, &data);
             let theta: Vec<f64> = fit.estimates.iter().map(|x| x * 1.01 + 0.001).collect();
             crate::fit::assert_gradient_matches_differences(family, &theta, &data, 1e-5);
         }
@@ -622,9 +627,7 @@ mod tests {
         // strongly collinear, so covariance entries magnify the differences' own error.
         let data = FitData::from_records(&records(100_000));
         for name in ["spline-ph-2", "spline-po-1", "spline-probit-2"] {
-            let family = by_name(name).unwrap().for_data(&data).unwrap().unwrap();
-            let fit = fit_family(family, &data, None);
-            assert!(fit.converged, "{name}: {:?}", fit.message);
+            let (family, fit) = converged(name, &data);
             let covariance = &fit.covariance.as_ref().unwrap().matrix;
             let implied = crate::numeric::invert_positive_definite(covariance).unwrap();
             let k = covariance.len();
@@ -671,9 +674,7 @@ mod tests {
             "spline-po-1",
             "spline-probit-3",
         ] {
-            let family = by_name(name).unwrap().for_data(&data).unwrap().unwrap();
-            let fit = fit_family(family, &data, None);
-            assert!(fit.converged, "{name}: {:?}", fit.message);
+            let (family, fit) = converged(name, &data);
             for (scale, shift) in [(1.0, 0.0), (1.01, 0.001), (1.0, 4.0)] {
                 let mut theta: Vec<f64> = fit.estimates.iter().map(|x| x * scale).collect();
                 theta[0] += shift;
