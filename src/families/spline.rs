@@ -130,6 +130,62 @@ fn basis(knots: &[f64], x: f64) -> ([f64; 5], [f64; 5]) {
     (b, db)
 }
 
+/// Log-likelihood, gradient and, when `SECOND`, the Hessian's upper triangle (row by row,
+/// after the 5 gradient slots; zeros otherwise) in one pass, so both trait methods share one
+/// loop. With s = γ·b and s' = γ·b', a record adds (c·ln S' + d·ln g')·b + (d/s')·b' to the
+/// gradient and (c·ln S'' + d·ln g'')·b bᵀ − (d/s'²)·b' b'ᵀ to the Hessian: no transcendental
+/// function beyond the gradient's, so Newton takes exact steps at one pass each.
+fn sums<const SECOND: bool>(
+    knots: &[f64],
+    scale: SplineScale,
+    theta: &[f64],
+    data: &FitData,
+) -> (f64, [f64; 20]) {
+    let k = theta.len();
+    let mut gamma = [0.0; 5];
+    gamma[..k].copy_from_slice(theta);
+    sum_terms::<20>(data, |_t, x, d, n| {
+        let (b, db) = basis(knots, x);
+        let s = dot(&gamma, &b);
+        let (log_s, dlog_s, log_g, dlog_g) = scale.terms(s);
+        let c = n - d;
+        let mut ll = c * log_s;
+        let mut wb = c * dlog_s;
+        let (d2log_s, d2log_g) = if SECOND {
+            scale.second(s, dlog_s)
+        } else {
+            (0.0, 0.0)
+        };
+        let mut hb = c * d2log_s;
+        let (mut wdb, mut hdb) = (0.0, 0.0);
+        if d > 0.0 {
+            let ds = dot(&gamma, &db);
+            // ln f = ln g(s) + ln s'(x) - ln t; a non-positive slope has no density.
+            ll += if ds > 0.0 {
+                d * (log_g + ds.ln() - x)
+            } else {
+                f64::NEG_INFINITY
+            };
+            wb += d * dlog_g;
+            wdb = d / ds;
+            hb += d * d2log_g;
+            hdb = -wdb / ds;
+        }
+        let mut out = [0.0; 20];
+        let mut at = 5;
+        for i in 0..k {
+            out[i] = wb * b[i] + wdb * db[i];
+            if SECOND {
+                for j in i..k {
+                    out[at] = hb * b[i] * b[j] + hdb * db[i] * db[j];
+                    at += 1;
+                }
+            }
+        }
+        (ll, out)
+    })
+}
+
 fn dot(a: &[f64], b: &[f64]) -> f64 {
     a.iter().zip(b).map(|(x, y)| x * y).sum()
 }
@@ -356,93 +412,27 @@ impl Family for Spline {
         starts
     }
     fn loglik_grad(&self, theta: &[f64], data: &FitData) -> (f64, Vec<f64>) {
-        if self.knots.is_none() {
+        let Some(knots) = self.knots.as_deref() else {
             return (f64::NAN, vec![0.0; theta.len()]);
-        }
-        let knots = self.knots();
-        let scale = self.scale;
-        let mut gamma = [0.0; 5];
-        gamma[..theta.len()].copy_from_slice(theta);
-        let (ll, g) = sum_terms::<5>(data, |_t, x, d, n| {
-            let (b, db) = basis(knots, x);
-            let s = dot(&gamma, &b);
-            let (log_s, dlog_s, log_g, dlog_g) = scale.terms(s);
-            let c = n - d;
-            let mut ll = c * log_s;
-            let mut grad = [0.0; 5];
-            for j in 0..5 {
-                grad[j] = c * dlog_s * b[j];
-            }
-            if d > 0.0 {
-                let ds = dot(&gamma, &db);
-                // ln f = ln g(s) + ln s'(x) - ln t; a non-positive slope has no density.
-                ll += if ds > 0.0 {
-                    d * (log_g + ds.ln() - x)
-                } else {
-                    f64::NEG_INFINITY
-                };
-                for j in 0..5 {
-                    grad[j] += d * (dlog_g * b[j] + db[j] / ds);
-                }
-            }
-            (ll, grad)
-        });
-        (ll, g[..theta.len()].to_vec())
+        };
+        let (ll, s) = sums::<false>(knots, self.scale, theta, data);
+        (ll, s[..theta.len()].to_vec())
     }
     fn loglik_grad_hessian(&self, theta: &[f64], data: &FitData) -> Option<SecondOrder> {
-        // With s = γ·b and s' = γ·b', a record adds (c·ln S' + d·ln g')·b + (d/s')·b' to the
-        // gradient and (c·ln S'' + d·ln g'')·b bᵀ − (d/s'²)·b' b'ᵀ to the Hessian: the same
-        // transcendental functions as the gradient, so Newton takes exact steps at one pass
-        // each. Sums: the gradient, then the upper triangle of the Hessian row by row.
-        let knots = self.knots.as_deref()?;
-        let scale = self.scale;
         let k = theta.len();
-        let mut gamma = [0.0; 5];
-        gamma[..k].copy_from_slice(theta);
-        let (ll, sums) = sum_terms::<20>(data, |_t, x, d, n| {
-            let (b, db) = basis(knots, x);
-            let s = dot(&gamma, &b);
-            let (log_s, dlog_s, log_g, dlog_g) = scale.terms(s);
-            let (d2log_s, d2log_g) = scale.second(s, dlog_s);
-            let c = n - d;
-            let mut ll = c * log_s;
-            let (mut wb, mut hb) = (c * dlog_s, c * d2log_s);
-            let (mut wdb, mut hdb) = (0.0, 0.0);
-            if d > 0.0 {
-                let ds = dot(&gamma, &db);
-                ll += if ds > 0.0 {
-                    d * (log_g + ds.ln() - x)
-                } else {
-                    f64::NEG_INFINITY
-                };
-                wb += d * dlog_g;
-                hb += d * d2log_g;
-                wdb = d / ds;
-                hdb = -wdb / ds;
-            }
-            let mut out = [0.0; 20];
-            let mut at = 5;
-            for i in 0..k {
-                out[i] = wb * b[i] + wdb * db[i];
-                for j in i..k {
-                    out[at] = hb * b[i] * b[j] + hdb * db[i] * db[j];
-                    at += 1;
-                }
-            }
-            (ll, out)
-        });
+        let (ll, s) = sums::<true>(self.knots.as_deref()?, self.scale, theta, data);
         let mut hessian = vec![vec![0.0; k]; k];
         let mut at = 5;
         for i in 0..k {
             for j in i..k {
-                hessian[i][j] = sums[at];
-                hessian[j][i] = sums[at];
+                hessian[i][j] = s[at];
+                hessian[j][i] = s[at];
                 at += 1;
             }
         }
         Some(SecondOrder {
             loglik: ll,
-            grad: sums[..k].to_vec(),
+            grad: s[..k].to_vec(),
             hessian,
             exact: k,
         })
