@@ -192,6 +192,45 @@ struct Block {
     error: Option<Error>,
 }
 
+impl Block {
+    /// Adds `record` to `arm` (`None` without an arm column), an arm's first appearance kept
+    /// with `line()`. `false`, the record left out, when its arm is the one that brings the
+    /// block past [`MAX_ARMS`] (kept, so that [`read`] names its row).
+    fn push(
+        &mut self,
+        slots: &mut std::collections::HashMap<String, u32>,
+        arm: Option<&str>,
+        line: impl FnOnce() -> u64,
+        record: Record,
+    ) -> bool {
+        let slot = match arm {
+            Some(value) => match slots.get(value) {
+                Some(&slot) => slot,
+                None => {
+                    let slot = self.arms.len() as u32;
+                    slots.insert(value.to_string(), slot);
+                    self.arms.push((Some(value.to_string()), line()));
+                    self.records.push(Vec::new());
+                    if self.arms.len() > MAX_ARMS {
+                        return false;
+                    }
+                    slot
+                }
+            },
+            None => {
+                if self.arms.is_empty() {
+                    // The line is only for the too-many-arms error, which needs an arm column.
+                    self.arms.push((None, 0));
+                    self.records.push(Vec::new());
+                }
+                0
+            }
+        };
+        self.records[slot as usize].push(record);
+        true
+    }
+}
+
 /// Reads the rows of one block (see [`Block`]): plain rows by the fast path, any block it
 /// leaves by the full reader (same records; the errors and their lines).
 fn read_block(columns: &Columns, options: &InputOptions, reader: &mut CsvReader<'_>) -> Block {
@@ -212,7 +251,7 @@ fn read_block(columns: &Columns, options: &InputOptions, reader: &mut CsvReader<
 /// spaces around them. `None` for any other block, which [`read_rows`] then reads.
 fn plain_block(columns: &Columns, reader: &CsvReader<'_>) -> Option<Block> {
     let mut block = Block::default();
-    let mut slots: std::collections::HashMap<&[u8], u32> = std::collections::HashMap::new();
+    let mut slots: std::collections::HashMap<String, u32> = std::collections::HashMap::new();
     let plain = reader.plain_rows(|fields, line| {
         let Some(time) = plain_number(fields[columns.time]) else {
             return false;
@@ -222,38 +261,21 @@ fn plain_block(columns: &Columns, reader: &CsvReader<'_>) -> Option<Block> {
             b"0" | b"0.0" => false,
             _ => return false,
         };
-        let slot = match &columns.arm {
+        let arm = match &columns.arm {
             Some((idx, _)) => {
                 let value = fields[*idx];
                 let spaced = |b: Option<&u8>| b.is_none_or(|&b| (b as char).is_whitespace());
                 if !value.is_ascii() || spaced(value.first()) || spaced(value.last()) {
                     return false;
                 }
-                match slots.get(value) {
-                    Some(&slot) => slot,
-                    None => {
-                        if block.arms.len() == MAX_ARMS {
-                            return false;
-                        }
-                        let slot = block.arms.len() as u32;
-                        slots.insert(value, slot);
-                        let name = String::from_utf8_lossy(value).into_owned();
-                        block.arms.push((Some(name), line));
-                        block.records.push(Vec::new());
-                        slot
-                    }
+                match std::str::from_utf8(value) {
+                    Ok(text) => Some(text),
+                    Err(_) => return false,
                 }
             }
-            None => {
-                if block.arms.is_empty() {
-                    block.arms.push((None, 0));
-                    block.records.push(Vec::new());
-                }
-                0
-            }
+            None => None,
         };
-        block.records[slot as usize].push(Record { time, event });
-        true
+        block.push(&mut slots, arm, || line, Record { time, event })
     });
     plain.then_some(block)
 }
@@ -314,36 +336,19 @@ fn read_rows(
                 ))
             }
         };
-        let slot = match &columns.arm {
+        let arm = match &columns.arm {
             Some((idx, _)) => {
                 let value = row.text(*idx)?;
                 if value.is_empty() {
                     return Err(row.error(*idx, "arm is empty"));
                 }
-                match slots.get(value) {
-                    Some(&slot) => slot,
-                    None => {
-                        let slot = block.arms.len() as u32;
-                        slots.insert(value.to_string(), slot);
-                        block.arms.push((Some(value.to_string()), row.line()));
-                        block.records.push(Vec::new());
-                        if block.arms.len() > MAX_ARMS {
-                            return Ok(());
-                        }
-                        slot
-                    }
-                }
+                Some(value)
             }
-            None => {
-                if block.arms.is_empty() {
-                    // The line is only for the too-many-arms error, which needs an arm column.
-                    block.arms.push((None, 0));
-                    block.records.push(Vec::new());
-                }
-                0
-            }
+            None => None,
         };
-        block.records[slot as usize].push(Record { time, event });
+        if !block.push(slots, arm, || row.line(), Record { time, event }) {
+            return Ok(());
+        }
     }
     Ok(())
 }
