@@ -354,15 +354,21 @@ fn expm1_over_x_with(y: f64, em1: f64) -> f64 {
 fn a_term_derivative(q: f64) -> f64 {
     let a = 1.0 / (q * q);
     if a >= 10.0 {
-        // stirlerr = Σ c_k r^(2k+1) with r = 1/a = q² (Abramowitz and Stegun, 1964, 6.1.40).
-        let r = q * q;
-        let r2 = r * r;
-        let ds_dr = 1.0 / 12.0
-            - r2 * (3.0 / 360.0 - r2 * (5.0 / 1260.0 - r2 * (7.0 / 1680.0 - r2 * (9.0 / 1188.0))));
-        ds_dr * 2.0 * q
+        stirlerr_in_r(q * q).0 * 2.0 * q
     } else {
         super::incomplete_gamma::stirlerr_derivative(a) * (-2.0 / (q * q * q))
     }
+}
+
+/// First and second derivatives in r = 1/a of stirlerr(a) = Σ c_k r^(2k+1) (Abramowitz and
+/// Stegun, 1964, 6.1.40), for a ≥ 10.
+fn stirlerr_in_r(r: f64) -> (f64, f64) {
+    let r2 = r * r;
+    let ds_dr = 1.0 / 12.0
+        - r2 * (3.0 / 360.0 - r2 * (5.0 / 1260.0 - r2 * (7.0 / 1680.0 - r2 * (9.0 / 1188.0))));
+    let d2s_dr2 =
+        -r * (6.0 / 360.0 - r2 * (20.0 / 1260.0 - r2 * (42.0 / 1680.0 - r2 * (72.0 / 1188.0))));
+    (ds_dr, d2s_dr2)
 }
 
 /// d²/dq² of stirlerr(q⁻²), as [`a_term_derivative`].
@@ -371,11 +377,7 @@ fn a_term_second_derivative(q: f64) -> f64 {
     if a >= 10.0 {
         // With r = q²: d²/dq² = 4q²·d²s/dr² + 2·ds/dr.
         let r = q * q;
-        let r2 = r * r;
-        let ds_dr = 1.0 / 12.0
-            - r2 * (3.0 / 360.0 - r2 * (5.0 / 1260.0 - r2 * (7.0 / 1680.0 - r2 * (9.0 / 1188.0))));
-        let d2s_dr2 =
-            -r * (6.0 / 360.0 - r2 * (20.0 / 1260.0 - r2 * (42.0 / 1680.0 - r2 * (72.0 / 1188.0))));
+        let (ds_dr, d2s_dr2) = stirlerr_in_r(r);
         4.0 * r * d2s_dr2 + 2.0 * ds_dr
     } else {
         let da = -2.0 / (q * q * q);
